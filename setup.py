@@ -1,0 +1,1 @@
+from setuptools import setup; setup(cffi_modules=["c_ref/build_ffi.py:ffibuilder"])
