@@ -1,0 +1,41 @@
+"""Algorithm state (mirrors ``ld_state_t`` in c_ref/linedrop.h), field for field."""
+from dataclasses import dataclass, fields
+
+# Window outcome codes (``status``), shared with C as LD_STATUS_*.
+STATUS_NONE = 0        # no window finished yet
+STATUS_VALID = 1       # estimate accepted
+STATUS_LOW_SWING = 2   # current swing too small: cable open or capacitor missing
+STATUS_TRANSIENT = 3   # load step inside the window: estimate discarded, correction held
+STATUS_R_HIGH = 4      # real part above r_max: capacitor missing or no cable fits
+STATUS_REACTIVE = 5    # quadrature part above x_max: capacitor too small or missing
+STATUS_NAMES = {STATUS_NONE: "none", STATUS_VALID: "valid", STATUS_LOW_SWING: "low_swing",
+                STATUS_TRANSIENT: "transient", STATUS_R_HIGH: "r_high",
+                STATUS_REACTIVE: "reactive"}
+
+
+@dataclass
+class State:
+    """RAM state of one instance; formats as in ``ld_state_t``."""
+    acc_vi: int = 0       # int32: voltage x sine, sum of products >> demod_shift
+    acc_vq: int = 0       # int32: voltage x cosine
+    acc_ii: int = 0       # int32: current x sine
+    acc_iq: int = 0       # int32: current x cosine
+    isum: int = 0         # int32: sum of current codes over the window
+    psum: int = 0         # int32: sum of current codes over the current period
+    psum_prev: int = 0    # int32: sum over the previous whole period
+    r_est: int = 0        # int32: loop resistance estimate incl. ESR, Q r_frac V-code/I-code
+    r_raw: int = 0        # int32: last window's raw real part (saturated), same format
+    corr: int = 0         # int32: correction applied, Q corr_frac DAC codes
+    corr_target: int = 0  # int32: correction the smoothing moves toward, same format
+    pert_amp: int = 0     # int32: perturbation amplitude, DAC codes
+    windows: int = 0      # uint32: windows finished (wraps)
+    phase: int = 0        # uint16: sample index within the perturbation period
+    count: int = 0        # uint16: sample index within the window
+    bad_windows: int = 0  # uint16: consecutive windows without a valid estimate (saturates)
+    cmd: int = 0          # uint16: last command, DAC code
+    have_prev: int = 0    # uint8: psum_prev holds a whole period
+    transient: int = 0    # uint8: a load step was seen in this window
+    status: int = 0       # uint8: outcome of the last window (STATUS_*)
+
+
+STATE_FIELDS = [f.name for f in fields(State)]

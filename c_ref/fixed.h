@@ -1,0 +1,73 @@
+/*
+ * Fixed-point primitives, mirrored one for one by algo/fixed.py.
+ *
+ * Right shifts of negative values are arithmetic (floor) on every target
+ * linedrop supports (two's complement; gcc and clang document it).
+ */
+#ifndef LINEDROP_FIXED_H
+#define LINEDROP_FIXED_H
+
+#include <stdint.h>
+
+static inline int32_t ld_sat(int32_t x, int32_t lo, int32_t hi)
+{
+    return x < lo ? lo : (x > hi ? hi : x);
+}
+
+static inline int64_t ld_sat64(int64_t x, int64_t lo, int64_t hi)
+{
+    return x < lo ? lo : (x > hi ? hi : x);
+}
+
+static inline int32_t ld_sat_s32(int64_t x)
+{
+    return (int32_t)ld_sat64(x, INT32_MIN, INT32_MAX);
+}
+
+/* Scaling and overflow: x + 2**(s-1) must fit int32; callers keep
+ * |x| < 2**31 - 2**(s-1) by range analysis. */
+static inline int32_t ld_rshift_round(int32_t x, unsigned s)
+{
+    return s == 0u ? x : (int32_t)((x + (int32_t)(1L << (s - 1u))) >> s);
+}
+
+/* Scaling and overflow: as ld_rshift_round, in int64 (|x| < 2**63 - 2**(s-1)). */
+static inline int64_t ld_rshift_round64(int64_t x, unsigned s)
+{
+    return s == 0u ? x : (x + ((int64_t)1 << (s - 1u))) >> s;
+}
+
+/* C99 '/' truncates toward zero; algo/fixed.py div_trunc mirrors it. */
+static inline int64_t ld_div_trunc(int64_t a, int64_t b)
+{
+    return a / b;
+}
+
+static inline unsigned ld_bit_length(uint32_t u)
+{
+    unsigned n = 0u;
+    while (u != 0u) {
+        u >>= 1;
+        n++;
+    }
+    return n;
+}
+
+static inline int32_t ld_abs32(int32_t x)
+{
+    /* Callers never pass INT32_MIN (accumulators are bounded below 2**31 - 1). */
+    return x < 0 ? -x : x;
+}
+
+/* Move x a fraction 2**-s of the way to target, at least 1 LSB; no dead band.
+ * Scaling and overflow: target - x is formed in int64 and rounded there. */
+static inline int32_t ld_step_toward(int32_t x, int32_t target, unsigned s)
+{
+    int64_t d = ld_rshift_round64((int64_t)target - x, s);
+    if (d == 0 && target != x) {
+        d = target > x ? 1 : -1;
+    }
+    return (int32_t)(x + d);
+}
+
+#endif /* LINEDROP_FIXED_H */

@@ -1,0 +1,121 @@
+"""Frozen dataclasses describing one simulated scenario (what a scenario file parses into)."""
+
+from dataclasses import dataclass, field
+from typing import Optional
+
+#: Capacitance left at the load end while a ``cap_open`` fault is active, F: stray cable and
+#: load-input capacitance (common practice, no published source; an assumed round value).
+CAP_OPEN_RESIDUAL_F = 1e-6
+
+#: Loop inductance per metre of run used when ``cable.inductance_h`` is omitted, H/m
+#: (about 0.3 uH/m per conductor for a two-core cable, from memory; common practice).
+DEFAULT_INDUCTANCE_H_PER_M = 0.6e-6
+
+#: Load resistance while a ``load_short`` fault is active, ohm.
+LOAD_SHORT_OHM = 0.01
+
+LOAD_KINDS = ("constant_current", "resistive", "constant_power", "lamp")
+FAULT_KINDS = ("cable_open", "cap_open", "load_short", "adc_stuck")
+
+
+@dataclass(frozen=True)
+class SupplySpec:
+    """Supply settings (all volts in V, currents in A, bandwidth in Hz)."""
+
+    target_v: float
+    max_v: float
+    min_v: float = 0.0
+    loop_bandwidth_hz: float = 0.0  # 0: ideal voltage source
+    current_limit_a: Optional[float] = None  # None: no limit
+    dac_bits: int = 12
+    dac_full_scale_v: float = 0.0  # volts for code 2**dac_bits
+
+
+@dataclass(frozen=True)
+class CableSpec:
+    """Cable: loop resistance at t = 0 (ohm) and how it drifts with temperature."""
+
+    resistance_ohm: float  # loop value at temperature_c (resolved from gauge if not given)
+    material: str = "copper"
+    temperature_c: float = 20.0
+    temperature_end_c: Optional[float] = None  # reached at the end of the run
+    inductance_h: float = 0.0  # loop inductance
+    length_m: Optional[float] = None
+    conductor_mm2: Optional[float] = None  # resolved from awg if awg was given
+    awg: Optional[int] = None
+
+
+@dataclass(frozen=True)
+class LoadEndSpec:
+    """Load-end capacitor (F) with ESR (ohm) and optional parallel leakage (ohm)."""
+
+    capacitance_f: float
+    esr_ohm: float = 0.0
+    leakage_ohm: Optional[float] = None  # None: no leakage
+
+
+@dataclass(frozen=True)
+class LoadSpec:
+    """Load at the cable end.
+
+    ``value`` is the kind's main quantity (current_a, resistance_ohm or power_w; rated_w for a
+    lamp). ``steps`` are (time_s, value) pairs that replace ``value`` from time_s on.
+    ``profile`` is (time_s, current_a) pairs for a constant-current load from a CSV file.
+    """
+
+    kind: str
+    value: float = 0.0
+    rated_v: Optional[float] = None
+    thermal_tau_s: float = 0.05
+    cutoff_v: float = 0.0
+    steps: tuple = ()
+    profile: tuple = ()
+    profile_csv: Optional[str] = None
+
+
+@dataclass(frozen=True)
+class SensingSpec:
+    """ADC on the supply-side voltage and current, and the sample rate (Hz)."""
+
+    v_full_scale_v: float
+    i_full_scale_a: float
+    adc_bits: int = 12
+    noise_lsb_rms: float = 0.5
+    offset_lsb: float = 0.0
+    gain_error: float = 0.0  # fractional, e.g. 0.01 reads 1 % high
+    sample_rate_hz: float = 32000.0
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    """Run length (s), random seed and initial state (``"steady"`` or ``"cold"``)."""
+
+    duration_s: float = 1.0
+    seed: int = 0
+    start: str = "steady"
+
+
+@dataclass(frozen=True)
+class FaultSpec:
+    """A fault active over [at_s, until_s); ``code``/``channel`` only for ``adc_stuck``."""
+
+    kind: str
+    at_s: float
+    until_s: float = float("inf")
+    code: Optional[int] = None
+    channel: Optional[str] = None  # "v" or "i"
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """One scenario: plant, sensing, run settings, faults and the algorithm settings (opaque)."""
+
+    source: str
+    supply: SupplySpec
+    cable: CableSpec
+    load_end: LoadEndSpec
+    load: LoadSpec
+    sensing: SensingSpec
+    run: RunSpec = RunSpec()
+    faults: tuple = ()
+    algorithm: dict = field(default_factory=dict, compare=False, hash=False)
