@@ -1,0 +1,144 @@
+"""State-space model of supply, cable and load end, and its exact zero-order-hold discretisation.
+
+States ``x = [v_int, i_cable, v_cap]``: the supply's internal (inner-loop) output voltage in V,
+the cable current in A and the load-end capacitor voltage in V. Inputs, held constant over a
+sample (zero-order hold), ``u = [v_cmd, i_src, i_lim]``: the voltage command in V, the
+current-source part of the load in A and the supply current limit in A. Outputs
+``y = [v_supply, i_supply, v_load]`` in V, A, V at the supply terminals and the load end.
+
+Elements that are absent (ideal supply with bandwidth 0, cable inductance 0) make the
+corresponding state a dummy: its row and column are zero and the quantity it would carry is
+computed algebraically in the output equation instead. The load end holds the capacitor C in
+series with its ESR, in parallel with a shunt conductance G (leakage plus the folded-in
+conductance of the load) and the load's current source.
+"""
+
+import numpy as np
+from scipy.linalg import expm
+
+N_STATE = 3
+N_INPUT = 3
+
+
+def continuous_model(r, l, c, esr, g, omega, is_open=False, current_mode=False):
+    """Continuous-time matrices of one scenario.
+
+    Parameters
+    ----------
+    r : float
+        Cable loop resistance, ohm (> 0).
+    l : float
+        Cable loop inductance, H (0 allowed).
+    c : float
+        Load-end capacitance, F (> 0).
+    esr : float
+        Capacitor ESR, ohm (>= 0).
+    g : float
+        Shunt conductance at the load end (leakage + folded load), S; may be negative.
+    omega : float
+        Inner voltage-loop bandwidth, rad/s; 0 for an ideal voltage source.
+    is_open : bool
+        Cable open: no cable current, the load end discharges through the load.
+    current_mode : bool
+        Supply in current limit: the cable current equals the input ``i_lim``.
+
+    Returns
+    -------
+    a, b, c_out, d : ndarray
+        dx/dt = a x + b u, y = c_out x + d u; shapes (3, 3), (3, 3), (3, 3), (3, 3).
+    """
+    e = np.eye(N_STATE + N_INPUT)
+    zero = np.zeros(N_STATE + N_INPUT)
+    v_int = e[0] if omega > 0 else e[3]
+
+    def load_end(i):
+        return (esr * (i - e[4]) + e[2]) / (1.0 + esr * g)
+
+    dx1 = zero
+    if is_open:
+        i = zero
+        v_load = load_end(i)
+        v_sup = v_int
+    elif current_mode:
+        i = e[5]
+        v_load = load_end(i)
+        v_sup = r * i + v_load
+    elif l > 0:
+        i = e[1]
+        v_load = load_end(i)
+        v_sup = v_int
+        dx1 = (v_int - r * i - v_load) / l
+    else:
+        v_load = (esr * v_int / r - esr * e[4] + e[2]) / (1.0 + esr * g + esr / r)
+        i = (v_int - v_load) / r
+        v_sup = v_int
+    dx0 = omega * (e[3] - e[0]) if omega > 0 else zero
+    dx2 = (i - e[4] - g * v_load) / c
+    m = np.stack([dx0, dx1, dx2])
+    y = np.stack([v_sup, i, v_load])
+    return m[:, :N_STATE], m[:, N_STATE:], y[:, :N_STATE], y[:, N_STATE:]
+
+
+def discretise(a, b, dt_s):
+    """Exact zero-order-hold discretisation of a batch of systems.
+
+    Parameters
+    ----------
+    a : ndarray, shape (k, n, n)
+        Continuous state matrices, 1/s.
+    b : ndarray, shape (k, n, m)
+        Continuous input matrices.
+    dt_s : float
+        Sample period, s.
+
+    Returns
+    -------
+    phi, gamma : ndarray, shapes (k, n, n) and (k, n, m)
+        x[k+1] = phi x[k] + gamma u[k], from the matrix exponential of the augmented matrix
+        [[a, b], [0, 0]] * dt.
+    """
+    k, n, _ = a.shape
+    m = b.shape[2]
+    aug = np.zeros((k, n + m, n + m))
+    aug[:, :n, :n] = a * dt_s
+    aug[:, :n, n:] = b * dt_s
+    e = expm(aug)
+    return e[:, :n, :n], e[:, :n, n:]
+
+
+class DiscreteSystems:
+    """Voltage-mode and current-limit-mode discrete systems of B scenarios, refreshed by subset.
+
+    Attributes ``phi``, ``gamma``, ``c_out``, ``d`` have shape (2, B, 3, 3): index 0 is voltage
+    mode, 1 is current-limit mode.
+    """
+
+    def __init__(self, n_batch, dt_s):
+        self.dt_s = dt_s
+        shape = (2, n_batch, N_STATE, N_STATE)
+        self.phi = np.zeros(shape)
+        self.gamma = np.zeros(shape)
+        self.c_out = np.zeros(shape)
+        self.d = np.zeros(shape)
+
+    def refresh(self, idx, r, l, c, esr, g, omega, is_open):
+        """Recompute the systems of scenarios ``idx`` from per-scenario parameter arrays (B,)."""
+        idx = np.asarray(idx)
+        if idx.size == 0:
+            return
+        for mode in (0, 1):
+            mats = [continuous_model(r[b], l[b], c[b], esr[b], g[b], omega[b], bool(is_open[b]), bool(mode))
+                    for b in idx]
+            a = np.array([mm[0] for mm in mats])
+            bb = np.array([mm[1] for mm in mats])
+            phi, gamma = discretise(a, bb, self.dt_s)
+            self.phi[mode, idx] = phi
+            self.gamma[mode, idx] = gamma
+            self.c_out[mode, idx] = np.array([mm[2] for mm in mats])
+            self.d[mode, idx] = np.array([mm[3] for mm in mats])
+
+    def advance(self, mode, x, u):
+        """One step in ``mode`` (0 or 1) for all scenarios: returns (x_next, y_next), each (B, 3)."""
+        x_next = np.einsum("bij,bj->bi", self.phi[mode], x) + np.einsum("bij,bj->bi", self.gamma[mode], u)
+        y = np.einsum("bij,bj->bi", self.c_out[mode], x_next) + np.einsum("bij,bj->bi", self.d[mode], u)
+        return x_next, y
