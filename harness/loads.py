@@ -110,7 +110,7 @@ class LoadBank:
         res = self.kind == _RES
         g = np.where(res, 1.0 / np.where(res, val, 1.0), g)
         cp = self.kind == _CP
-        v_safe = np.where(low, 1.0, v)
+        v_safe = np.where(low | ~(self.kind == _CP), 1.0, v)
         g = np.where(cp & low, val / vc**2, np.where(cp, -val / v_safe**2, g))
         i_n = np.where(cp & ~low, 2.0 * val / v_safe, i_n)
         lamp = self.kind == _LAMP

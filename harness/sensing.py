@@ -1,0 +1,102 @@
+"""Supply-side ADC (voltage and current to unsigned codes) and the command DAC, batched."""
+
+import numpy as np
+
+#: Noise samples drawn per scenario at a time (the noise sequence does not depend on it).
+_NOISE_BLOCK = 4096
+
+
+class Adc:
+    """Two-channel ADC of B scenarios: supply voltage and supply current to unsigned codes.
+
+    ``code = round_half_up(x / full_scale * 2**bits * (1 + gain_error) + offset_lsb + noise)``,
+    clipped to [0, 2**bits - 1], where ``noise`` is white Gaussian with ``noise_lsb_rms`` LSB rms
+    drawn from a per-scenario ``numpy.random.Generator``, so a scenario's codes do not depend on
+    which other scenarios share its batch.
+
+    Parameters
+    ----------
+    sensing : sequence of harness.specs.SensingSpec
+        One per scenario.
+    seeds : sequence of int
+        One seed per scenario.
+    """
+
+    def __init__(self, sensing, seeds):
+        self.specs = list(sensing)
+
+        def arr(fn):
+            return np.array([fn(s) for s in self.specs], dtype=float)
+
+        self.bits = np.array([s.adc_bits for s in self.specs], dtype=np.int64)
+        self.code_max = (1 << self.bits) - 1
+        self.v_lsb_per_v = 2.0**self.bits / arr(lambda s: s.v_full_scale_v)
+        self.i_lsb_per_a = 2.0**self.bits / arr(lambda s: s.i_full_scale_a)
+        self.gain = 1.0 + arr(lambda s: s.gain_error)
+        self.offset = arr(lambda s: s.offset_lsb)
+        self.sigma = arr(lambda s: s.noise_lsb_rms)
+        self._rngs = [np.random.default_rng(seed) for seed in seeds]
+        self._noise = np.zeros((len(self.specs), 2, 0))
+        self._pos = 0
+
+    def _draw(self):
+        if self._pos >= self._noise.shape[2]:
+            self._noise = np.stack([rng.standard_normal((2, _NOISE_BLOCK)) for rng in self._rngs])
+            self._pos = 0
+        n = self._noise[:, :, self._pos]
+        self._pos += 1
+        return n[:, 0] * self.sigma, n[:, 1] * self.sigma
+
+    def _code(self, x_lsb, noise):
+        raw = x_lsb * self.gain + self.offset + noise
+        return np.clip(np.floor(raw + 0.5), 0, self.code_max).astype(np.int64)
+
+    def convert(self, v_supply_v, i_supply_a, stuck_v=None, stuck_i=None):
+        """Convert one sample of each scenario.
+
+        Parameters
+        ----------
+        v_supply_v : ndarray, shape (B,)
+            True supply-terminal voltage, V.
+        i_supply_a : ndarray, shape (B,)
+            True supply current, A (negative currents read as code 0).
+        stuck_v, stuck_i : ndarray of int, shape (B,), optional
+            Forced code per scenario (an ``adc_stuck`` fault), -1 where not stuck.
+
+        Returns
+        -------
+        v_code, i_code : ndarray of int64, shape (B,)
+            Codes in [0, 2**adc_bits - 1].
+        """
+        nv, ni = self._draw()
+        v_code = self._code(np.asarray(v_supply_v, float) * self.v_lsb_per_v, nv)
+        i_code = self._code(np.asarray(i_supply_a, float) * self.i_lsb_per_a, ni)
+        if stuck_v is not None:
+            v_code = np.where(stuck_v >= 0, stuck_v, v_code)
+        if stuck_i is not None:
+            i_code = np.where(stuck_i >= 0, stuck_i, i_code)
+        return v_code, i_code
+
+
+class Dac:
+    """Command DAC of B scenarios: ``volts = code * dac_full_scale_v / 2**dac_bits``.
+
+    Parameters
+    ----------
+    supplies : sequence of harness.specs.SupplySpec
+        One per scenario (``dac_bits``, ``dac_full_scale_v``).
+    """
+
+    def __init__(self, supplies):
+        self.bits = np.array([s.dac_bits for s in supplies], dtype=np.int64)
+        self.code_max = (1 << self.bits) - 1
+        self.v_per_code = np.array([s.dac_full_scale_v for s in supplies], dtype=float) / 2.0**self.bits
+
+    def to_volts(self, code):
+        """Output voltage (V) for integer ``code`` (B,), clipped to [0, 2**dac_bits - 1]."""
+        return np.clip(np.asarray(code, dtype=np.int64), 0, self.code_max) * self.v_per_code
+
+    def to_code(self, volts):
+        """Nearest code (int64, (B,)) for ``volts`` (V), clipped to the code range."""
+        raw = np.floor(np.asarray(volts, dtype=float) / self.v_per_code + 0.5)
+        return np.clip(raw, 0, self.code_max).astype(np.int64)
