@@ -109,3 +109,7 @@ class CBatch:
     def states(self):
         """Every state field of every instance, as a dict of numpy arrays (copies)."""
         return {name: self._states[name].copy() for name in STATE_FIELDS}
+
+    def step(self, adc_v, adc_i):
+        """One sample for every instance: inputs of shape (n,), commands out."""
+        return self.run(adc_v, adc_i)

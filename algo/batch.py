@@ -1,0 +1,190 @@
+"""The fixed-point model vectorised over many instances with numpy (mirrors c_ref/batch.c).
+
+Same arithmetic as algo/step.py and algo/estimator.py, bit for bit, applied
+to int64 arrays of shape (n,): one element per independent instance, each
+with its own parameters. Range analysis keeps every intermediate below 2**63,
+so int64 never wraps. The scalar model stays the readable, line-by-line
+mirror of the C; this one is for speed and is tested equal to it.
+"""
+import numpy as np
+
+from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, PARAM_FIELDS
+from algo.state import STATE_FIELDS
+from algo import state as st
+
+
+class _Fields:
+    """Attribute bag of int64 arrays, one per field."""
+
+    def __init__(self, names, n):
+        for name in names:
+            setattr(self, name, np.zeros(n, dtype=np.int64))
+
+
+def _rsr(x, s):
+    """Vectorised algo.fixed.rshift_round: shift right by s >= 0, rounding half up."""
+    return (x + ((np.int64(1) << s) >> 1)) >> s
+
+
+def _step_toward(x, target, s):
+    """Vectorised algo.fixed.step_toward."""
+    d = _rsr(target - x, s)
+    d = np.where((d == 0) & (target != x), np.sign(target - x), d)
+    return x + d
+
+
+def _bit_length(u):
+    """Vectorised bit length of non-negative values below 2**53."""
+    return np.where(u > 0, np.frexp(u.astype(np.float64))[1], 0).astype(np.int64)
+
+
+def _div_trunc(a, b):
+    q = np.abs(a) // np.abs(b)
+    return np.where((a >= 0) == (b >= 0), q, -q)
+
+
+class BatchModel:
+    """``n`` independent fixed-point instances stepped together.
+
+    Parameters
+    ----------
+    params_list : list of algo.params.Params
+        One parameter block per instance.
+    """
+
+    def __init__(self, params_list):
+        self.n = len(params_list)
+        self.p = _Fields([f for f in PARAM_FIELDS if f != "ref_tab"], self.n)
+        for name in vars(self.p):
+            getattr(self.p, name)[:] = [getattr(q, name) for q in params_list]
+        self.tab = np.array([q.ref_tab for q in params_list], dtype=np.int64)
+        self.period = np.int64(1) << self.p.period_log2
+        self.window = np.int64(1) << self.p.window_log2
+        self.s = _Fields(STATE_FIELDS, self.n)
+        self._idx = np.arange(self.n)
+        self.init(np.ones(self.n, dtype=bool))
+
+    def init(self, mask):
+        """Initialise the instances selected by boolean ``mask``."""
+        for name in STATE_FIELDS:
+            getattr(self.s, name)[mask] = 0
+        self.reset(mask)
+
+    def reset(self, mask):
+        """Reset the selected instances, keeping their resistance estimate (algo.step.reset)."""
+        s, p = self.s, self.p
+        for name in STATE_FIELDS:
+            if name not in ("r_est", "windows"):
+                getattr(s, name)[mask] = 0
+        s.pert_amp[mask] = p.pert_min[mask]
+        s.bad_windows[mask] = p.fault_windows[mask]
+        s.cmd[mask] = self._command()[mask]
+
+    def _command(self):
+        s, p = self.s, self.p
+        pert = _rsr(s.pert_amp * self.tab[self._idx, s.phase], p.tab_bits - 1)
+        cmd = p.target_code + _rsr(s.corr, p.corr_frac) + pert
+        return np.clip(cmd, p.cmd_min, p.cmd_max)
+
+    def step(self, adc_v, adc_i):
+        """One sample for every instance; returns the command codes (int64, shape (n,))."""
+        s, p = self.s, self.p
+        v = np.clip(np.asarray(adc_v, dtype=np.int64), 0, p.adc_max)
+        i = np.clip(np.asarray(adc_i, dtype=np.int64), 0, p.adc_max)
+        n = self.period - 1
+        sn = self.tab[self._idx, s.phase]
+        cs = self.tab[self._idx, (s.phase + (self.period >> 2)) & n]
+        ds = p.demod_shift
+        s.acc_vi += _rsr(v * sn, ds)
+        s.acc_vq += _rsr(v * cs, ds)
+        s.acc_ii += _rsr(i * sn, ds)
+        s.acc_iq += _rsr(i * cs, ds)
+        s.isum += i
+        s.psum += i
+        s.phase = (s.phase + 1) & n
+        s.count += 1
+        ends = np.flatnonzero(s.phase == 0)
+        if ends.size:
+            self._period_end(ends)
+        ends = np.flatnonzero(s.count == self.window)
+        if ends.size:
+            self._window_end(ends)
+        s.cmd = self._command()
+        return s.cmd
+
+    def run(self, adc_v, adc_i):
+        """Step over columns of (n, T) input arrays; returns (n, T) command codes."""
+        adc_v, adc_i = np.asarray(adc_v), np.asarray(adc_i)
+        out = np.empty(adc_v.shape, dtype=np.int64)
+        for t in range(adc_v.shape[1]):
+            out[:, t] = self.step(adc_v[:, t], adc_i[:, t])
+        return out
+
+    def _period_end(self, k):
+        s, p = self.s, self.p
+        thr = np.maximum(p.step_min[k], s.psum_prev[k] >> p.step_rel_shift[k])
+        jump = (s.have_prev[k] != 0) & (np.abs(s.psum[k] - s.psum_prev[k]) > thr)
+        s.transient[k[jump]] = 1
+        s.psum_prev[k] = s.psum[k]
+        s.have_prev[k] = 1
+        s.psum[k] = 0
+
+    def _classify(self, k):
+        s, p = self.s, self.p
+        m = np.maximum(np.abs(s.acc_ii[k]), np.abs(s.acc_iq[k]))
+        low = m < p.swing_min[k]
+        sh = np.maximum(0, _bit_length(m) - NORM_BITS)
+        vi, vq = _rsr(s.acc_vi[k], sh), _rsr(s.acc_vq[k], sh)
+        ii, iq = _rsr(s.acc_ii[k], sh), _rsr(s.acc_iq[k], sh)
+        den = np.where(low, 1, ii * ii + iq * iq)
+        num = vi * ii + vq * iq
+        xnum = vq * ii - vi * iq
+        r_raw = np.clip(_div_trunc(num << p.r_frac[k], den), -(1 << 31), (1 << 31) - 1)
+        r_raw = np.where(low, 0, r_raw)
+        status = np.select(
+            [low, s.transient[k] != 0, r_raw > p.r_max_q[k],
+             np.abs(xnum) << p.r_frac[k] > p.x_max_q[k] * den],
+            [st.STATUS_LOW_SWING, st.STATUS_TRANSIENT, st.STATUS_R_HIGH, st.STATUS_REACTIVE],
+            st.STATUS_VALID)
+        return status, r_raw
+
+    def _drop_vq(self, r_q, k):
+        p = self.p
+        d = _rsr(r_q * self.s.isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC)
+        return np.clip(d, -(1 << 31), (1 << 31) - 1)
+
+    def _window_end(self, k):
+        s, p = self.s, self.p
+        status, r_raw = self._classify(k)
+        s.r_raw[k] = r_raw
+        valid = status == st.STATUS_VALID
+        r_est = s.r_est[k]
+        d = _step_toward(r_est, np.maximum(r_raw, 0), p.r_shift[k]) - r_est
+        d = np.clip(d, -p.r_step_max_q[k], p.r_step_max_q[k])
+        r_est = np.where(valid, np.clip(r_est + d, 0, p.r_max_q[k]), r_est)
+        bad = np.where(valid, 0, np.minimum(s.bad_windows[k] + 1, 0xFFFF))
+        forced = bad >= p.fault_windows[k]
+        r_est = np.where(forced, 0, r_est)
+        drop_total = self._drop_vq(r_est, k)
+        drop_comp = self._drop_vq(np.maximum(r_est - p.esr_q[k], 0), k)
+        tgt = _rsr(drop_comp * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k])
+        tgt = np.clip(tgt, 0, p.corr_max_q[k])
+        holds = valid | (status == st.STATUS_TRANSIENT)
+        s.corr_target[k] = np.where(holds, tgt, 0)
+        amp = _rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC)
+        s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
+        s.corr[k] = np.where(forced, 0, _step_toward(s.corr[k], s.corr_target[k], p.corr_shift[k]))
+        s.r_est[k] = r_est
+        s.bad_windows[k] = bad
+        s.status[k] = status
+        s.windows[k] = (s.windows[k] + 1) & 0xFFFFFFFF
+        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient"):
+            getattr(s, name)[k] = 0
+
+    def state(self, k=0):
+        """Every state field of instance ``k`` as a dict of ints."""
+        return {name: int(getattr(self.s, name)[k]) for name in STATE_FIELDS}
+
+    def states(self):
+        """Every state field of every instance, as a dict of arrays (copies)."""
+        return {name: getattr(self.s, name).copy() for name in STATE_FIELDS}

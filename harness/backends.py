@@ -1,0 +1,23 @@
+"""One backend-neutral way to run the algorithm: Python fixed-point model, C reference, float ideal.
+
+Every backend steps ``n`` independent instances in lockstep and offers
+``step(adc_v, adc_i) -> commands``, ``run`` over (n, T) arrays, ``state(k)``
+and ``states()``. Commands are DAC codes (fractional for the ideal).
+"""
+from algo.batch import BatchModel
+from algo.ideal import IdealBatch
+from algo.params import derive
+
+BACKENDS = ("model", "c", "ideal")
+
+
+def make(backend, cfgs):
+    """Build ``len(cfgs)`` instances of ``backend`` from a list of AlgoConfig."""
+    if backend == "model":
+        return BatchModel([derive(c) for c in cfgs])
+    if backend == "c":
+        from c_ref.binding import CBatch
+        return CBatch([derive(c) for c in cfgs])
+    if backend == "ideal":
+        return IdealBatch(cfgs)
+    raise ValueError(f"unknown backend {backend!r}; choose one of {', '.join(BACKENDS)}")

@@ -1,0 +1,64 @@
+"""``linedrop bench``: throughput of the C batch and the Python model, measured side by side."""
+import json
+import time
+
+import numpy as np
+
+from algo import step as scalar
+from algo.batch import BatchModel
+from algo.config import AlgoConfig
+from algo.params import derive
+
+
+def add_parser(sub):
+    p = sub.add_parser("bench", help="measure samples per second of each backend (a benchmark)",
+                       description="Measure throughput in one run, side by side. Figures vary "
+                                   "with machine load; compare ratios, not absolutes.")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--instances", type=int, default=1024, help="batch size (default 1024)")
+    p.set_defaults(func=run)
+
+
+def _inputs(p, n, t, seed=1):
+    """Realistic codes: a mid-scale voltage and current swinging with the perturbation, plus noise."""
+    rng = np.random.default_rng(seed)
+    ph = 2 * np.pi * np.arange(t) / p.period
+    v = 0.7 * p.adc_max + 0.002 * p.adc_max * np.sin(ph) + rng.normal(0, 1, (n, t))
+    i = 0.25 * p.adc_max + 0.02 * p.adc_max * np.sin(ph - 0.1) + rng.normal(0, 1, (n, t))
+    return (np.clip(v, 0, p.adc_max).astype(np.uint16), np.clip(i, 0, p.adc_max).astype(np.uint16))
+
+
+def _rate(fn, samples):
+    t0 = time.perf_counter()
+    fn()
+    return samples / (time.perf_counter() - t0)
+
+
+def measure(n=1024):
+    """Return the throughput figures (samples per second) as a dict."""
+    from c_ref.binding import CBatch
+    p = derive(AlgoConfig())
+    out = {}
+    v, i = _inputs(p, n, 4096)
+    c = CBatch([p] * n)
+    out["c_batch_samples_per_s"] = _rate(lambda: c.run(v, i), v.size)
+    v1, i1 = v[0].tolist(), i[0].tolist()
+    s = scalar.init(p)
+    out["model_samples_per_s"] = _rate(lambda: [scalar.step(p, s, a, b) for a, b in zip(v1, i1)],
+                                       len(v1))
+    bm = BatchModel([p] * n)
+    out["model_batch_samples_per_s"] = _rate(lambda: bm.run(v[:, :512], i[:, :512]), n * 512)
+    return out
+
+
+def run(args):
+    if args.instances < 1:
+        from harness.errors import InputError
+        raise InputError(f"--instances = {args.instances}: must be at least 1")
+    figures = measure(args.instances)
+    if args.json:
+        print(json.dumps(figures))
+    else:
+        for key, value in figures.items():
+            print(f"{key:32s} {value:14,.0f}")
+    return 0
