@@ -1,0 +1,46 @@
+"""A batch of scenarios run in lockstep: plant, ADC, command DAC and fault schedule together."""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from harness.plant import Plant
+from harness.sensing import Adc, Dac
+
+
+@dataclass
+class Batch:
+    """Everything the closed loop needs for B scenarios sharing one sample rate."""
+
+    scenarios: list
+    plant: Plant
+    adc: Adc
+    dac: Dac
+
+    def reset(self):
+        """Reset the plant per each scenario's ``run.start`` (steady at target_v, or cold).
+
+        Scenarios of one batch are reset together, so they must agree on ``run.start``.
+        Returns the Observation at t = 0.
+        """
+        starts = {s.run.start for s in self.scenarios}
+        if len(starts) != 1:
+            raise ValueError(f"scenarios in one batch must share run.start, got {sorted(starts)}")
+        return self.plant.reset_steady() if starts.pop() == "steady" else self.plant.reset_cold()
+
+    def sample(self, obs):
+        """ADC codes (v_code, i_code), int64 arrays (B,), for Observation ``obs``, with stuck-ADC faults."""
+        stuck_v, stuck_i = self.plant.faults.stuck_codes(obs.t_s)
+        return self.adc.convert(obs.v_supply_v, obs.i_supply_a, stuck_v, stuck_i)
+
+    def step_code(self, dac_code):
+        """Apply DAC codes (B,) for one sample; returns the Observation at its end."""
+        return self.plant.step(self.dac.to_volts(np.asarray(dac_code)))
+
+
+def build_batch(scenarios):
+    """Build a Batch from a list of harness.specs.Scenario (same sample rate)."""
+    scenarios = list(scenarios)
+    return Batch(scenarios=scenarios, plant=Plant(scenarios),
+                 adc=Adc([s.sensing for s in scenarios], [s.run.seed for s in scenarios]),
+                 dac=Dac([s.supply for s in scenarios]))
