@@ -1,0 +1,163 @@
+"""Run functions of a bare Cortex-M ELF in the unicorn emulator and count the instructions they execute.
+
+Instructions are counted per translated block (a block hook plus capstone),
+so instructions skipped inside an IT block still count, as they take an
+issue slot on the core. Struct layouts come from the ELF's DWARF, so the
+params and state blocks are packed exactly as the target compiler laid them out.
+"""
+import struct
+
+from capstone import CS_ARCH_ARM, CS_MODE_MCLASS, CS_MODE_THUMB, Cs
+from elftools.elf.elffile import ELFFile
+from unicorn import UC_ARCH_ARM, UC_HOOK_BLOCK, UC_MODE_MCLASS, UC_MODE_THUMB, Uc
+from unicorn import arm_const as A
+
+FLASH_BASE, FLASH_SIZE = 0x00000000, 0x00400000
+RAM_BASE, RAM_SIZE = 0x20000000, 0x00100000
+RETURN_ADDR = 0x003FF000          # holds a 'b .' the called function returns to
+PARAMS_ADDR = RAM_BASE + 0x10000
+STATE_ADDR = RAM_BASE + 0x20000
+STACK_PAINT = 0xA5
+STACK_WINDOW = 0x4000             # bytes below the stack top checked for use
+
+# ARMv6-M has no exact M0+ model in unicorn; the M0 core runs the same ISA (Thumb-1 + a few
+# Thumb-2 system instructions, no divider), which is what decides the instruction count.
+_CPU_MODELS = {"m4": A.UC_CPU_ARM_CORTEX_M4, "m0plus": A.UC_CPU_ARM_CORTEX_M0}
+_INT_FORMATS = {(1, False): "B", (1, True): "b", (2, False): "H", (2, True): "h",
+                (4, False): "I", (4, True): "i"}
+
+
+def _base_type(die):
+    while die.tag in ("DW_TAG_typedef", "DW_TAG_const_type", "DW_TAG_volatile_type"):
+        die = die.get_DIE_from_attribute("DW_AT_type")
+    return die
+
+
+def struct_layout(elf, typedef_name):
+    """Layout of a C struct typedef: ``(size, {field: (offset, struct-format, count)})``."""
+    for cu in elf.get_dwarf_info().iter_CUs():
+        for die in cu.iter_DIEs():
+            name = die.attributes.get("DW_AT_name")
+            if die.tag != "DW_TAG_typedef" or name is None or name.value.decode() != typedef_name:
+                continue
+            st = _base_type(die)
+            fields = {}
+            for m in st.iter_children():
+                if m.tag != "DW_TAG_member":
+                    continue
+                t = _base_type(m.get_DIE_from_attribute("DW_AT_type"))
+                count = 1
+                if t.tag == "DW_TAG_array_type":
+                    sub = next(t.iter_children())
+                    count = sub.attributes["DW_AT_upper_bound"].value + 1
+                    t = _base_type(t.get_DIE_from_attribute("DW_AT_type"))
+                signed = t.attributes["DW_AT_encoding"].value in (5, 6)  # DW_ATE_signed(_char)
+                fmt = _INT_FORMATS[(t.attributes["DW_AT_byte_size"].value, signed)]
+                fields[m.attributes["DW_AT_name"].value.decode()] = (
+                    m.attributes["DW_AT_data_member_location"].value, fmt, count)
+            return st.attributes["DW_AT_byte_size"].value, fields
+    raise KeyError(f"{typedef_name} not found in the DWARF of the image (build with -g)")
+
+
+def pack(layout, values):
+    """Bytes of a struct from ``{field: int or sequence}``; fields not given are zero."""
+    size, fields = layout
+    buf = bytearray(size)
+    for name, (off, fmt, count) in fields.items():
+        v = values.get(name, 0)
+        v = list(v) if count > 1 else [v]
+        struct.pack_into(f"<{count}{fmt}", buf, off, *v)
+    return bytes(buf)
+
+
+def unpack(layout, data):
+    """``{field: int}`` from a struct's bytes (array fields as tuples)."""
+    _, fields = layout
+    out = {}
+    for name, (off, fmt, count) in fields.items():
+        v = struct.unpack_from(f"<{count}{fmt}", data, off)
+        out[name] = v if count > 1 else v[0]
+    return out
+
+
+class CortexM:
+    """A bare ELF loaded into an emulated Cortex-M, ready to call its functions.
+
+    Parameters
+    ----------
+    elf_path : str
+        Image linked for the FLASH/RAM map of c_ref/cortexm/cortexm.ld, with DWARF.
+    cpu : str
+        ``"m4"`` or ``"m0plus"``.
+    """
+
+    def __init__(self, elf_path, cpu):
+        self.uc = Uc(UC_ARCH_ARM, UC_MODE_THUMB | UC_MODE_MCLASS)
+        self.uc.ctl_set_cpu_model(_CPU_MODELS[cpu])
+        self.uc.mem_map(FLASH_BASE, FLASH_SIZE)
+        self.uc.mem_map(RAM_BASE, RAM_SIZE)
+        self.symbols = {}
+        with open(elf_path, "rb") as f:
+            elf = ELFFile(f)
+            for seg in elf.iter_segments():
+                if seg["p_type"] == "PT_LOAD" and seg["p_filesz"]:
+                    self.uc.mem_write(seg["p_vaddr"], seg.data())
+            for sym in elf.get_section_by_name(".symtab").iter_symbols():
+                if sym["st_info"]["type"] == "STT_FUNC":
+                    self.symbols[sym.name] = (sym["st_value"] & ~1, sym["st_size"])
+            self.params_layout = struct_layout(elf, "ld_params_t")
+            self.state_layout = struct_layout(elf, "ld_state_t")
+        self.uc.mem_write(RETURN_ADDR, b"\xfe\xe7")  # b .
+        self.uc.mem_write(RAM_BASE + RAM_SIZE - STACK_WINDOW, bytes([STACK_PAINT]) * STACK_WINDOW)
+        self._cs = Cs(CS_ARCH_ARM, CS_MODE_THUMB | CS_MODE_MCLASS)
+        self._block_len = {}
+        self.count = 0
+        self.by_function = {}
+        self._ranges = sorted((a, a + s, n) for n, (a, s) in self.symbols.items() if s)
+        self.uc.hook_add(UC_HOOK_BLOCK, self._on_block)
+
+    def _on_block(self, uc, address, size, _user):
+        key = (address, size)
+        n = self._block_len.get(key)
+        if n is None:
+            n = sum(1 for _ in self._cs.disasm_lite(bytes(uc.mem_read(address, size)), address))
+            self._block_len[key] = n
+        self.count += n
+        fn = self.function_at(address)
+        self.by_function[fn] = self.by_function.get(fn, 0) + n
+
+    def function_at(self, address):
+        """Name of the function whose code holds ``address`` (``"?"`` if none)."""
+        for lo, hi, name in self._ranges:
+            if lo <= address < hi:
+                return name
+        return "?"
+
+    def call(self, name, *args):
+        """Call ``name(args...)`` (up to four word arguments); return ``(r0, instructions)``."""
+        regs = (A.UC_ARM_REG_R0, A.UC_ARM_REG_R1, A.UC_ARM_REG_R2, A.UC_ARM_REG_R3)
+        for reg, val in zip(regs, args):
+            self.uc.reg_write(reg, val & 0xFFFFFFFF)
+        self.uc.reg_write(A.UC_ARM_REG_SP, RAM_BASE + RAM_SIZE)
+        self.uc.reg_write(A.UC_ARM_REG_LR, RETURN_ADDR | 1)
+        before = self.count
+        self.uc.emu_start(self.symbols[name][0] | 1, RETURN_ADDR, count=1_000_000)
+        if self.uc.reg_read(A.UC_ARM_REG_PC) & ~1 != RETURN_ADDR:
+            raise RuntimeError(f"{name} did not return within the instruction budget")
+        return self.uc.reg_read(A.UC_ARM_REG_R0), self.count - before
+
+    def stack_high_water(self):
+        """Deepest stack use so far, bytes (from the painted region below the stack top)."""
+        data = bytes(self.uc.mem_read(RAM_BASE + RAM_SIZE - STACK_WINDOW, STACK_WINDOW))
+        untouched = len(data) - len(data.lstrip(bytes([STACK_PAINT])))
+        return STACK_WINDOW - untouched
+
+    def write_params(self, values):
+        """Place a params block (``{field: value}``) in RAM; return its address."""
+        self.uc.mem_write(PARAMS_ADDR, pack(self.params_layout, values))
+        return PARAMS_ADDR
+
+    def read_state(self):
+        """The state block at ``STATE_ADDR`` as ``{field: int}``."""
+        return unpack(self.state_layout, bytes(self.uc.mem_read(STATE_ADDR,
+                                                                self.state_layout[0])))
