@@ -79,6 +79,8 @@ class Plant:
 
         self.cables = [CableResistance(s.cable.resistance_ohm, s.cable.material, s.cable.temperature_c,
                                        s.cable.temperature_end_c, s.run.duration_s) for s in self.scenarios]
+        self._ramps = np.array([c.temperature_end_c != c.temperature_c for c in self.cables])
+        self._r_const = np.array([c.r_start_ohm for c in self.cables])
         self.l_h = arr(lambda s: s.cable.inductance_h)
         self.c_f = arr(lambda s: s.load_end.capacitance_f)
         self.esr_ohm = arr(lambda s: s.load_end.esr_ohm)
@@ -96,7 +98,9 @@ class Plant:
     def _wanted(self, t_s, v_load):
         """Resistance, capacitance, ESR, load companion and open flag wanted at ``t_s``."""
         active = self.faults.active(t_s)
-        r = np.array([c.r_ohm(t_s) for c in self.cables], dtype=float)
+        r = self._r_const.copy()
+        for b in np.flatnonzero(self._ramps):
+            r[b] = self.cables[b].r_ohm(t_s)
         g, i_n = self.loads.companion(t_s, v_load)
         short = active["load_short"]
         g = np.where(short, 1.0 / LOAD_SHORT_OHM, g)
