@@ -14,7 +14,14 @@ conductance of the load) and the load's current source.
 """
 
 import numpy as np
-from scipy.linalg import expm
+
+#: Pade(13) numerator coefficients and the 1-norm bound up to which it meets double precision
+#: (Higham, "The scaling and squaring method for the matrix exponential revisited", SIAM J.
+#: Matrix Anal. Appl. 26(4), 2005, Table 2.3 and Algorithm 2.3).
+_PADE13 = (64764752532480000.0, 32382376266240000.0, 7771770303897600.0, 1187353796428800.0,
+           129060195264000.0, 10559470521600.0, 670442572800.0, 33522128640.0, 1323241920.0,
+           40840800.0, 960960.0, 16380.0, 182.0, 1.0)
+_THETA13 = 5.371920351148152
 
 N_STATE = 3
 N_INPUT = 3
@@ -79,6 +86,40 @@ def continuous_model(r, l, c, esr, g, omega, is_open=False, current_mode=False):
     return m[:, :N_STATE], m[:, N_STATE:], y[:, :N_STATE], y[:, N_STATE:]
 
 
+def expm_batch(m):
+    """Matrix exponential of a stack of small matrices, Pade(13) with scaling and squaring.
+
+    Same algorithm as scipy.linalg.expm (Higham 2005) written with numpy only: on small
+    matrices scipy's own LAPACK calls can stall for milliseconds in thread start-up when the
+    machine is busy, which a per-sample refresh cannot afford. tests/test_plant.py checks it
+    against scipy.linalg.expm.
+
+    Parameters
+    ----------
+    m : ndarray, shape (k, n, n)
+
+    Returns
+    -------
+    ndarray, shape (k, n, n)
+    """
+    m = np.asarray(m, dtype=float)
+    norm = np.abs(m).sum(axis=1).max(axis=1)
+    s = np.maximum(0, np.ceil(np.log2(np.maximum(norm, 1e-300) / _THETA13))).astype(int)
+    a = m / (2.0 ** s)[:, None, None]
+    b = _PADE13
+    eye = np.broadcast_to(np.eye(m.shape[1]), m.shape)
+    a2 = a @ a
+    a4 = a2 @ a2
+    a6 = a4 @ a2
+    u = a @ (a6 @ (b[13] * a6 + b[11] * a4 + b[9] * a2) + b[7] * a6 + b[5] * a4 + b[3] * a2 + b[1] * eye)
+    v = a6 @ (b[12] * a6 + b[10] * a4 + b[8] * a2) + b[6] * a6 + b[4] * a4 + b[2] * a2 + b[0] * eye
+    e = np.linalg.solve(v - u, v + u)
+    for j in range(int(s.max(initial=0))):
+        sel = s > j
+        e[sel] = e[sel] @ e[sel]
+    return e
+
+
 def discretise(a, b, dt_s):
     """Exact zero-order-hold discretisation of a batch of systems.
 
@@ -102,7 +143,7 @@ def discretise(a, b, dt_s):
     aug = np.zeros((k, n + m, n + m))
     aug[:, :n, :n] = a * dt_s
     aug[:, :n, n:] = b * dt_s
-    e = expm(aug)
+    e = expm_batch(aug)
     return e[:, :n, :n], e[:, :n, n:]
 
 
