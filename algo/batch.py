@@ -181,6 +181,10 @@ class BatchModel:
         for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient"):
             getattr(s, name)[k] = 0
 
+    def field(self, name):
+        """Live array of state field ``name`` across instances."""
+        return getattr(self.s, name)
+
     def state(self, k=0):
         """Every state field of instance ``k`` as a dict of ints."""
         return {name: int(getattr(self.s, name)[k]) for name in STATE_FIELDS}

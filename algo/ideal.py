@@ -160,6 +160,10 @@ class IdealBatch:
         for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient"):
             getattr(self, name)[k] = 0.0
 
+    def field(self, name):
+        """Live array of state field ``name`` across instances."""
+        return getattr(self, name)
+
     def state(self, k=0):
         return {name: float(getattr(self, name)[k]) for name in STATE_FIELDS}
 

@@ -101,6 +101,10 @@ class CBatch:
                           ffi.from_buffer("uint16_t[]", i), t, ffi.from_buffer("uint16_t[]", out))
         return out
 
+    def field(self, name):
+        """Live view of state field ``name`` across instances."""
+        return self._states[name]
+
     def state(self, k=0):
         """Every state field of instance ``k`` as a dict of ints."""
         row = self._states[k]

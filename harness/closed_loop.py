@@ -1,0 +1,107 @@
+"""Closed loop: plant, ADC, algorithm (or a baseline) and command DAC, many scenarios in lockstep."""
+from dataclasses import dataclass
+
+import numpy as np
+
+from harness import backends
+from harness.algo_setup import algo_config
+from harness.baselines import DifferenceEstimator, FixedCompensation, NoCompensation
+from harness.batch import build_batch
+from harness.cable import temperature_scale
+
+COMPENSATIONS = ("linedrop", "none", "fixed", "difference")
+CHANNELS = ("v_supply_v", "i_supply_a", "v_load_v", "command_v", "r_estimate_ohm", "correction_v")
+
+
+@dataclass
+class Run:
+    """Recorded closed-loop run: ``t_s`` (T,), each channel (T, B) float32, and the inputs."""
+    t_s: np.ndarray
+    channels: dict
+    scenarios: list
+    cfgs: list
+    r_cable_ohm: np.ndarray   # true loop resistance at the end of the run, (B,)
+    backend: str
+    compensation: str
+
+
+def _units(compensator, cfgs, fixed_point):
+    """Per-instance factors turning state r_est into ohm and corr into volts."""
+    r_unit = np.array([c.v_full_scale_v / c.i_full_scale_a for c in cfgs])
+    corr_unit = np.array([c.dac_full_scale_v / (1 << c.dac_bits) for c in cfgs])
+    if fixed_point:
+        r_unit = r_unit / np.array([1 << c.r_frac_bits for c in cfgs])
+        corr_unit = corr_unit / np.array([1 << c.corr_frac_bits for c in cfgs])
+    return r_unit, corr_unit
+
+
+def _r_at_20c(scenario):
+    """Loop resistance the scenario's cable has at 20 degC (what a fixed setting was tuned to)."""
+    c = scenario.cable
+    return c.resistance_ohm * temperature_scale(c.material, c.temperature_c, 20.0)
+
+
+def make_compensator(compensation, backend, cfgs, scenarios):
+    """The algorithm (on ``backend``) or a baseline, for ``len(cfgs)`` instances."""
+    if compensation == "linedrop":
+        return backends.make(backend, cfgs), backend != "ideal"
+    if compensation == "none":
+        return NoCompensation(cfgs), False
+    if compensation == "fixed":
+        return FixedCompensation(cfgs, [_r_at_20c(s) for s in scenarios]), False
+    if compensation == "difference":
+        return DifferenceEstimator(cfgs), False
+    raise ValueError(f"unknown compensation {compensation!r}; choose from {COMPENSATIONS}")
+
+
+def simulate(scenarios, backend="model", compensation="linedrop", overrides=None, progress=False,
+             channels=CHANNELS):
+    """Run scenarios (same sample rate, duration and start) in closed loop.
+
+    Parameters
+    ----------
+    scenarios : list of harness.specs.Scenario
+    backend : {"model", "c", "ideal"}
+    compensation : {"linedrop", "none", "fixed", "difference"}
+    overrides : dict, optional
+        Algorithm settings that replace the scenario's own.
+    progress : bool
+        Show a progress bar.
+    channels : sequence of str
+        Channels to record (all by default).
+    """
+    durations = {s.run.duration_s for s in scenarios}
+    if len(durations) != 1:
+        raise ValueError(f"scenarios in one batch must share run.duration_s, got {sorted(durations)}")
+    cfgs = [algo_config(s, overrides) for s in scenarios]
+    batch = build_batch(scenarios)
+    comp, fixed_point = make_compensator(compensation, backend, cfgs, scenarios)
+    r_unit, corr_unit = _units(comp, cfgs, fixed_point)
+    v_per_code, code_max = batch.dac.v_per_code, batch.dac.code_max
+    n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
+    rec = {name: np.empty((n_t, len(scenarios)), dtype=np.float32) for name in channels}
+    obs = batch.reset()
+    cmd = np.asarray(comp.field("cmd"), dtype=np.float64).copy()
+    steps = range(n_t)
+    if progress:
+        from tqdm import tqdm
+        steps = tqdm(steps, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
+                     leave=False)
+    for t in steps:
+        command_v = np.clip(cmd, 0, code_max) * v_per_code
+        obs = batch.plant.step(command_v)
+        v_code, i_code = batch.sample(obs)
+        cmd = comp.step(v_code, i_code)
+        row = {"v_supply_v": obs.v_supply_v, "i_supply_a": obs.i_supply_a, "v_load_v": obs.v_load_v,
+               "command_v": command_v}
+        for name in channels:
+            if name == "r_estimate_ohm":
+                rec[name][t] = comp.field("r_est") * r_unit
+            elif name == "correction_v":
+                rec[name][t] = comp.field("corr") * corr_unit
+            else:
+                rec[name][t] = row[name]
+    t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
+    return Run(t_s=t_s, channels=rec, scenarios=list(scenarios), cfgs=cfgs,
+               r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend=backend,
+               compensation=compensation)
