@@ -1,0 +1,57 @@
+"""Finding system tools for tests: skip when missing, or fail when LINEDROP_REQUIRE_TOOLS=1."""
+import functools
+import os
+import shutil
+import subprocess
+import tempfile
+
+import pytest
+
+_PROBE = "int main(void) { return 0; }\n"
+
+
+def tools_required():
+    """True when missing tools must fail the run instead of skipping tests."""
+    return os.environ.get("LINEDROP_REQUIRE_TOOLS", "") == "1"
+
+
+@functools.lru_cache(maxsize=None)
+def _probe(name):
+    """Return ``None`` if tool ``name`` works here, else a reason string."""
+    gcc = shutil.which("gcc")
+    if name == "gcc":
+        return None if gcc else "gcc not found on PATH"
+    flags = {"gcc-m32": ["-m32"],
+             "gcc-sanitizers": ["-fsanitize=undefined,address", "-fno-sanitize-recover=all"]}
+    if name not in flags:
+        raise ValueError(f"unknown tool {name!r}")
+    if not gcc:
+        return "gcc not found on PATH"
+    with tempfile.TemporaryDirectory() as tmp:
+        src, exe = os.path.join(tmp, "probe.c"), os.path.join(tmp, "probe")
+        with open(src, "w") as f:
+            f.write(_PROBE)
+        build = subprocess.run([gcc, *flags[name], src, "-o", exe], capture_output=True, text=True)
+        if build.returncode != 0:
+            hint = " (install gcc-multilib)" if name == "gcc-m32" else ""
+            return f"{name} cannot build a program{hint}: {build.stderr.strip()[:200]}"
+        run = subprocess.run([exe], capture_output=True, text=True)
+        if run.returncode != 0:
+            return f"{name} builds but the program does not run: {run.stderr.strip()[:200]}"
+    return None
+
+
+def require_tool(name):
+    """Skip the calling test if ``name`` is unavailable; fail instead under LINEDROP_REQUIRE_TOOLS=1.
+
+    Parameters
+    ----------
+    name : str
+        ``"gcc"``, ``"gcc-m32"`` (32-bit multilib) or ``"gcc-sanitizers"`` (UBSan + ASan).
+    """
+    reason = _probe(name)
+    if reason is None:
+        return
+    if tools_required():
+        pytest.fail(f"LINEDROP_REQUIRE_TOOLS=1 but {reason}")
+    pytest.skip(reason)
