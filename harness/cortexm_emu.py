@@ -5,12 +5,12 @@ so instructions skipped inside an IT block still count, as they take an
 issue slot on the core. Struct layouts come from the ELF's DWARF, so the
 params and state blocks are packed exactly as the target compiler laid them out.
 """
-import struct
-
 from capstone import CS_ARCH_ARM, CS_MODE_MCLASS, CS_MODE_THUMB, Cs
 from elftools.elf.elffile import ELFFile
 from unicorn import UC_ARCH_ARM, UC_HOOK_BLOCK, UC_MODE_MCLASS, UC_MODE_THUMB, Uc
 from unicorn import arm_const as A
+
+from c_ref.cortexm.elf_layout import pack, struct_layout, unpack
 
 FLASH_BASE, FLASH_SIZE = 0x00000000, 0x00400000
 RAM_BASE, RAM_SIZE = 0x20000000, 0x00100000
@@ -23,61 +23,6 @@ STACK_WINDOW = 0x4000             # bytes below the stack top checked for use
 # ARMv6-M has no exact M0+ model in unicorn; the M0 core runs the same ISA (Thumb-1 + a few
 # Thumb-2 system instructions, no divider), which is what decides the instruction count.
 _CPU_MODELS = {"m4": A.UC_CPU_ARM_CORTEX_M4, "m0plus": A.UC_CPU_ARM_CORTEX_M0}
-_INT_FORMATS = {(1, False): "B", (1, True): "b", (2, False): "H", (2, True): "h",
-                (4, False): "I", (4, True): "i"}
-
-
-def _base_type(die):
-    while die.tag in ("DW_TAG_typedef", "DW_TAG_const_type", "DW_TAG_volatile_type"):
-        die = die.get_DIE_from_attribute("DW_AT_type")
-    return die
-
-
-def struct_layout(elf, typedef_name):
-    """Layout of a C struct typedef: ``(size, {field: (offset, struct-format, count)})``."""
-    for cu in elf.get_dwarf_info().iter_CUs():
-        for die in cu.iter_DIEs():
-            name = die.attributes.get("DW_AT_name")
-            if die.tag != "DW_TAG_typedef" or name is None or name.value.decode() != typedef_name:
-                continue
-            st = _base_type(die)
-            fields = {}
-            for m in st.iter_children():
-                if m.tag != "DW_TAG_member":
-                    continue
-                t = _base_type(m.get_DIE_from_attribute("DW_AT_type"))
-                count = 1
-                if t.tag == "DW_TAG_array_type":
-                    sub = next(t.iter_children())
-                    count = sub.attributes["DW_AT_upper_bound"].value + 1
-                    t = _base_type(t.get_DIE_from_attribute("DW_AT_type"))
-                signed = t.attributes["DW_AT_encoding"].value in (5, 6)  # DW_ATE_signed(_char)
-                fmt = _INT_FORMATS[(t.attributes["DW_AT_byte_size"].value, signed)]
-                fields[m.attributes["DW_AT_name"].value.decode()] = (
-                    m.attributes["DW_AT_data_member_location"].value, fmt, count)
-            return st.attributes["DW_AT_byte_size"].value, fields
-    raise KeyError(f"{typedef_name} not found in the DWARF of the image (build with -g)")
-
-
-def pack(layout, values):
-    """Bytes of a struct from ``{field: int or sequence}``; fields not given are zero."""
-    size, fields = layout
-    buf = bytearray(size)
-    for name, (off, fmt, count) in fields.items():
-        v = values.get(name, 0)
-        v = list(v) if count > 1 else [v]
-        struct.pack_into(f"<{count}{fmt}", buf, off, *v)
-    return bytes(buf)
-
-
-def unpack(layout, data):
-    """``{field: int}`` from a struct's bytes (array fields as tuples)."""
-    _, fields = layout
-    out = {}
-    for name, (off, fmt, count) in fields.items():
-        v = struct.unpack_from(f"<{count}{fmt}", data, off)
-        out[name] = v if count > 1 else v[0]
-    return out
 
 
 class CortexM:
