@@ -1,7 +1,9 @@
 """Cortex-M port: strict warning-free cross-builds, and bit-exact vectors on an emulated Cortex-M4 (QEMU).
 
-Every command and every state field after every step on the target must
-equal the Python model's, at zero tolerance. Tests skip when the ARM
+The vectors go through the text vector driver (c_ref/tools/replay_main.c,
+c_ref/textvec.py) built for the target. Every command and every state field
+after every operation on the target must equal the Python model's, at zero
+tolerance. Tests skip when the ARM
 toolchain or QEMU is missing, or fail under LINEDROP_REQUIRE_TOOLS=1.
 """
 import math
@@ -12,8 +14,8 @@ import pytest
 
 from algo import step as model
 from algo.config import AlgoConfig
-from algo.params import PARAM_FIELDS, derive
-from algo.state import STATE_FIELDS
+from algo.params import derive
+from c_ref import textvec
 from c_ref.cortexm import build, qemu_run
 from c_ref.fuzz.gen_params_corpus import configs
 from harness.firmware_cost import input_run
@@ -70,44 +72,44 @@ def _closed_loop(p, cfg, n):
 
 
 def golden_cases():
-    """Seeded vector set: ``(name, params, samples)``.
+    """Seeded vector set: ``(name, params, operations)``.
 
-    Default settings in closed loop through a load step and with a purely reactive
-    response; every code 0..65535 at random and
-    at the extremes (clamps, saturation, the estimator's bad-window paths) under the
+    Default settings in closed loop through a load step, then a reset and
+    re-convergence, and with a purely reactive response; every code 0..65535 at random
+    and at the extremes (clamps, saturation, the estimator's bad-window paths) under the
     default, the widest and the narrowest word lengths and five seeded valid blocks.
     """
     rng = random.Random(SEED)
     cfg = AlgoConfig()
     p = derive(cfg)
-    cases = [("defaults_closed_loop_load_step", p, _closed_loop(p, cfg, 12 * p.window))]
+    loop = _closed_loop(p, cfg, 12 * p.window)
+    cases = [("defaults_closed_loop_load_step_reset", p,
+              [("s", v, i) for v, i in loop] + [("r",)] + [("s", v, i) for v, i in loop[:3000]]
+              + [("i",)] + [("s", v, i) for v, i in loop[:300]])]
     # Capacitor missing: the voltage swing leads the current swing by a quarter period.
     ph = [2 * math.pi * n / p.period for n in range(4 * p.window)]
     cases.append(("defaults_quadrature_response", p,
-                  [(2000 + round(200 * math.cos(x)), 800 + round(40 * math.sin(x))) for x in ph]))
+                  [("s", 2000 + round(200 * math.cos(x)), 800 + round(40 * math.sin(x)))
+                   for x in ph]))
     extremes = (0, 1, 0x7FFF, 0x8000, 0xFFFE, 0xFFFF)
     for k, (_, pk) in enumerate(configs()[:8]):
         n = min(4 * pk.window, 4096) + 3
         cases.append((f"block{k}_random_codes", pk,
-                      [(rng.randrange(65536), rng.randrange(65536)) for _ in range(n)]))
+                      [("s", rng.randrange(65536), rng.randrange(65536)) for _ in range(n)]))
         cases.append((f"block{k}_extreme_codes", pk,
-                      [(rng.choice(extremes + (pk.adc_max,)), rng.choice(extremes + (pk.adc_max,)))
-                       for _ in range(n)]))
+                      [("s", rng.choice(extremes + (pk.adc_max,)),
+                        rng.choice(extremes + (pk.adc_max,))) for _ in range(n)]))
     return cases
 
 
 @pytest.fixture(scope="module")
 def golden():
+    """The vector text, the case names per output row, and the model's rows."""
     cases = golden_cases()
-    expected = []
-    for _, p, samples in cases:
-        s = model.init(p)
-        states = [{f: getattr(s, f) for f in STATE_FIELDS}]
-        for v, i in samples:
-            model.step(p, s, v, i)
-            states.append({f: getattr(s, f) for f in STATE_FIELDS})
-        expected.append(states)
-    return cases, expected
+    names = [name for name, _, ops in cases for _ in ops]
+    text = textvec.dumps([(p, ops) for _, p, ops in cases],
+                         comment=f"tests/test_cortexm.py golden_cases(), seed {SEED}")
+    return text, names, textvec.model_output([(p, ops) for _, p, ops in cases])
 
 
 @pytest.mark.parametrize("opt", OPTS)
@@ -115,20 +117,17 @@ def test_cortex_m4_in_qemu_matches_the_model_bit_for_bit_on_every_state_field(go
                                                                               tmp_path):
     _need(build.toolchain_missing())
     _need(build.qemu_missing())
-    cases, expected = golden
-    elf = qemu_run.build_image(opt, str(tmp_path))
-    got = qemu_run.run_vectors(
-        elf, [({f: getattr(p, f) for f in PARAM_FIELDS}, samples) for _, p, samples in cases],
-        str(tmp_path))
-    for (name, _, _), want_states, got_states in zip(cases, expected, got):
-        assert len(got_states) == len(want_states), name
-        for k, (want, have) in enumerate(zip(want_states, got_states)):
-            diff = {f: (have[f], want[f]) for f in STATE_FIELDS if have[f] != want[f]}
-            assert not diff and have["reserved"] == 0, f"{name}, after step {k}: {diff}"
+    _need(qemu_run.driver_missing())
+    text, names, want = golden
+    got = textvec.parse_output(qemu_run.run_text(qemu_run.build_image(opt, str(tmp_path)), text,
+                                                 str(tmp_path)))
+    assert len(got) == len(want)
+    for k, ((cmd_c, st_c), (cmd_m, st_m), name) in enumerate(zip(got, want, names)):
+        diff = {f: (st_c[f], st_m[f]) for f in st_m if st_c[f] != st_m[f]}
+        assert cmd_c == cmd_m and not diff, f"{name}, row {k}: cmd {cmd_c} vs {cmd_m}, {diff}"
 
 
 def test_golden_cases_reach_valid_estimates_and_every_fault_status(golden):
     """The vector set is not vacuous: the target is checked on each window outcome."""
-    _, expected = golden
-    statuses = {st["status"] for states in expected for st in states}
+    statuses = {st["status"] for _, st in golden[2]}
     assert statuses >= {1, 2, 3, 4, 5}, statuses

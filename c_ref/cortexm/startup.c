@@ -1,18 +1,25 @@
 /*
  * Minimal Cortex-M start-up for linedrop's test images: a vector table with
  * the initial stack pointer and reset handler, .data copy, .bss clear,
- * newlib semihosting set-up, then main() and exit() through semihosting.
+ * newlib semihosting set-up, then main(argc, argv) and exit() through
+ * semihosting. The arguments come from the host's semihosting command line
+ * (QEMU: -semihosting-config enable=on,arg=prog,arg=file).
  *
  * Works unchanged on ARMv6-M (Cortex-M0/M0+) and ARMv7E-M (Cortex-M4).
  */
 #include <stdint.h>
+#include <stddef.h>
 #include <stdlib.h>
 
 extern uint32_t __data_load[], __data_start[], __data_end[];
 extern uint32_t __bss_start__[], __bss_end__[];
 extern uint32_t __stack_top[];
 
-int main(void);
+#define LD_ARGV_MAX 8
+#define LD_CMDLINE_MAX 256
+#define LD_SYS_GET_CMDLINE 0x15
+
+int main(int argc, char **argv);
 void initialise_monitor_handles(void);
 void ld_reset_handler(void);
 void ld_fault_handler(void);
@@ -34,8 +41,48 @@ void ld_fault_handler(void)
     _Exit(70);
 }
 
+/* One semihosting call: operation in r0, parameter block in r1, result in r0. */
+static int ld_semihost(int op, void *arg)
+{
+    register int r0 __asm__("r0") = op;
+    register void *r1 __asm__("r1") = arg;
+    __asm__ volatile("bkpt 0xab" : "+r"(r0) : "r"(r1) : "memory");
+    return r0;
+}
+
+/* Split the host's command line at spaces into argv (no quoting). */
+static int ld_args(char **argv)
+{
+    static char line[LD_CMDLINE_MAX];
+    struct {
+        char *buf;
+        int len;
+    } block = {line, LD_CMDLINE_MAX - 1};
+    char *c = line;
+    int argc = 0;
+
+    if (ld_semihost(LD_SYS_GET_CMDLINE, &block) != 0) {
+        line[0] = '\0';
+    }
+    while (*c != '\0' && argc < LD_ARGV_MAX) {
+        while (*c == ' ') {
+            *c++ = '\0';
+        }
+        if (*c != '\0') {
+            argv[argc++] = c;
+        }
+        while (*c != '\0' && *c != ' ') {
+            c++;
+        }
+    }
+    argv[argc] = NULL;
+    return argc;
+}
+
 void ld_reset_handler(void)
 {
+    static char *argv[LD_ARGV_MAX + 1];
+    int argc;
     uint32_t *src = __data_load;
     uint32_t *dst;
 
@@ -46,7 +93,8 @@ void ld_reset_handler(void)
         *dst = 0u;
     }
     initialise_monitor_handles();
-    exit(main());
+    argc = ld_args(argv);
+    exit(main(argc, argv));
 }
 
 /* Initial SP, reset, NMI, HardFault, MemManage, BusFault, UsageFault. */
