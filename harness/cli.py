@@ -5,8 +5,9 @@ import sys
 from algo.config import ConfigError
 from harness.errors import InputError
 from harness import cmd_replay, cmd_bench
+from harness import cmd_design
 
-COMMANDS = [cmd_replay, cmd_bench]
+COMMANDS = [cmd_replay, cmd_bench, cmd_design]
 
 
 def build_parser():
