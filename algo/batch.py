@@ -171,7 +171,9 @@ class BatchModel:
         tgt = np.clip(tgt, 0, p.corr_max_q[k])
         holds = valid | (status == st.STATUS_TRANSIENT)
         s.corr_target[k] = np.where(holds, tgt, 0)
-        amp = _rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC)
+        amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC),
+                         s.pert_amp[k] >> 1)
+        amp = np.where(status == st.STATUS_LOW_SWING, s.pert_amp[k] << 1, amp)
         s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
         s.corr[k] = np.where(forced, 0, _step_toward(s.corr[k], s.corr_target[k], p.corr_shift[k]))
         s.r_est[k] = r_est

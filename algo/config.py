@@ -54,7 +54,7 @@ SETTINGS = {
     "fault_windows": Setting(6, 1, 1000, int, "windows without a valid estimate before the correction is forced to zero"),
     # Correction.
     "compensation": Setting(0.98, 0.0, 1.0, float, "fraction k of the estimated drop that is added"),
-    "smoothing_shift": Setting(2, 0, 8, int, "correction smoothing: each window moves it 2**-shift of the way"),
+    "smoothing_shift": Setting(2, 0, 12, int, "correction smoothing: each window moves it 2**-shift of the way"),
     "corr_frac_bits": Setting(4, 0, 8, int, "fraction bits of the correction state (DAC codes)"),
     "corr_max_v": Setting(1000.0, 0.0, 1000.0, float,
                           "largest correction, V (never more than max_v - target_v)"),

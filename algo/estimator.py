@@ -48,6 +48,21 @@ def drop_vq(r_q, isum, p):
     return sat_s32(rshift_round(r_q * isum, p.r_frac + p.window_log2 - DROP_FRAC))
 
 
+def next_pert_amp(p, s, status, drop_total):
+    """Perturbation amplitude for the next window (DAC codes, before the clamp).
+
+    A window without enough current swing doubles the amplitude, so a cable
+    longer than the floor was sized for still starts; otherwise the amplitude
+    is pert_fraction of the estimated drop, falling at most by half a window.
+
+    Scaling and overflow: pert_amp <= 32767, so doubling fits int32; drop
+    (Q DROP_FRAC, int32) times pert_gain_q (Q GAIN_FRAC, int32) is below 2**62.
+    """
+    if status == st.STATUS_LOW_SWING:
+        return s.pert_amp << 1
+    return max(rshift_round(drop_total * p.pert_gain_q, GAIN_FRAC + DROP_FRAC), s.pert_amp >> 1)
+
+
 def window_end(p, s):
     """Finish a window: classify, update estimate and correction, clear the sums.
 
@@ -72,8 +87,7 @@ def window_end(p, s):
                                          GAIN_FRAC + DROP_FRAC - p.corr_frac), 0, p.corr_max_q)
     else:
         s.corr_target = 0
-    s.pert_amp = sat(rshift_round(drop_total * p.pert_gain_q, GAIN_FRAC + DROP_FRAC),
-                     p.pert_min, p.pert_max)
+    s.pert_amp = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
     if s.bad_windows >= p.fault_windows:
         s.corr = 0
     else:

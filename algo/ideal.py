@@ -148,8 +148,9 @@ class IdealBatch:
         tgt = np.clip(np.maximum(r_est - self.esr[k], 0) * i_mean * self.corr_gain[k], 0,
                       self.corr_max[k])
         self.corr_target[k] = np.where(valid | (status == st.STATUS_TRANSIENT), tgt, 0.0)
-        self.pert_amp[k] = np.clip(r_est * i_mean * self.pert_gain[k], self.pert_min[k],
-                                   self.pert_max[k])
+        amp = np.maximum(r_est * i_mean * self.pert_gain[k], self.pert_amp[k] / 2)
+        amp = np.where(status == st.STATUS_LOW_SWING, self.pert_amp[k] * 2, amp)
+        self.pert_amp[k] = np.clip(amp, self.pert_min[k], self.pert_max[k])
         corr = self.corr[k]
         self.corr[k] = np.where(forced, 0.0, corr + (self.corr_target[k] - corr) * self.corr_g[k])
         self.r_raw[k] = r_raw

@@ -64,6 +64,27 @@ static int32_t ld_drop_vq(int32_t r_q, int32_t isum, const ld_params_t *p)
 }
 
 /*
+ * Perturbation amplitude for the next window (DAC codes, before the clamp).
+ * A window without enough current swing doubles it, so a cable longer than
+ * the floor was sized for still starts; otherwise it is pert_fraction of the
+ * estimated drop, falling at most by half a window.
+ * Scaling and overflow: pert_amp <= 32767, so doubling fits int32; a drop
+ * (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is below
+ * 2**62 before its shift.
+ */
+static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8_t status,
+                                int32_t drop_total)
+{
+    int64_t a, half;
+    if (status == LD_STATUS_LOW_SWING) {
+        return (int64_t)s->pert_amp * 2;
+    }
+    a = ld_rshift_round64((int64_t)drop_total * p->pert_gain_q, LD_GAIN_FRAC + LD_DROP_FRAC);
+    half = s->pert_amp >> 1;
+    return a > half ? a : half;
+}
+
+/*
  * Scaling and overflow: estimate arithmetic stays in int32 because r_raw is
  * clamped to [0, r_max_q] before it moves r_est in [0, r_max_q]; a drop
  * (Q LD_DROP_FRAC, int32) times a gain (Q LD_GAIN_FRAC, int32) is below 2**62
@@ -98,11 +119,8 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
     } else {
         s->corr_target = 0;
     }
-    {
-        int64_t a = ld_rshift_round64((int64_t)drop_total * p->pert_gain_q,
-                                      LD_GAIN_FRAC + LD_DROP_FRAC);
-        s->pert_amp = (int32_t)ld_sat64(a, p->pert_min, p->pert_max);
-    }
+    s->pert_amp = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
+                                    p->pert_min, p->pert_max);
     if (s->bad_windows >= p->fault_windows) {
         s->corr = 0;
     } else {

@@ -4,10 +4,10 @@ import sys
 
 from algo.config import ConfigError
 from harness.errors import InputError
-from harness import cmd_replay, cmd_bench
+from harness import cmd_bench, cmd_replay, cmd_simulate
 from harness import cmd_design
 
-COMMANDS = [cmd_replay, cmd_bench, cmd_design]
+COMMANDS = [cmd_simulate, cmd_replay, cmd_bench, cmd_design]
 
 
 def build_parser():
