@@ -1,0 +1,118 @@
+"""Scenario files: demo files load, and bad input gives one-line errors naming key and range."""
+
+from pathlib import Path
+
+import pytest
+
+from harness.batch import build_batch
+from harness.errors import InputError
+from harness.scenario import load_scenario
+
+SCENARIOS = Path(__file__).resolve().parents[1] / "harness" / "scenarios"
+
+BASE = """
+[supply]
+target_v = 24.0
+max_v = 30.0
+[cable]
+length_m = 100.0
+conductor_mm2 = 1.5
+[load_end]
+capacitance_f = 1e-3
+[load]
+kind = "constant_current"
+current_a = 1.0
+"""
+
+
+def _write(tmp_path, text, name="scenario.toml"):
+    path = tmp_path / name
+    path.write_text(text)
+    return path
+
+
+@pytest.mark.parametrize("name", ["demo_mast.toml", "garden_lamps.toml", "parking_camera.toml"])
+def test_demo_scenarios_load_and_build(name):
+    """The shipped demo files parse and build a plant (no outside source)."""
+    sc = load_scenario(SCENARIOS / name)
+    batch = build_batch([sc])
+    obs = batch.reset()
+    assert obs.v_supply_v.shape == (1,)
+
+
+def test_demo_mast_loop_resistance_from_gauge():
+    """Source: IEC 60028 copper 1/58 ohm mm^2/m at 20 degC, 0.00393 /degC; 2 x 150 m of 1.5 mm^2 at 2 degC."""
+    sc = load_scenario(SCENARIOS / "demo_mast.toml")
+    assert sc.cable.resistance_ohm == pytest.approx(300 / 58 / 1.5 * (1 + 0.00393 * (2 - 20)), rel=1e-12)
+
+
+def test_defaults_are_filled_in(tmp_path):
+    """Documented defaults (harness/SCENARIO_KEYS.md): 12-bit ADC at 32 kHz, steady start."""
+    sc = load_scenario(_write(tmp_path, BASE))
+    assert (sc.sensing.adc_bits, sc.sensing.sample_rate_hz, sc.run.start) == (12, 32000.0, "steady")
+    assert sc.load.cutoff_v == pytest.approx(6.0)
+
+
+@pytest.mark.parametrize("old, new, fragments", [
+    ("length_m = 100.0", "length_m = -3", ["cable.length_m = -3", "(0, 10000]"]),
+    ("capacitance_f = 1e-3", "capacitance_f = 0.0", ["load_end.capacitance_f = 0.0", "(0, 10]"]),
+    ("max_v = 30.0", "max_v = 30.0\nmin_v = 31.0", ["supply.min_v = 31.0", "supply.max_v = 30"]),
+    ("target_v = 24.0", "target_v = 35.0", ["supply.target_v = 35.0", "[0, 30]"]),
+    ("conductor_mm2 = 1.5", "conductor_mm2 = 1.5\nawg = 14", ["cable.awg", "not both"]),
+    ("conductor_mm2 = 1.5", "conductor_mm2 = \"thick\"", ["cable.conductor_mm2 = \"thick\"", "number"]),
+    ("length_m = 100.0", "length_m = 100.0\nlenght_m = 5.0", ["cable.lenght_m", "unknown key", "length_m"]),
+    ("current_a = 1.0", "power_w = 5.0", ["load.current_a", "missing"]),
+    ("current_a = 1.0", "current_a = 1.0\npower_w = 5.0", ["load.power_w", "unknown key"]),
+    ('kind = "constant_current"', 'kind = "motor"', ["load.kind = \"motor\"", "constant_power"]),
+    ("current_a = 1.0", "current_a = 1.0\nsteps = [[0.5, 2.0], [0.2, 1.0]]", ["load.steps[1][0] = 0.2", "(0.5, 1]"]),
+    ("current_a = 1.0", "current_a = 1.0\n[sensing]\nadc_bits = 12.5", ["sensing.adc_bits = 12.5", "[6, 24]"]),
+    ("current_a = 1.0", "current_a = 1.0\n[run]\nstart = \"warm\"", ["run.start = \"warm\"", "\"cold\""]),
+    ("current_a = 1.0", "current_a = 1.0\n[[fault]]\nkind = \"cap_open\"\nat_s = 0.5\nuntil_s = 0.2",
+     ["fault[0].until_s = 0.2", "> fault[0].at_s = 0.5"]),
+    ("current_a = 1.0", "current_a = 1.0\n[[fault]]\nkind = \"adc_stuck\"\nat_s = 0.1\nchannel = \"v\"\ncode = 4096",
+     ["fault[0].code = 4096", "[0, 4095]"]),
+    ('kind = "constant_current"\ncurrent_a = 1.0', 'kind = "constant_power"\npower_w = 70.0',
+     ["load.power_w = 70.0", "the most the cable can deliver"]),
+    ("[load_end]", "[load_edn]", ["load_edn", "unknown section"]),
+])
+def test_bad_values_give_one_line_error_naming_file_key_and_range(tmp_path, old, new, fragments):
+    """Brief's error format: ``file: key = value: allowed range`` on one line. Loop resistance
+    for the power check: 2 x 100 m of 1.5 mm^2 copper is 2.30 ohm, so at most 62.6 W."""
+    assert old in BASE
+    path = _write(tmp_path, BASE.replace(old, new))
+    with pytest.raises(InputError) as exc:
+        load_scenario(path)
+    msg = str(exc.value)
+    assert "\n" not in msg and msg.startswith(str(path) + ": ")
+    for frag in fragments:
+        assert frag in msg, msg
+
+
+def test_profile_csv_is_read_relative_to_scenario(tmp_path):
+    """Brief: profile_csv is relative to the scenario file, header t_s,current_a."""
+    (tmp_path / "p.csv").write_text("t_s,current_a\n0,1.0\n0.5,2.0\n")
+    sc = load_scenario(_write(tmp_path, BASE.replace("current_a = 1.0", 'profile_csv = "p.csv"')))
+    assert sc.load.profile == ((0.0, 1.0), (0.5, 2.0))
+
+
+@pytest.mark.parametrize("csv, fragments", [
+    ("t,i\n0,1\n", ["row 1", "t_s,current_a"]),
+    ("t_s,current_a\n0,1\n0.5,abc\n", ["row 3", "column current_a = 'abc'", "[0, 1000]"]),
+    ("t_s,current_a\n0,1\n0,2\n", ["row 3", "column t_s"]),
+])
+def test_bad_profile_rows_are_named(tmp_path, csv, fragments):
+    """Brief's error format for CSV profiles: file, row/column and allowed range on one line."""
+    (tmp_path / "p.csv").write_text(csv)
+    with pytest.raises(InputError) as exc:
+        load_scenario(_write(tmp_path, BASE.replace("current_a = 1.0", 'profile_csv = "p.csv"')))
+    msg = str(exc.value)
+    assert "\n" not in msg and "p.csv" in msg
+    for frag in fragments:
+        assert frag in msg, msg
+
+
+def test_invalid_toml_is_an_input_error(tmp_path):
+    """A TOML syntax error is bad input too (one line, names the file)."""
+    path = _write(tmp_path, "[supply\n")
+    with pytest.raises(InputError, match="not valid TOML"):
+        load_scenario(path)
