@@ -30,7 +30,7 @@ def test_c_matches_model_after_every_step_for_any_config_and_sequence(case):
     _note_statuses(pair.s)
 
 
-@_scaled(0.3)
+@_scaled(0.5)
 @given(sa.configs(max_window=64).flatmap(
     lambda cp: st.tuples(st.just(cp), sa.sequences(cp[0], cp[1], min_windows=20, max_windows=40))))
 def test_c_matches_model_after_every_step_over_long_runs_of_many_windows(case):

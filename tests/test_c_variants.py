@@ -69,19 +69,19 @@ def _examples(fraction):
     return settings(max_examples=max(3, int(settings.default.max_examples * fraction)))
 
 
-@_examples(0.1)
+@_examples(0.25)
 @given(cases=_cases(max_window=1024, min_windows=0, max_windows=4, max_cases=4))
 def test_every_build_variant_matches_model_on_every_operation_and_field(driver, cases):
     _assert_driver_matches_model(driver, cases)
 
 
-@_examples(0.03)
+@_examples(0.08)
 @given(cases=_cases(max_window=64, min_windows=20, max_windows=30, max_cases=2))
 def test_every_build_variant_matches_model_over_long_runs(driver, cases):
     _assert_driver_matches_model(driver, cases)
 
 
-@_examples(0.05)
+@_examples(0.1)
 @given(cases=_cases(max_window=16384, min_windows=1, max_windows=2, max_cases=1))
 def test_every_build_variant_matches_model_with_the_longest_windows(driver, cases):
     _assert_driver_matches_model(driver, cases)
