@@ -1,7 +1,7 @@
 """Shared pytest setup: hypothesis profiles chosen by the HYPOTHESIS_PROFILE env var.
 
-Profiles: ``dev`` (quick local runs), ``ci`` (the default when ``CI`` is set,
-and otherwise too), ``nightly`` (ten times ``ci``).
+Profiles: ``dev`` (quick local runs), ``ci`` (the default, and what CI runs),
+``nightly`` (ten times ``ci``).
 """
 import os
 
@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, settings
 CI_EXAMPLES = 100
 
 settings.register_profile("dev", max_examples=20, deadline=None)
-settings.register_profile("ci", max_examples=CI_EXAMPLES, deadline=None, derandomize=False,
+settings.register_profile("ci", max_examples=CI_EXAMPLES, deadline=None, print_blob=True,
                           suppress_health_check=[HealthCheck.too_slow])
 settings.register_profile("nightly", max_examples=10 * CI_EXAMPLES, deadline=None,
                           suppress_health_check=[HealthCheck.too_slow])
