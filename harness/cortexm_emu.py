@@ -55,19 +55,25 @@ class CortexM:
         self.uc.mem_write(RETURN_ADDR, b"\xfe\xe7")  # b .
         self.uc.mem_write(RAM_BASE + RAM_SIZE - STACK_WINDOW, bytes([STACK_PAINT]) * STACK_WINDOW)
         self._cs = Cs(CS_ARCH_ARM, CS_MODE_THUMB | CS_MODE_MCLASS)
-        self._block_len = {}
+        self._block_addrs = {}
         self.count = 0
         self.by_function = {}
+        self.by_address = None  # a dict while profile() is on: instruction address -> executions
         self._ranges = sorted((a, a + s, n) for n, (a, s) in self.symbols.items() if s)
         self.uc.hook_add(UC_HOOK_BLOCK, self._on_block)
 
     def _on_block(self, uc, address, size, _user):
         key = (address, size)
-        n = self._block_len.get(key)
-        if n is None:
-            n = sum(1 for _ in self._cs.disasm_lite(bytes(uc.mem_read(address, size)), address))
-            self._block_len[key] = n
+        addrs = self._block_addrs.get(key)
+        if addrs is None:
+            addrs = [ins[0] for ins in self._cs.disasm_lite(bytes(uc.mem_read(address, size)),
+                                                            address)]
+            self._block_addrs[key] = addrs
+        n = len(addrs)
         self.count += n
+        if self.by_address is not None:
+            for a in addrs:
+                self.by_address[a] = self.by_address.get(a, 0) + 1
         fn = self.function_at(address)
         self.by_function[fn] = self.by_function.get(fn, 0) + n
 

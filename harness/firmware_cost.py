@@ -6,11 +6,13 @@ in the unicorn emulator in closed loop with a small cable + capacitor plant
 field against the Python model, and counts executed instructions. All
 figures are deterministic; none is a wall-clock time.
 
-    python -m harness.firmware_cost [--json]
+    python -m harness.firmware_cost [--json | --profile m4]
 """
 import argparse
+import collections
 import json
 import random
+import subprocess
 import sys
 import tempfile
 
@@ -115,6 +117,49 @@ def run_cpu(cpu, opt, cfg, out_dir):
             "samples": n}
 
 
+def profile_lines(cpu="m4", opt="-O2", cfg=None, windows=8):
+    """Where the instructions go, by source line: two Counters of mean executions per call.
+
+    Returns ``(ordinary, window_end)``: ``{"file.c:line": instructions}`` averaged over
+    the ordinary samples and over the window-end samples of a closed-loop run.
+    """
+    cfg = cfg or AlgoConfig()
+    p = derive(cfg)
+    with tempfile.TemporaryDirectory() as tmp:
+        elf, _ = build.link_bare(cpu, opt, tmp)
+        emu = CortexM(elf, cpu)
+        pa = emu.write_params({name: getattr(p, name) for name in PARAM_FIELDS})
+        emu.call("ld_init", pa, STATE_ADDR)
+        s = model.init(p)
+        plant = input_run(cfg, windows * p.window)
+        next(plant)
+        v, i = plant.send(s.cmd)
+        sums = {False: collections.Counter(), True: collections.Counter()}
+        calls = collections.Counter()
+        for k in range(windows * p.window):
+            emu.by_address = {}
+            before = s.windows
+            cmd, _ = emu.call("ld_step", pa, STATE_ADDR, v, i)
+            model.step(p, s, v, i)
+            end = s.windows != before
+            sums[end].update(emu.by_address)
+            calls[end] += 1
+            if k + 1 < windows * p.window:
+                v, i = plant.send(cmd)
+        addrs = sorted(set(sums[False]) | set(sums[True]))
+        lines = subprocess.run([build.GCC.replace("gcc", "addr2line"), "-e", elf,
+                                *map(hex, addrs)], capture_output=True, text=True,
+                               check=True).stdout.split("\n")
+    where = {a: ln.split("/")[-1].split(" ")[0] for a, ln in zip(addrs, lines)}
+    out = []
+    for end in (False, True):
+        c = collections.Counter()
+        for a, n in sums[end].items():
+            c[where[a]] += n / calls[end]
+        out.append(c)
+    return tuple(out)
+
+
 def _library_bytes(emu):
     """Code bytes of the libc/libgcc routines the algorithm pulled into the image."""
     own = {"ld_", "__ld"}
@@ -160,11 +205,19 @@ def main(argv=None):
     """Print the cost table (or ``--json``)."""
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--json", action="store_true", help="print the figures as JSON")
+    ap.add_argument("--profile", choices=sorted(build.CPUS),
+                    help="instead, print the costliest source lines on that core at -O2")
     args = ap.parse_args(argv)
     reason = build.toolchain_missing()
     if reason:
         print(f"firmware_cost: {reason}", file=sys.stderr)
         return 2
+    if args.profile:
+        for title, c in zip(("ordinary sample", "window-end sample"), profile_lines(args.profile)):
+            print(f"{title}: {sum(c.values()):.1f} instructions; costliest lines:")
+            for line, n in c.most_common(12):
+                print(f"  {line:24s} {n:7.1f}")
+        return 0
     m = measure()
     if args.json:
         print(json.dumps(m, indent=2))

@@ -75,3 +75,11 @@ def test_benchmark_prints_the_cost_table(capsys):
     with capsys.disabled():
         print("\n" + out)
     assert "Cortex-M4" in out and "bit-exact" in out
+
+
+def test_line_profile_attributes_every_instruction_of_a_call_to_a_source_line(cost):
+    from harness import firmware_cost
+    ordinary, window_end = firmware_cost.profile_lines("m4", "-O2", windows=2)
+    assert "?" not in "".join(ordinary) and any(k.startswith("step.c:") for k in ordinary)
+    assert sum(window_end.values()) == pytest.approx(cost["m4_instr_max"], rel=0.1)
+    assert sum(ordinary.values()) <= cost["m4_instr_sample_max"]
