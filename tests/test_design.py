@@ -1,0 +1,195 @@
+"""linedrop design: cable figures against published tables, warnings, JSON keys, outputs, bad input."""
+import json
+import math
+
+import pytest
+
+from algo.params import derive
+from harness.algo_setup import algo_config
+from harness.algo_toml import load_algo_config
+from harness.cli import main
+from harness.design_report import design_report
+from harness.scenario import load_scenario
+
+DEMO = "harness/scenarios/demo_mast.toml"
+
+# Invented test plants. PoE-like: 48 V feed, constant-current powered device at the far end.
+POE_AF = """
+[supply]
+target_v = 48.0
+max_v = 57.0
+[cable]
+resistance_ohm = 20.0
+[load_end]
+capacitance_f = 2.2e-3
+[load]
+kind = "constant_current"
+current_a = 0.35
+[sensing]
+i_full_scale_a = 1.0
+"""
+
+BASE = """
+[supply]
+target_v = {target}
+max_v = {max_v}
+loop_bandwidth_hz = {bw}
+[cable]
+resistance_ohm = {r}
+[load_end]
+capacitance_f = {c}
+esr_ohm = {esr}
+[load]
+kind = "{kind}"
+{key} = {value}
+[sensing]
+gain_error = {gain_error}
+v_full_scale_v = 80.0
+{algorithm}
+"""
+
+
+def write(tmp_path, text, name="s.toml"):
+    p = tmp_path / name
+    p.write_text(text)
+    return str(p)
+
+
+def plant(tmp_path, **kw):
+    """A scenario file from BASE with defaults changed by ``kw`` (an invented 2-ohm run)."""
+    v = dict(target=24.0, max_v=30.0, bw=0.0, r=2.0, c=22e-3, esr=0.0, kind="constant_current",
+             key="current_a", value=1.5, gain_error=0.0, algorithm="")
+    v.update(kw)
+    return load_scenario(write(tmp_path, BASE.format(**v)))
+
+
+def test_poe_af_channel_drop(tmp_path):
+    """IEEE 802.3af: 20 ohm channel loop resistance at 350 mA gives a 7 V drop."""
+    rep = design_report(load_scenario(write(tmp_path, POE_AF)))
+    assert rep["r_cable_ohm"] == pytest.approx(20.0)
+    assert rep["uncompensated_drop_v"] == pytest.approx(7.0, rel=1e-9)
+
+
+def test_poe_at_type2_channel_drop(tmp_path):
+    """IEEE 802.3at Type 2: 12.5 ohm channel loop resistance at 600 mA gives a 7.5 V drop."""
+    text = POE_AF.replace("20.0", "12.5").replace("0.35", "0.6")
+    rep = design_report(load_scenario(write(tmp_path, text)))
+    assert rep["r_cable_ohm"] == pytest.approx(12.5)
+    assert rep["uncompensated_drop_v"] == pytest.approx(7.5, rel=1e-9)
+
+
+def test_lighting_run_matches_awg12_copper_table(tmp_path):
+    """AWG 12 copper: 5.211 ohm/km per conductor at 20 degC (ASTM B258 / NBS Handbook 100).
+
+    An invented 12 V garden lighting run of 40 m one way: the loop counts both conductors.
+    The table value has four significant figures, hence the 1e-4 relative tolerance.
+    """
+    text = """
+[supply]
+target_v = 12.0
+max_v = 14.0
+[cable]
+length_m = 40.0
+awg = 12
+temperature_c = 20.0
+[load_end]
+capacitance_f = 10e-3
+esr_ohm = 0.02
+[load]
+kind = "lamp"
+rated_v = 12.0
+rated_w = 60.0
+"""
+    rep = design_report(load_scenario(write(tmp_path, text)))
+    assert rep["r_cable_ohm"] == pytest.approx(2 * 40.0 * 5.211e-3, rel=1e-4)
+
+
+def test_ripple_is_current_swing_times_capacitor_impedance(tmp_path):
+    """Load ripple = 2 * dI * |ESR + 1/(j w C)| p-p, with ESR = 0 that is dI / (pi f C) (design brief 3.9)."""
+    rep = design_report(plant(tmp_path))
+    f, c = rep["perturbation_hz"], 22e-3
+    assert rep["ripple_load_v_pp"] == pytest.approx(2 * rep["current_swing_a"] / (2 * math.pi * f * c), rel=1e-9)
+
+
+def test_demo_has_no_warnings():
+    """The demo mast is sized sensibly: none of the warnings below fire on it."""
+    assert design_report(load_scenario(DEMO))["warnings"] == []
+
+
+OWN_ALGO = "[algorithm]\nperiod_samples = 32\n"     # 1 kHz at 32 kHz: analysed as given
+
+
+@pytest.mark.parametrize("kw,phrase", [
+    (dict(c=0.5e-3, algorithm=OWN_ALGO), "not an AC short"),
+    (dict(c=0.1e-3, algorithm=OWN_ALGO), "R*C corner"),
+    (dict(bw=3000.0, algorithm=OWN_ALGO), "loop bandwidth"),
+    (dict(max_v=25.0), "headroom"),
+    (dict(target=48.0, max_v=65.0, r=4.0), "extra-low-voltage"),
+    (dict(kind="constant_power", key="power_w", value=60.0), "constant-power"),
+    (dict(esr=1.0), "capacitor's ESR"),
+    (dict(c=4.7e-3, gain_error=0.3, algorithm="[algorithm]\nperiod_samples = 32\nperiods_per_window = 1\n"
+          "smoothing_shift = 0\n"), "unstable"),
+    (dict(c=22e-3, algorithm="[algorithm]\nperiod_samples = 32\nperiods_per_window = 1\n"
+          "smoothing_shift = 0\n"), "little margin"),
+])
+def test_each_warning_fires_on_a_plant_built_for_it(tmp_path, kw, phrase):
+    """Each plain-language warning fires on an invented plant that breaks its rule.
+
+    Rules: AC short and corner (design brief 3.9; factor 10 and 3 common practice, no published
+    source), supply bandwidth (same), headroom = max_v - target_v, extra-low voltage about
+    60 V DC (design brief 5), constant-power drop share and ESR share (common practice, no
+    published source), loop margin (harness.loop_model).
+    """
+    warnings = design_report(plant(tmp_path, **kw))["warnings"]
+    assert any(phrase in w for w in warnings), warnings
+
+
+def test_json_keys(capsys):
+    """--json prints one object with the documented keys and types."""
+    assert main(["design", DEMO, "--json"]) == 0
+    rep = json.loads(capsys.readouterr().out)
+    for key in ("r_cable_ohm", "perturbation_hz", "sample_rate_hz", "min_capacitance_f",
+                "predicted_load_error_v", "stability_margin", "gain_margin", "convergence_s",
+                "ripple_load_v_pp", "word_lengths", "algorithm"):
+        assert isinstance(rep[key], (int, float, dict)), key
+    assert isinstance(rep["warnings"], list) and all(isinstance(w, str) for w in rep["warnings"])
+    assert 0 < rep["stability_margin"] < 1
+
+
+def test_report_carries_the_cautions(capsys):
+    """The readable report ends with the cautions line (design brief 5)."""
+    assert main(["design", DEMO]) == 0
+    out = capsys.readouterr().out
+    assert "max_v" in out and "cable heating" in out and "60 V" in out and "Lamp life" in out
+
+
+def test_algorithm_out_and_header_round_trip(tmp_path, capsys):
+    """--algorithm-out loads back through load_algo_config; --header is derive() of that config."""
+    toml_path, h_path = tmp_path / "algo.toml", tmp_path / "p.h"
+    assert main(["design", DEMO, "--algorithm-out", str(toml_path), "--header", str(h_path)]) == 0
+    rep = design_report(load_scenario(DEMO))
+    cfg = load_algo_config(str(toml_path))
+    for key, value in rep["algorithm"].items():
+        assert getattr(cfg, key) == pytest.approx(value), key
+    sc = load_scenario(DEMO)
+    full = algo_config(sc, dict(rep["algorithm"], sample_rate_hz=rep["recommended_sample_rate_hz"]))
+    assert derive(full).fingerprint() in h_path.read_text()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["algo.toml", "p.h"]   # no temp files left
+
+
+@pytest.mark.parametrize("text,key", [
+    (POE_AF.replace("resistance_ohm = 20.0", "resistance_ohm = -1.0"), "cable.resistance_ohm"),
+    (POE_AF + "[algorithm]\ncompensation = 2.0\n", "algorithm.compensation"),
+])
+def test_bad_input_exits_2_with_one_line(tmp_path, capsys, text, key):
+    """Bad input: exit 2, one stderr line naming the file, the key and the allowed range."""
+    path = write(tmp_path, text)
+    assert main(["design", path]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "\n" not in err and path in err and key in err and "]" in err   # "[lo, hi]" or "(lo, hi]"
+
+
+def test_missing_file_exits_2(tmp_path, capsys):
+    """A scenario that cannot be read: exit 2, the path named."""
+    assert main(["design", str(tmp_path / "none.toml")]) == 2
+    assert "none.toml" in capsys.readouterr().err
