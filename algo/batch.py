@@ -62,6 +62,15 @@ class BatchModel:
         self.window = np.int64(1) << self.p.window_log2
         self.s = _Fields(STATE_FIELDS, self.n)
         self._idx = np.arange(self.n)
+        # Loop invariants of the per-sample path, hoisted out of step().
+        self._flat = self.tab.ravel()
+        self._base = self._idx * self.tab.shape[1]
+        self._pmask = self.period - 1
+        self._quarter = self.period >> 2
+        self._half_ds = (np.int64(1) << self.p.demod_shift) >> 1
+        self._half_tab = (np.int64(1) << (self.p.tab_bits - 1)) >> 1
+        self._tab_shift = self.p.tab_bits - 1
+        self._cmd_base = np.zeros(self.n, dtype=np.int64)
         self.init(np.ones(self.n, dtype=bool))
 
     def init(self, mask):
@@ -81,35 +90,43 @@ class BatchModel:
         s.cmd[mask] = self._command()[mask]
 
     def _command(self):
+        """algo.step._command; the target + correction part is cached in _cmd_base."""
         s, p = self.s, self.p
-        pert = _rsr(s.pert_amp * self.tab[self._idx, s.phase], p.tab_bits - 1)
-        cmd = p.target_code + _rsr(s.corr, p.corr_frac) + pert
-        return np.clip(cmd, p.cmd_min, p.cmd_max)
+        self._cmd_base = p.target_code + _rsr(s.corr, p.corr_frac)
+        return self._command_fast()
+
+    def _command_fast(self):
+        s, p = self.s, self.p
+        tab = self._flat.take(self._base + s.phase)
+        pert = (s.pert_amp * tab + self._half_tab) >> self._tab_shift
+        return np.minimum(np.maximum(self._cmd_base + pert, p.cmd_min), p.cmd_max)
 
     def step(self, adc_v, adc_i):
         """One sample for every instance; returns the command codes (int64, shape (n,))."""
         s, p = self.s, self.p
-        v = np.clip(np.asarray(adc_v, dtype=np.int64), 0, p.adc_max)
-        i = np.clip(np.asarray(adc_i, dtype=np.int64), 0, p.adc_max)
-        n = self.period - 1
-        sn = self.tab[self._idx, s.phase]
-        cs = self.tab[self._idx, (s.phase + (self.period >> 2)) & n]
-        ds = p.demod_shift
-        s.acc_vi += _rsr(v * sn, ds)
-        s.acc_vq += _rsr(v * cs, ds)
-        s.acc_ii += _rsr(i * sn, ds)
-        s.acc_iq += _rsr(i * cs, ds)
+        v = np.minimum(np.maximum(np.asarray(adc_v, dtype=np.int64), 0), p.adc_max)
+        i = np.minimum(np.maximum(np.asarray(adc_i, dtype=np.int64), 0), p.adc_max)
+        ph = s.phase
+        sn = self._flat.take(self._base + ph)
+        cs = self._flat.take(self._base + ((ph + self._quarter) & self._pmask))
+        ds, h = p.demod_shift, self._half_ds
+        s.acc_vi += (v * sn + h) >> ds
+        s.acc_vq += (v * cs + h) >> ds
+        s.acc_ii += (i * sn + h) >> ds
+        s.acc_iq += (i * cs + h) >> ds
         s.isum += i
         s.psum += i
-        s.phase = (s.phase + 1) & n
+        s.phase = ph = (ph + 1) & self._pmask
         s.count += 1
-        ends = np.flatnonzero(s.phase == 0)
-        if ends.size:
-            self._period_end(ends)
-        ends = np.flatnonzero(s.count == self.window)
-        if ends.size:
-            self._window_end(ends)
-        s.cmd = self._command()
+        ends = ph == 0
+        if ends.any():
+            self._period_end(np.flatnonzero(ends))
+            ends = s.count == self.window
+            if ends.any():
+                k = np.flatnonzero(ends)
+                self._window_end(k)
+                self._cmd_base[k] = p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k])
+        s.cmd = self._command_fast()
         return s.cmd
 
     def run(self, adc_v, adc_i):
