@@ -3,8 +3,9 @@
 Cross-builds c_ref (step.c, estimator.c) with arm-none-eabi-gcc, runs ld_step
 in the unicorn emulator in closed loop with a small cable + capacitor plant
 (default settings, 1 A to 1.5 A load step), checks every command and state
-field against the Python model, and counts executed instructions. All
-figures are deterministic; none is a wall-clock time.
+field against the Python model, and counts executed instructions. Open-loop
+adversarial input (random and full-scale codes) then bounds the data-dependent
+window end. All figures are deterministic; none is a wall-clock time.
 
     python -m harness.firmware_cost [--json | --profile m4]
 """
@@ -33,6 +34,7 @@ TARGETS = {"m4_instr_mean": 60, "m4_instr_max": 400, "text_bytes_os": 2048, "sta
 R_OHM, C_F = 1.0, 1e-3
 I_LOAD_A, I_STEP_A = 1.0, 1.5
 WINDOWS = 24
+ADVERSARIAL_WINDOWS = 32
 SEED = 20240601
 
 
@@ -60,6 +62,32 @@ def input_run(cfg, n_samples, seed=SEED):
         cmd = yield tuple(codes)
 
 
+def adversarial_inputs(p, windows=ADVERSARIAL_WINDOWS, seed=SEED):
+    """Open-loop ADC codes meant to lengthen the data-dependent parts of a window end.
+
+    Cycles through random 16-bit codes, full-scale extremes and full-scale square
+    waves (in phase and inverted), so the accumulators, the bit-length loop and the
+    64-bit division see large and odd magnitudes. Returns a list of ``(v, i)``.
+    """
+    rng = random.Random(seed)
+    top, half = p.adc_max, (p.adc_max + 1) // 2
+    out = []
+    for w in range(windows):
+        mode = w % 4
+        a_v, a_i = rng.choice([0, 10, top]), rng.choice([1, 10, top])
+        for k in range(p.window):
+            sgn = 1 if k % p.period < p.period // 2 else -1
+            if mode == 0:
+                out.append((rng.randrange(65536), rng.randrange(65536)))
+            elif mode == 1:
+                out.append((rng.choice([0, top]), rng.choice([0, top])))
+            else:
+                d_i = sgn if mode == 2 else -sgn
+                out.append((min(top, max(0, half + sgn * a_v // 2)),
+                            min(top, max(0, half + d_i * a_i // 2))))
+    return out
+
+
 def _section_bytes(objs):
     """Sum of ``.text*`` and ``.rodata*`` section sizes over object files."""
     text = rodata = 0
@@ -74,7 +102,11 @@ def _section_bytes(objs):
 
 
 def run_cpu(cpu, opt, cfg, out_dir):
-    """Build for ``cpu`` at ``opt``, run the closed loop, return counts and checks."""
+    """Build for ``cpu`` at ``opt``, run the closed loop then adversarial input; return figures.
+
+    Every step of both runs is checked against the Python model (``mismatch`` holds
+    the first difference, or ``None``).
+    """
     elf, objs = build.link_bare(cpu, opt, out_dir)
     emu = CortexM(elf, cpu)
     p = derive(cfg)
@@ -87,20 +119,30 @@ def run_cpu(cpu, opt, cfg, out_dir):
     next(plant)
     v, i = plant.send(s.cmd)
     counts, window_end, mismatch = [], [], None
-    emu.by_function.clear()
-    for k in range(n):
+
+    def one_step(k, v, i):
+        nonlocal mismatch
         before_windows = s.windows
         cmd_c, instr = emu.call("ld_step", pa, STATE_ADDR, v, i)
         cmd_m = model.step(p, s, v, i)
-        counts.append(instr)
-        window_end.append(s.windows != before_windows)
         got = emu.read_state()
-        want = {f: getattr(s, f) for f in STATE_FIELDS}
-        if mismatch is None and (cmd_c != cmd_m or any(got[f] != want[f] for f in STATE_FIELDS)):
+        if mismatch is None and (cmd_c != cmd_m or any(got[f] != getattr(s, f)
+                                                       for f in STATE_FIELDS)):
             mismatch = {"sample": k, "cmd": (cmd_c, cmd_m),
-                        "fields": {f: (got[f], want[f]) for f in STATE_FIELDS if got[f] != want[f]}}
+                        "fields": {f: (got[f], getattr(s, f)) for f in STATE_FIELDS
+                                   if got[f] != getattr(s, f)}}
+        return cmd_c, instr, s.windows != before_windows
+
+    emu.by_function.clear()
+    for k in range(n):
+        cmd_c, instr, end = one_step(k, v, i)
+        counts.append(instr)
+        window_end.append(end)
         if k + 1 < n:
             v, i = plant.send(cmd_c)
+    by_function = dict(emu.by_function)
+    adversarial_max = max(one_step(n + k, v, i)[1]
+                          for k, (v, i) in enumerate(adversarial_inputs(p)))
     text, rodata = _section_bytes(objs)
     stack_static, chain, unknown = build.worst_stack(objs)
     per_sample = [c for c, w in zip(counts, window_end) if not w]
@@ -108,7 +150,8 @@ def run_cpu(cpu, opt, cfg, out_dir):
             "instr_sample_mean": sum(per_sample) / len(per_sample),
             "instr_sample_max": max(per_sample),
             "instr_by_function": {fn: c / len(counts) for fn, c in
-                                  sorted(emu.by_function.items(), key=lambda x: -x[1])},
+                                  sorted(by_function.items(), key=lambda x: -x[1])},
+            "instr_max_adversarial": adversarial_max,
             "text_bytes": text, "rodata_bytes": rodata,
             "lib_bytes": _library_bytes(emu), "state_bytes": state_size,
             "stack_static": stack_static, "stack_chain": chain, "stack_unknown": unknown,
@@ -179,6 +222,7 @@ def measure(cfg=None):
         out[f"{cpu}_instr_mean"] = round(r["instr_mean"], 2)
         out[f"{cpu}_instr_max"] = r["instr_max"]
         out[f"{cpu}_instr_sample_max"] = r["instr_sample_max"]
+        out[f"{cpu}_instr_max_adversarial"] = r["instr_max_adversarial"]
         out[f"{cpu}_instr_mean_os"] = round(runs[(cpu, "-Os")]["instr_mean"], 2)
         out[f"{cpu}_instr_max_os"] = runs[(cpu, "-Os")]["instr_max"]
         out[f"{cpu}_text_bytes_os"] = runs[(cpu, "-Os")]["text_bytes"]
@@ -226,6 +270,8 @@ def main(argv=None):
             ("instructions, worst = window end (-O2)", "m4_instr_max", "m0plus_instr_max"),
             ("instructions, worst non-window sample", "m4_instr_sample_max",
              "m0plus_instr_sample_max"),
+            ("instructions, worst on adversarial input", "m4_instr_max_adversarial",
+             "m0plus_instr_max_adversarial"),
             ("instructions per ld_step, mean (-Os)", "m4_instr_mean_os", "m0plus_instr_mean_os"),
             ("instructions, worst (-Os)", "m4_instr_max_os", "m0plus_instr_max_os"),
             (".text bytes, step.c + estimator.c, -Os", "m4_text_bytes_os", "m0plus_text_bytes_os"),
@@ -237,7 +283,8 @@ def main(argv=None):
     print(f"sizeof(ld_state_t) {m['state_bytes']} B; .rodata {m['rodata_bytes_os']} B; "
           f"stack {m['stack_bytes']} B static ({' -> '.join(m['stack_chain'])}), "
           f"{m['stack_bytes_measured']} B measured incl. {', '.join(m['stack_unknown']) or '-'}")
-    print(f"bit-exact with the Python model over {m['samples']} closed-loop samples: "
+    print(f"bit-exact with the Python model over {m['samples']} closed-loop samples and "
+          f"{ADVERSARIAL_WINDOWS} adversarial windows: "
           f"{m['bit_exact']}")
     for key, ok in m["targets_met"].items():
         print(f"target {key} <= {TARGETS[key]}: {'met' if ok else 'NOT met'} ({m[key]})")
