@@ -59,7 +59,11 @@ class CortexM:
         self.count = 0
         self.by_function = {}
         self.by_address = None  # a dict while profile() is on: instruction address -> executions
-        self._ranges = sorted((a, a + s, n) for n, (a, s) in self.symbols.items() if s)
+        # Hand-written library routines (libgcc's __aeabi_ldivmod) carry no size: let
+        # them run to the next symbol.
+        starts = sorted({a for a, _ in self.symbols.values()}) + [FLASH_BASE + FLASH_SIZE]
+        self._ranges = sorted((a, a + s if s else starts[starts.index(a) + 1], n)
+                              for n, (a, s) in self.symbols.items())
         self.uc.hook_add(UC_HOOK_BLOCK, self._on_block)
 
     def _on_block(self, uc, address, size, _user):

@@ -153,7 +153,7 @@ def run_cpu(cpu, opt, cfg, out_dir):
                                   sorted(by_function.items(), key=lambda x: -x[1])},
             "instr_max_adversarial": adversarial_max,
             "text_bytes": text, "rodata_bytes": rodata,
-            "lib_bytes": _library_bytes(emu), "state_bytes": state_size,
+            "lib_bytes": _library_bytes(elf, text), "state_bytes": state_size,
             "stack_static": stack_static, "stack_chain": chain, "stack_unknown": unknown,
             "stack_measured": (emu.stack_high_water() + 3) & ~3,
             "status_last": s.status, "r_est_last": s.r_est, "mismatch": mismatch,
@@ -203,11 +203,10 @@ def profile_lines(cpu="m4", opt="-O2", cfg=None, windows=8):
     return tuple(out)
 
 
-def _library_bytes(emu):
-    """Code bytes of the libc/libgcc routines the algorithm pulled into the image."""
-    own = {"ld_", "__ld"}
-    return sum(size for name, (_, size) in emu.symbols.items()
-               if not any(name.startswith(o) for o in own))
+def _library_bytes(elf, own_text):
+    """Code bytes the linker added to the algorithm's own: libc/libgcc routines."""
+    with open(elf, "rb") as f:
+        return ELFFile(f).get_section_by_name(".text")["sh_size"] - own_text
 
 
 def measure(cfg=None):
