@@ -205,15 +205,16 @@ def square_sequences(draw, p, min_windows=0, max_windows=4):
 
 
 @st.composite
-def realistic_sequences(draw, cfg, p, min_windows=3, max_windows=8, load_steps=True):
+def realistic_sequences(draw, cfg, p, min_windows=3, max_windows=8, max_steps=3):
     """Supply-side V and I codes for a cable with the perturbation riding on the load current.
 
     The current swings sinusoidally at the perturbation frequency (a few tenths
     of a radian off the reference phase); the voltage swing is ``R`` times it in
     phase plus ``X`` times it in quadrature, with ``R`` below ``r_max`` and
-    ``X`` well below ``x_max``. Load steps move the mean current (and the
-    voltage by ``R`` times as much) at random samples, and a code or two of
-    noise is added.
+    ``X`` well below ``x_max``. Up to ``max_steps`` load steps move the mean
+    current (and the voltage by ``R`` times as much) at random samples; each
+    can spoil the window it lands in and the next. A code or two of noise is
+    added.
     """
     n = _length(draw, p, min_windows, max_windows)
     full = p.adc_max
@@ -232,9 +233,8 @@ def realistic_sequences(draw, cfg, p, min_windows=3, max_windows=8, load_steps=T
     t = np.arange(n)
     theta = 2 * np.pi * t / p.period + phase
     i_dc = np.full(n, i_mean)
-    if load_steps:
-        for edge in draw(st.lists(st.integers(0, max(n - 1, 0)), max_size=3)):
-            i_dc[edge:] *= draw(st.floats(0.6, 1.5))
+    for edge in draw(st.lists(st.integers(0, max(n - 1, 0)), max_size=max_steps)):
+        i_dc[edge:] *= draw(st.floats(0.6, 1.5))
     i_dc = np.clip(i_dc, amp, full - amp)
     i = i_dc + amp * np.sin(theta)
     v = 0.5 * full - r_codes * (i_dc - i_mean) + amp * (r_codes * np.sin(theta) + x_codes * np.cos(theta))
