@@ -86,7 +86,7 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     if progress:
         from tqdm import tqdm
         steps = tqdm(steps, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
-                     leave=False)
+                     leave=False, disable=None, mininterval=0.5)
     for t in steps:
         command_v = np.clip(cmd, 0, code_max) * v_per_code
         obs = batch.plant.step(command_v)
