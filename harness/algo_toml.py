@@ -5,6 +5,17 @@ from algo.config import AlgoConfig, ConfigError, from_mapping
 from harness.errors import InputError
 
 
+def read_toml(path, what="file"):
+    """Parse a TOML file; unreadable or malformed files raise a one-line InputError."""
+    try:
+        with open(path, "rb") as f:
+            return tomllib.load(f)
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read {what}: {exc.strerror or exc.__class__.__name__}") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{path}: not valid TOML: {str(exc).splitlines()[0]}") from None
+
+
 def config_from_table(table, path, section="algorithm"):
     """AlgoConfig from a mapping; errors name ``path`` and ``section.key``."""
     if not isinstance(table, dict):
@@ -22,13 +33,7 @@ def load_algo_config(path):
     """
     if path is None:
         return AlgoConfig()
-    try:
-        with open(path, "rb") as f:
-            doc = tomllib.load(f)
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read: {exc.strerror}") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{path}: not valid TOML: {exc}") from None
+    doc = read_toml(path, "config")
     extra = set(doc) - {"algorithm"}
     if extra:
         raise InputError(f"{path}: unknown section(s) {', '.join(sorted(extra))}; "

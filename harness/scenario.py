@@ -1,9 +1,9 @@
 """Scenario files: TOML read with tomllib into checked, frozen Scenario dataclasses."""
 
-import tomllib
 from pathlib import Path
 
 from harness import cable as cable_model
+from harness.algo_toml import read_toml
 from harness.errors import InputError
 from harness.scenario_load import parse_load
 from harness.specs import (DEFAULT_INDUCTANCE_H_PER_M, FAULT_KINDS, CableSpec, FaultSpec, LoadEndSpec, RunSpec,
@@ -152,11 +152,4 @@ def parse_scenario(data, source):
 
 def load_scenario(path):
     """Read and check one scenario file; raises InputError with a one-line message on bad input."""
-    try:
-        with open(path, "rb") as fh:
-            data = tomllib.load(fh)
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read scenario: {exc.strerror or exc.__class__.__name__}") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{path}: not valid TOML: {str(exc).splitlines()[0]}") from None
-    return parse_scenario(data, Path(path))
+    return parse_scenario(read_toml(path, "scenario"), Path(path))
