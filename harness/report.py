@@ -53,18 +53,24 @@ def plot_run(run, path, b=0):
 
 
 def plot_comparison(runs, path, b=0):
-    """Load voltage of every compensation on the same scenario, overlaid."""
-    fig, ax = plt.subplots(figsize=(10, 5))
-    for name, run in runs.items():
-        ax.plot(run.t_s, run.channels["v_load_v"][:, b], lw=0.9, label=name)
+    """Load voltage of every compensation on the same scenario, overlaid; below, a +-3 % zoom."""
     sc = next(iter(runs.values())).scenarios[b]
-    ax.axhline(sc.supply.target_v, color="k", ls="--", lw=0.8, label="target")
-    _shade_faults(ax, sc)
-    ax.set_xlabel("time (s)")
-    ax.set_ylabel("load voltage (V)")
-    ax.grid(alpha=0.3)
-    ax.legend(fontsize=8)
-    ax.set_title("load voltage: linedrop against the baselines")
+    target = sc.supply.target_v
+    fig, axes = plt.subplots(2, 1, figsize=(10, 8), sharex=True)
+    for ax in axes:
+        for name, run in runs.items():
+            ax.plot(run.t_s, run.channels["v_load_v"][:, b], lw=0.9, label=name)
+        ax.axhline(target, color="k", ls="--", lw=0.8, label="target")
+        _shade_faults(ax, sc)
+        ax.set_ylabel("load voltage (V)")
+        ax.grid(alpha=0.3)
+    axes[1].set_ylim(0.97 * target, 1.03 * target)
+    axes[1].set_title("zoom: target +-3 %", fontsize=9)
+    axes[1].set_xlabel("time (s)")
+    handles, labels = axes[0].get_legend_handles_labels()
+    uniq = dict(zip(labels, handles))
+    axes[0].legend(uniq.values(), uniq.keys(), fontsize=8)
+    axes[0].set_title("load voltage: linedrop against the baselines")
     fig.tight_layout()
     _save(fig, path)
 
