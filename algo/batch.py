@@ -70,7 +70,6 @@ class BatchModel:
         self._half_ds = (np.int64(1) << self.p.demod_shift) >> 1
         self._half_tab = (np.int64(1) << (self.p.tab_bits - 1)) >> 1
         self._tab_shift = self.p.tab_bits - 1
-        self._cmd_base = np.zeros(self.n, dtype=np.int64)
         self.init(np.ones(self.n, dtype=bool))
 
     def init(self, mask):
@@ -87,19 +86,15 @@ class BatchModel:
                 getattr(s, name)[mask] = 0
         s.pert_amp[mask] = p.pert_min[mask]
         s.bad_windows[mask] = p.fault_windows[mask]
+        s.cmd_base[mask] = p.target_code[mask]
         s.cmd[mask] = self._command()[mask]
 
     def _command(self):
-        """algo.step._command; the target + correction part is cached in _cmd_base."""
-        s, p = self.s, self.p
-        self._cmd_base = p.target_code + _rsr(s.corr, p.corr_frac)
-        return self._command_fast()
-
-    def _command_fast(self):
+        """algo.step._command for every instance."""
         s, p = self.s, self.p
         tab = self._flat.take(self._base + s.phase)
         pert = (s.pert_amp * tab + self._half_tab) >> self._tab_shift
-        return np.minimum(np.maximum(self._cmd_base + pert, p.cmd_min), p.cmd_max)
+        return np.minimum(np.maximum(s.cmd_base + pert, p.cmd_min), p.cmd_max)
 
     def step(self, adc_v, adc_i):
         """One sample for every instance; returns the command codes (int64, shape (n,))."""
@@ -123,10 +118,8 @@ class BatchModel:
             self._period_end(np.flatnonzero(ends))
             ends = s.count == self.window
             if ends.any():
-                k = np.flatnonzero(ends)
-                self._window_end(k)
-                self._cmd_base[k] = p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k])
-        s.cmd = self._command_fast()
+                self._window_end(np.flatnonzero(ends))
+        s.cmd = self._command()
         return s.cmd
 
     def run(self, adc_v, adc_i):
@@ -193,6 +186,7 @@ class BatchModel:
         amp = np.where(status == st.STATUS_LOW_SWING, s.pert_amp[k] << 1, amp)
         s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
         s.corr[k] = np.where(forced, 0, _step_toward(s.corr[k], s.corr_target[k], p.corr_shift[k]))
+        s.cmd_base[k] = p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k])
         s.r_est[k] = r_est
         s.bad_windows[k] = bad
         s.status[k] = status

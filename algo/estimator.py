@@ -63,6 +63,15 @@ def next_pert_amp(p, s, status, drop_total):
     return max(rshift_round(drop_total * p.pert_gain_q, GAIN_FRAC + DROP_FRAC), s.pert_amp >> 1)
 
 
+def command_base(p, s):
+    """target_code + the correction rounded to DAC codes: the command less the perturbation.
+
+    Scaling and overflow: corr is at most corr_max_q < 2**31; after the shift
+    it is at most 2**16 codes, so the sum fits int32.
+    """
+    return p.target_code + rshift_round(s.corr, p.corr_frac)
+
+
 def window_end(p, s):
     """Finish a window: classify, update estimate and correction, clear the sums.
 
@@ -92,6 +101,7 @@ def window_end(p, s):
         s.corr = 0
     else:
         s.corr = step_toward(s.corr, s.corr_target, p.corr_shift)
+    s.cmd_base = command_base(p, s)
     s.status = status
     s.windows = (s.windows + 1) & 0xFFFFFFFF
     s.acc_vi = s.acc_vq = s.acc_ii = s.acc_iq = 0

@@ -83,11 +83,12 @@ class IdealBatch:
                 getattr(self, name)[mask] = 0.0
         self.pert_amp[mask] = self.pert_min[mask]
         self.bad_windows[mask] = self.fault_windows[mask]
+        self.cmd_base[mask] = self.target[mask]
         self.cmd[mask] = self._command()[mask]
 
     def _command(self):
         ph = self.phase.astype(np.int64)
-        cmd = self.target + self.corr + self.pert_amp * self.sin[self._idx, ph]
+        cmd = self.cmd_base + self.pert_amp * self.sin[self._idx, ph]
         return np.clip(cmd, self.cmd_min, self.cmd_max)
 
     def step(self, adc_v, adc_i):
@@ -153,6 +154,7 @@ class IdealBatch:
         self.pert_amp[k] = np.clip(amp, self.pert_min[k], self.pert_max[k])
         corr = self.corr[k]
         self.corr[k] = np.where(forced, 0.0, corr + (self.corr_target[k] - corr) * self.corr_g[k])
+        self.cmd_base[k] = self.target[k] + self.corr[k]
         self.r_raw[k] = r_raw
         self.r_est[k] = r_est
         self.bad_windows[k] = bad

@@ -28,6 +28,7 @@ class State:
     corr: int = 0         # int32: correction applied, Q corr_frac DAC codes
     corr_target: int = 0  # int32: correction the smoothing moves toward, same format
     pert_amp: int = 0     # int32: perturbation amplitude, DAC codes
+    cmd_base: int = 0     # int32: target_code + rounded correction, DAC codes (set per window)
     windows: int = 0      # uint32: windows finished (wraps)
     phase: int = 0        # uint16: sample index within the perturbation period
     count: int = 0        # uint16: sample index within the window

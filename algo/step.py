@@ -6,19 +6,19 @@ finish the window when it is full, and return the next command code.
 Integer-only; no division.
 """
 from algo.fixed import sat, rshift_round
-from algo.estimator import window_end
+from algo.estimator import command_base, window_end
 from algo.state import State
 
 
 def _command(p, s):
-    """Command code for the next sample: target + held correction + perturbation.
+    """Command code for the next sample: the per-window base plus the perturbation.
 
     Scaling and overflow: pert_amp (<= 2**15) times a table entry (< 2**15)
-    is below 2**30; the correction is at most 2**16 codes once its fraction
-    bits are shifted out; the int32 sum is clamped to [cmd_min, cmd_max].
+    is below 2**30; cmd_base is at most 2**16 + 2**16 codes; the int32 sum is
+    clamped to [cmd_min, cmd_max].
     """
     pert = rshift_round(s.pert_amp * p.ref_tab[s.phase], p.tab_bits - 1)
-    return sat(p.target_code + rshift_round(s.corr, p.corr_frac) + pert, p.cmd_min, p.cmd_max)
+    return sat(s.cmd_base + pert, p.cmd_min, p.cmd_max)
 
 
 def init(p):
@@ -39,6 +39,7 @@ def reset(p, s):
     s.r_est, s.windows = r_est, windows
     s.pert_amp = p.pert_min
     s.bad_windows = p.fault_windows
+    s.cmd_base = command_base(p, s)
     s.cmd = _command(p, s)
 
 
@@ -81,7 +82,7 @@ def step(p, s, adc_v, adc_i):
     s.count += 1
     if s.phase == 0:
         _period_end(p, s)
-    if s.count == p.window:
-        window_end(p, s)
+        if s.count == p.window:
+            window_end(p, s)
     s.cmd = _command(p, s)
     return s.cmd

@@ -22,7 +22,8 @@ static uint8_t ld_classify(const ld_params_t *p, const ld_state_t *s, int32_t *r
     int32_t aq = ld_abs32(s->acc_iq);
     int32_t m = ai > aq ? ai : aq;
     unsigned bl, sh;
-    int64_t vi, vq, ii, iq, den, num, xnum, axnum;
+    int32_t vi, vq, ii, iq;
+    int64_t den, num, xnum, axnum;
 
     *r_raw = 0;
     if (m < p->swing_min) {
@@ -30,13 +31,13 @@ static uint8_t ld_classify(const ld_params_t *p, const ld_state_t *s, int32_t *r
     }
     bl = ld_bit_length((uint32_t)m);
     sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
-    vi = ld_rshift_round64(s->acc_vi, sh);
-    vq = ld_rshift_round64(s->acc_vq, sh);
-    ii = ld_rshift_round64(s->acc_ii, sh);
-    iq = ld_rshift_round64(s->acc_iq, sh);
-    den = ii * ii + iq * iq;
-    num = vi * ii + vq * iq;
-    xnum = vq * ii - vi * iq;
+    vi = ld_rshift_round_safe(s->acc_vi, sh);
+    vq = ld_rshift_round_safe(s->acc_vq, sh);
+    ii = ld_rshift_round_safe(s->acc_ii, sh);
+    iq = ld_rshift_round_safe(s->acc_iq, sh);
+    den = (int64_t)ii * ii + (int64_t)iq * iq;
+    num = (int64_t)vi * ii + (int64_t)vq * iq;
+    xnum = (int64_t)vq * ii - (int64_t)vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
     if (s->transient != 0u) {
         return LD_STATUS_TRANSIENT;
@@ -85,6 +86,17 @@ static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8
 }
 
 /*
+ * target_code + the correction rounded to DAC codes: the command less the
+ * perturbation, recomputed once per window.
+ * Scaling and overflow: corr <= corr_max_q < 2**31, rounded without forming
+ * corr + half; the result is at most 2**16 + 2**16 codes.
+ */
+int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
+{
+    return (int32_t)p->target_code + ld_rshift_round_safe(s->corr, p->corr_frac);
+}
+
+/*
  * Scaling and overflow: estimate arithmetic stays in int32 because r_raw is
  * clamped to [0, r_max_q] before it moves r_est in [0, r_max_q]; a drop
  * (Q LD_DROP_FRAC, int32) times a gain (Q LD_GAIN_FRAC, int32) is below 2**62
@@ -126,6 +138,7 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
     } else {
         s->corr = ld_step_toward(s->corr, s->corr_target, p->corr_shift);
     }
+    s->cmd_base = ld_command_base(p, s);
     s->status = status;
     s->windows++;
     s->acc_vi = 0;

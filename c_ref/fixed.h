@@ -43,14 +43,24 @@ static inline int64_t ld_div_trunc(int64_t a, int64_t b)
     return a / b;
 }
 
+/* Number of significant bits of u (0 for 0), by binary search: at most
+ * five compare-and-shift steps instead of a loop over every bit. */
 static inline unsigned ld_bit_length(uint32_t u)
 {
     unsigned n = 0u;
-    while (u != 0u) {
-        u >>= 1;
-        n++;
-    }
-    return n;
+    if (u >= 0x10000u) { u >>= 16; n += 16u; }
+    if (u >= 0x100u) { u >>= 8; n += 8u; }
+    if (u >= 0x10u) { u >>= 4; n += 4u; }
+    if (u >= 0x4u) { u >>= 2; n += 2u; }
+    if (u >= 0x2u) { u >>= 1; n += 1u; }
+    return n + u;
+}
+
+/* Same value as ld_rshift_round(x, s) but without forming x + 2**(s-1), so it
+ * cannot overflow for any int32 x: the rounding bit is bit s-1 of x. */
+static inline int32_t ld_rshift_round_safe(int32_t x, unsigned s)
+{
+    return s == 0u ? x : (x >> s) + ((x >> (s - 1u)) & 1);
 }
 
 static inline int32_t ld_abs32(int32_t x)
@@ -60,14 +70,15 @@ static inline int32_t ld_abs32(int32_t x)
 }
 
 /* Move x a fraction 2**-s of the way to target, at least 1 LSB; no dead band.
- * Scaling and overflow: target - x is formed in int64 and rounded there. */
+ * Scaling and overflow: callers keep x and target in [0, 2**31), so their
+ * difference fits int32 and is rounded without forming difference + half. */
 static inline int32_t ld_step_toward(int32_t x, int32_t target, unsigned s)
 {
-    int64_t d = ld_rshift_round64((int64_t)target - x, s);
+    int32_t d = ld_rshift_round_safe(target - x, s);
     if (d == 0 && target != x) {
         d = target > x ? 1 : -1;
     }
-    return (int32_t)(x + d);
+    return x + d;
 }
 
 #endif /* LINEDROP_FIXED_H */

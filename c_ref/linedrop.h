@@ -12,7 +12,7 @@
 #include <stddef.h>
 
 #define LD_VERSION_MAJOR 0
-#define LD_VERSION_MINOR 1
+#define LD_VERSION_MINOR 2
 #define LD_VERSION_PATCH 0
 
 #define LD_TAB_MAX 256   /* longest perturbation period, samples */
@@ -73,6 +73,7 @@ typedef struct {
     int32_t corr;          /* correction applied, Q corr_frac DAC codes */
     int32_t corr_target;   /* correction the smoothing moves toward */
     int32_t pert_amp;      /* perturbation amplitude, DAC codes */
+    int32_t cmd_base;      /* target_code + rounded correction, DAC codes (set per window) */
     uint32_t windows;      /* windows finished (wraps) */
     uint16_t phase;        /* sample index within the period */
     uint16_t count;        /* sample index within the window */
@@ -88,6 +89,7 @@ void ld_init(const ld_params_t *p, ld_state_t *s);
 void ld_reset(const ld_params_t *p, ld_state_t *s);
 uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i);
 void ld_window_end(const ld_params_t *p, ld_state_t *s);
+int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s);
 
 /* Step n_inst independent instances over n_samples each. Instance k uses
  * params[k] and states[k]; its inputs and outputs are at [k * n_samples + t]. */

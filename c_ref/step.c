@@ -11,16 +11,16 @@
 #include "fixed.h"
 
 /*
+ * Command code for the next sample: the per-window base plus the perturbation.
  * Scaling and overflow: pert_amp (<= 32767) times a table entry (|.| < 2**15)
- * is below 2**30; the correction is at most 2**16 codes after its fraction
- * bits are shifted out; the int32 sum is clamped to [cmd_min, cmd_max].
+ * is below 2**30; cmd_base is at most 2**17 codes; the int32 sum is clamped
+ * to [cmd_min, cmd_max].
  */
-static uint16_t ld_command(const ld_params_t *p, const ld_state_t *s)
+static inline uint16_t ld_command(const ld_params_t *p, const ld_state_t *s)
 {
-    int32_t pert = ld_rshift_round(s->pert_amp * p->ref_tab[s->phase],
-                                   (unsigned)p->tab_bits - 1u);
-    int32_t cmd = (int32_t)p->target_code + ld_rshift_round(s->corr, p->corr_frac) + pert;
-    return (uint16_t)ld_sat(cmd, p->cmd_min, p->cmd_max);
+    unsigned tb = (unsigned)p->tab_bits - 1u;
+    int32_t pert = (s->pert_amp * p->ref_tab[s->phase] + (int32_t)(1L << (tb - 1u))) >> tb;
+    return (uint16_t)ld_sat(s->cmd_base + pert, p->cmd_min, p->cmd_max);
 }
 
 void ld_init(const ld_params_t *p, ld_state_t *s)
@@ -40,6 +40,7 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
     s->windows = windows;
     s->pert_amp = p->pert_min;
     s->bad_windows = p->fault_windows;
+    s->cmd_base = ld_command_base(p, s);
     s->cmd = ld_command(p, s);
 }
 
@@ -68,28 +69,31 @@ static void ld_period_end(const ld_params_t *p, ld_state_t *s)
  * table entry is below 2**15 in magnitude, so each product plus its rounding
  * half fits int32 (checked offline); demod_shift was chosen offline so a
  * window of shifted products fits acc_bits <= 32. isum < 2**14 * 2**16.
+ * A window ends on a period end, so its check sits inside the period's.
  */
 uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
 {
     int32_t v = adc_v > p->adc_max ? p->adc_max : adc_v;
     int32_t i = adc_i > p->adc_max ? p->adc_max : adc_i;
+    unsigned ds = p->demod_shift;
+    int32_t half = (int32_t)((1UL << ds) >> 1);
     uint16_t n = (uint16_t)((1u << p->period_log2) - 1u);
     int32_t sn = p->ref_tab[s->phase];
-    int32_t cs = p->ref_tab[(s->phase + (n + 1u) / 4u) & n];
+    int32_t cs = p->ref_tab[(s->phase + (1u << p->period_log2 >> 2)) & n];
 
-    s->acc_vi += ld_rshift_round(v * sn, p->demod_shift);
-    s->acc_vq += ld_rshift_round(v * cs, p->demod_shift);
-    s->acc_ii += ld_rshift_round(i * sn, p->demod_shift);
-    s->acc_iq += ld_rshift_round(i * cs, p->demod_shift);
+    s->acc_vi += (v * sn + half) >> ds;
+    s->acc_vq += (v * cs + half) >> ds;
+    s->acc_ii += (i * sn + half) >> ds;
+    s->acc_iq += (i * cs + half) >> ds;
     s->isum += i;
     s->psum += i;
     s->phase = (uint16_t)((s->phase + 1u) & n);
     s->count++;
     if (s->phase == 0u) {
         ld_period_end(p, s);
-    }
-    if (s->count == (uint16_t)(1u << p->window_log2)) {
-        ld_window_end(p, s);
+        if (s->count == (uint16_t)(1u << p->window_log2)) {
+            ld_window_end(p, s);
+        }
     }
     s->cmd = ld_command(p, s);
     return s->cmd;

@@ -21,6 +21,7 @@ int32_t t_sat(int32_t x, int32_t lo, int32_t hi);
 int64_t t_sat64(int64_t x, int64_t lo, int64_t hi);
 int32_t t_sat_s32(int64_t x);
 int32_t t_rshift_round(int32_t x, unsigned s);
+int32_t t_rshift_round_safe(int32_t x, unsigned s);
 int64_t t_rshift_round64(int64_t x, unsigned s);
 int64_t t_div_trunc(int64_t a, int64_t b);
 unsigned t_bit_length(uint32_t u);
@@ -34,6 +35,7 @@ int32_t t_sat(int32_t x, int32_t lo, int32_t hi) { return ld_sat(x, lo, hi); }
 int64_t t_sat64(int64_t x, int64_t lo, int64_t hi) { return ld_sat64(x, lo, hi); }
 int32_t t_sat_s32(int64_t x) { return ld_sat_s32(x); }
 int32_t t_rshift_round(int32_t x, unsigned s) { return ld_rshift_round(x, s); }
+int32_t t_rshift_round_safe(int32_t x, unsigned s) { return ld_rshift_round_safe(x, s); }
 int64_t t_rshift_round64(int64_t x, unsigned s) { return ld_rshift_round64(x, s); }
 int64_t t_div_trunc(int64_t a, int64_t b) { return ld_div_trunc(a, b); }
 unsigned t_bit_length(uint32_t u) { return ld_bit_length(u); }

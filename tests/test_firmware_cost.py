@@ -1,8 +1,9 @@
 """Firmware cost figures: deterministic instruction counts, code, state and stack bytes on Cortex-M4/M0+.
 
-Figures that meet the port-kit targets are asserted against them; those not
-yet met are strict xfails (they turn into failures once a restructure meets
-them, so the assertion can be made real). Nothing here is timed.
+The code-size and state-size targets of the port kit are asserted. The M4
+instruction targets (mean <= 60, window end <= 400) are not met by this
+design; `linedrop bench --firmware` prints the figures and says so, and
+c_ref/cortexm/README.md explains where the instructions go. Nothing here is timed.
 """
 import importlib.util
 
@@ -54,16 +55,6 @@ def test_stack_analysis_leaves_only_library_routines_unsized(cost):
 def test_window_end_is_the_worst_case_sample(cost):
     for cpu in build.CPUS:
         assert cost[f"{cpu}_instr_max"] > cost[f"{cpu}_instr_sample_max"]
-
-
-@pytest.mark.xfail(strict=True, reason="not met yet: see c_ref/cortexm/README.md, cost table")
-def test_m4_mean_is_at_most_60_instructions_per_sample(cost):
-    assert cost["m4_instr_mean"] <= 60
-
-
-@pytest.mark.xfail(strict=True, reason="not met yet: see c_ref/cortexm/README.md, cost table")
-def test_m4_window_end_is_at_most_400_instructions(cost):
-    assert cost["m4_instr_max"] <= 400
 
 
 def test_benchmark_prints_the_cost_table(capsys):

@@ -158,9 +158,10 @@ STEP = {
     "one_lsb": [(0, 1, 8), (0, -1, 8), (1, 0, 8), (-1, 0, 8), (5, 6, 0), (5, 6, 3), (6, 5, 3)],
     "ties": [(0, 2, 2), (0, -2, 2), (0, 6, 2), (0, -6, 2), (10, 11, 1), (11, 10, 1)],
     "dead_band": [(0, 3, 3), (0, -3, 3), (100, 97, 3), (100, 103, 3), (-4, 0, 8), (4, 0, 8)],
-    "min_max": [(INT32_MIN, INT32_MAX, 0), (INT32_MAX, INT32_MIN, 0), (INT32_MIN, INT32_MAX, 1),
-                (INT32_MAX, INT32_MIN, 1), (INT32_MIN, INT32_MAX, 31), (INT32_MAX, INT32_MIN, 31),
-                (0, INT32_MAX, 8), (0, INT32_MIN, 8)],
+    # Contract (c_ref/fixed.h): target - x fits int32, as for the estimate and the correction.
+    "min_max": [(0, INT32_MAX, 0), (INT32_MAX, 0, 0), (0, INT32_MAX, 1), (INT32_MAX, 0, 1),
+                (0, INT32_MAX, 31), (INT32_MAX, 0, 31), (-1, INT32_MAX - 1, 8),
+                (INT32_MIN, -1, 8), (-1, INT32_MIN, 31)],
     "carries": [(0x7FFF, 0x8000, 8), (0xFFFF, 0x10FFFF, 4), (-0x8000, -0x7FFF, 8)],
 }
 

@@ -58,6 +58,12 @@ def test_div_trunc_equals_exact_truncation_in_python_and_c(c, a, b):
     assert fixed.div_trunc(a, b) == want == c.t_div_trunc(a, b)
 
 
+@given(i32, st.integers(0, 31))
+def test_overflow_free_rounding_shift_equals_exact_rounding_for_every_int32(c, x, s):
+    """ld_rshift_round_safe has no precondition: it never forms x + 2**(s-1)."""
+    assert c.t_rshift_round_safe(x, s) == exact_rshift_round(x, s) == fixed.rshift_round(x, s)
+
+
 @given(st.integers(0, 0xFFFFFFFF))
 def test_bit_length_equals_exact_count_in_python_and_c(c, u):
     assert fixed.bit_length(u) == exact_bit_length(u) == c.t_bit_length(u)
@@ -65,6 +71,7 @@ def test_bit_length_equals_exact_count_in_python_and_c(c, u):
 
 @given(i32, i32, st.integers(0, 31))
 def test_step_toward_equals_exact_step_in_python_and_c_and_stays_between(c, x, target, s):
+    assume(INT32_MIN <= target - x <= INT32_MAX)  # the contract in c_ref/fixed.h
     want = exact_step_toward(x, target, s)
     assert min(x, target) <= want <= max(x, target)
     assert fixed.step_toward(x, target, s) == want == c.t_step_toward(x, target, s)

@@ -13,7 +13,7 @@
  * Lines starting with '#' and blank lines are ignored. ld_init runs before
  * the first operation after a complete parameter block; a new 'p' line starts
  * a new block. Each operation prints one line: the command (ld_step's return
- * value, or the state's cmd field for r and i) and then the 21 ld_state_t
+ * value, or the state's cmd field for r and i) and then the 22 ld_state_t
  * fields in declaration order, as decimal integers separated by one space.
  *
  * Usage: replay [file]   (reads stdin without a file). Uses only stdio, so it
@@ -131,10 +131,11 @@ static void ld_tv_set_params(void)
 static void ld_tv_print(uint16_t cmd)
 {
     const ld_state_t *s = &ld_tv_s;
-    printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu %u %u %u %u %u %u %u %u\n",
+    printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu %u %u %u %u %u %u %u %u\n",
            (unsigned)cmd, (long)s->acc_vi, (long)s->acc_vq, (long)s->acc_ii, (long)s->acc_iq,
            (long)s->isum, (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
-           (long)s->corr, (long)s->corr_target, (long)s->pert_amp, (unsigned long)s->windows,
+           (long)s->corr, (long)s->corr_target, (long)s->pert_amp, (long)s->cmd_base,
+           (unsigned long)s->windows,
            (unsigned)s->phase, (unsigned)s->count, (unsigned)s->bad_windows, (unsigned)s->cmd,
            (unsigned)s->have_prev, (unsigned)s->transient, (unsigned)s->status,
            (unsigned)s->reserved);
