@@ -1,0 +1,130 @@
+"""Closed loop with several implementations in lock step: the first drives the plant, all must agree.
+
+The proof suite runs the fixed-point model and the C reference side by side on one batch of
+plants: every sample, each implementation gets the same ADC codes, and their commands and every
+state field must agree bit for bit (property 5) and lie inside the range analysis
+(``algo.ranges.state_bounds``, property 2). The plant is driven by the first implementation's
+command, so a disagreement is caught at the sample where it starts.
+
+A firmware port joins the same way: wrap it in an object with ``step(adc_v, adc_i) -> commands``
+(int arrays of shape (B,)) and ``states() -> {field: array (B,)}`` and pass it in ``algos``
+(harness/PROOFS.md).
+"""
+from dataclasses import dataclass
+
+import numpy as np
+
+from algo.params import derive
+from algo.ranges import state_bounds
+from algo.state import STATE_FIELDS
+from harness import backends
+from harness.algo_setup import algo_config
+from harness.batch import build_batch
+from harness.closed_loop import CHANNELS, Run
+
+#: State fields recorded per sample besides the plant channels (ints).
+TRACE_FIELDS = ("status", "windows", "bad_windows", "r_est", "corr", "cmd", "pert_amp")
+
+
+class Mismatch(AssertionError):
+    """Implementations disagree, or a state field left its range-analysis interval."""
+
+
+@dataclass
+class LockstepRun:
+    """A closed-loop Run plus per-sample traces of TRACE_FIELDS (int64, (T, B)) and the bounds."""
+    run: Run
+    trace: dict
+    bounds: dict      # field -> (lo (B,), hi (B,))
+
+
+def _bounds(params):
+    per = [state_bounds(p) for p in params]
+    return {f: (np.array([b[f][0] for b in per], dtype=np.int64),
+                np.array([b[f][1] for b in per], dtype=np.int64)) for f in STATE_FIELDS}
+
+
+def _check(t, names, states, bounds):
+    ref = states[0]
+    for name, other in zip(names[1:], states[1:]):
+        for f in STATE_FIELDS:
+            bad = np.flatnonzero(np.asarray(ref[f], np.int64) != np.asarray(other[f], np.int64))
+            if bad.size:
+                b = int(bad[0])
+                raise Mismatch(f"sample {t}, scenario {b}: {f} differs: {names[0]}={int(ref[f][b])} "
+                               f"{name}={int(other[f][b])}")
+    for f in STATE_FIELDS:
+        v = np.asarray(ref[f], np.int64)
+        lo, hi = bounds[f]
+        bad = np.flatnonzero((v < lo) | (v > hi))
+        if bad.size:
+            b = int(bad[0])
+            raise Mismatch(f"sample {t}, scenario {b}: {f} = {int(v[b])} outside its range-analysis "
+                           f"interval [{int(lo[b])}, {int(hi[b])}]")
+
+
+def run_lockstep(scenarios, algos=("model", "c"), overrides=None, check_every=1):
+    """Run ``scenarios`` (shared sample rate, duration and start) with ``algos`` in lock step.
+
+    Parameters
+    ----------
+    scenarios : list of harness.specs.Scenario
+    algos : sequence of str or objects
+        Backend names (``"model"``, ``"c"``) or port objects (module docstring); the first
+        drives the plant.
+    overrides : dict, optional
+        Algorithm settings replacing the scenarios' own (one dict for all, or a list per scenario).
+    check_every : int
+        Compare and range-check every this many samples (1: every sample).
+
+    Returns
+    -------
+    LockstepRun
+    """
+    scenarios = list(scenarios)
+    durations = {s.run.duration_s for s in scenarios}
+    if len(durations) != 1:
+        raise ValueError(f"scenarios in one batch must share run.duration_s, got {sorted(durations)}")
+    per = overrides if isinstance(overrides, list) else [overrides] * len(scenarios)
+    cfgs = [algo_config(s, o) for s, o in zip(scenarios, per)]
+    params = [derive(c) for c in cfgs]
+    impls = [backends.make(a, cfgs) if isinstance(a, str) else a for a in algos]
+    names = [a if isinstance(a, str) else type(a).__name__ for a in algos]
+    batch = build_batch(scenarios)
+    bounds = _bounds(params)
+    v_per_code, code_max = batch.dac.v_per_code, batch.dac.code_max
+    r_unit = np.array([c.v_full_scale_v / c.i_full_scale_a / (1 << c.r_frac_bits) for c in cfgs])
+    corr_unit = np.array([c.dac_full_scale_v / (1 << c.dac_bits) / (1 << c.corr_frac_bits) for c in cfgs])
+    n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
+    n_b = len(scenarios)
+    rec = {name: np.empty((n_t, n_b), dtype=np.float32) for name in CHANNELS}
+    trace = {name: np.empty((n_t, n_b), dtype=np.int64) for name in TRACE_FIELDS}
+    batch.reset()
+    states = [impl.states() for impl in impls]
+    _check(-1, names, states, bounds)
+    cmd = np.asarray(states[0]["cmd"], dtype=np.int64)
+    for t in range(n_t):
+        command_v = np.clip(cmd, 0, code_max) * v_per_code
+        obs = batch.plant.step(command_v)
+        v_code, i_code = batch.sample(obs)
+        cmds = [np.asarray(impl.step(v_code, i_code), dtype=np.int64) for impl in impls]
+        for name, c in zip(names[1:], cmds[1:]):
+            if not np.array_equal(c, cmds[0]):
+                b = int(np.flatnonzero(c != cmds[0])[0])
+                raise Mismatch(f"sample {t}, scenario {b}: command differs: {names[0]}={cmds[0][b]} "
+                               f"{name}={c[b]}")
+        cmd = cmds[0]
+        st = impls[0].states() if (t % check_every == 0 or len(impls) == 1) else None
+        if t % check_every == 0:
+            _check(t, names, [st] + [impl.states() for impl in impls[1:]], bounds)
+        for name in TRACE_FIELDS:
+            trace[name][t] = st[name] if st is not None else impls[0].field(name)
+        rec["v_supply_v"][t], rec["i_supply_a"][t] = obs.v_supply_v, obs.i_supply_a
+        rec["v_load_v"][t], rec["command_v"][t] = obs.v_load_v, command_v
+        rec["r_estimate_ohm"][t] = trace["r_est"][t] * r_unit
+        rec["correction_v"][t] = trace["corr"][t] * corr_unit
+    t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
+    run = Run(t_s=t_s, channels=rec, scenarios=scenarios, cfgs=cfgs,
+              r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend="+".join(names),
+              compensation="linedrop")
+    return LockstepRun(run=run, trace=trace, bounds=bounds)
