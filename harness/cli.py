@@ -6,8 +6,9 @@ from algo.config import ConfigError
 from harness.errors import InputError
 from harness import cmd_bench, cmd_replay, cmd_simulate
 from harness import cmd_design
+from harness import cmd_tune
 
-COMMANDS = [cmd_simulate, cmd_replay, cmd_bench, cmd_design]
+COMMANDS = [cmd_simulate, cmd_replay, cmd_bench, cmd_design, cmd_tune]
 
 
 def build_parser():
