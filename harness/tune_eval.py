@@ -113,17 +113,24 @@ def _rejected(job, reason):
 
 
 def _limit_cycle(hist, tail_t, lsb):
-    """Toggle share and smallest |corr - target| (DAC LSB) over the tail windows."""
+    """Limit-cycle figures of the correction over the tail windows.
+
+    Returns (toggle share, smallest |corr - target| in DAC LSB, flag). The flag is set when the
+    correction is stuck (no step in any tail window) while more than one DAC LSB off its target,
+    or keeps toggling: it steps in at least 3/4 of the windows, reverses direction on at least
+    3/4 of its steps and stays within 2 DAC LSB peak to peak (a dead-band cycle, not tracking).
+    """
     rows = [h for h in hist if h[0] >= tail_t]
     if len(rows) < 4:
         return 0.0, 0.0, False
     corr = np.array([r[1] for r in rows])
     off = np.abs(corr - np.array([r[2] for r in rows])) * lsb
     d = np.diff(corr)
-    d = d[d != 0]
-    toggles = float(np.mean(np.sign(d[1:]) != np.sign(d[:-1]))) if d.size > 1 else 0.0
-    toggling = d.size >= 0.75 * (len(rows) - 1) and toggles >= 0.75
-    return toggles, float(off.min()), bool(toggling or off.min() > 1.0)
+    nz = d[d != 0]
+    toggles = float(np.mean(np.sign(nz[1:]) != np.sign(nz[:-1]))) if nz.size > 1 else 0.0
+    stuck = nz.size == 0 and bool((off > 1.0).all())
+    toggling = nz.size >= 0.75 * d.size and toggles >= 0.75 and np.ptp(corr) * lsb <= 2.0
+    return toggles, float(off.min()), bool(stuck or toggling)
 
 
 def _figures(job, sc, cfg, t_s, v_load, r_cable, hist, fixed):
