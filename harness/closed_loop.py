@@ -11,6 +11,9 @@ from harness.cable import temperature_scale
 
 COMPENSATIONS = ("linedrop", "none", "fixed", "difference")
 CHANNELS = ("v_supply_v", "i_supply_a", "v_load_v", "command_v", "r_estimate_ohm", "correction_v")
+#: Integer channels recorded only on request (exact in float32): the ADC codes the algorithm
+#: took at each sample and the command code it returned for the next one.
+CODE_CHANNELS = ("adc_v_code", "adc_i_code", "command_code")
 
 
 @dataclass
@@ -68,7 +71,7 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     progress : bool
         Show a progress bar.
     channels : sequence of str
-        Channels to record (all by default).
+        Channels to record: any of CHANNELS (all of them by default) and CODE_CHANNELS.
     """
     durations = {s.run.duration_s for s in scenarios}
     if len(durations) != 1:
@@ -93,7 +96,8 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
         v_code, i_code = batch.sample(obs)
         cmd = comp.step(v_code, i_code)
         row = {"v_supply_v": obs.v_supply_v, "i_supply_a": obs.i_supply_a, "v_load_v": obs.v_load_v,
-               "command_v": command_v}
+               "command_v": command_v, "adc_v_code": v_code, "adc_i_code": i_code,
+               "command_code": cmd}
         for name in channels:
             if name == "r_estimate_ohm":
                 rec[name][t] = comp.field("r_est") * r_unit
