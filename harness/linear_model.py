@@ -86,6 +86,46 @@ def continuous_model(r, l, c, esr, g, omega, is_open=False, current_mode=False):
     return m[:, :N_STATE], m[:, N_STATE:], y[:, :N_STATE], y[:, N_STATE:]
 
 
+def continuous_models(r, l, c, esr, g, omega, is_open, current_mode):
+    """:func:`continuous_model` of k scenarios at once, each from its own parameters.
+
+    Every branch is evaluated for all scenarios with the scalar function's own operations and
+    the one that applies is selected, so each matrix equals the scalar function's to the bit.
+    Arguments are arrays of shape (k,) (``current_mode`` may be a bool); returns a, b, c_out, d
+    of shape (k, 3, 3) each.
+    """
+    r, l, c, esr, g, omega = (np.asarray(a, dtype=float)[:, None] for a in (r, l, c, esr, g, omega))
+    k = r.shape[0]
+    e = [np.broadcast_to(row, (k, N_STATE + N_INPUT)) for row in np.eye(N_STATE + N_INPUT)]
+    zero = np.zeros((k, N_STATE + N_INPUT))
+    v_int = np.where(omega > 0, e[0], e[3])
+    is_open = np.broadcast_to(np.asarray(is_open, dtype=bool), (k,))[:, None]
+    current_mode = np.broadcast_to(np.asarray(current_mode, dtype=bool), (k,))[:, None]
+
+    def load_end(i):
+        return (esr * (i - e[4]) + e[2]) / (1.0 + esr * g)
+
+    with np.errstate(divide="ignore", invalid="ignore"):
+        v_open, v_cur, v_ind = load_end(zero), load_end(e[5]), load_end(e[1])
+        v_res = (esr * v_int / r - esr * e[4] + e[2]) / (1.0 + esr * g + esr / r)
+        dx1_ind = (v_int - r * e[1] - v_ind) / l
+        i_res = (v_int - v_res) / r
+    inductive = l > 0
+
+    def pick(open_, cur, ind, res):
+        return np.where(is_open, open_, np.where(current_mode, cur, np.where(inductive, ind, res)))
+
+    i = pick(zero, e[5], e[1], i_res)
+    v_load = pick(v_open, v_cur, v_ind, v_res)
+    v_sup = pick(v_int, r * e[5] + v_cur, v_int, v_int)
+    dx1 = pick(zero, zero, dx1_ind, zero)
+    dx0 = np.where(omega > 0, omega * (e[3] - e[0]), zero)
+    dx2 = (i - e[4] - g * v_load) / c
+    m = np.stack([dx0, dx1, dx2], axis=1)
+    y = np.stack([v_sup, i, v_load], axis=1)
+    return m[:, :, :N_STATE], m[:, :, N_STATE:], y[:, :, :N_STATE], y[:, :, N_STATE:]
+
+
 def expm_batch(m):
     """Matrix exponential of a stack of small matrices, Pade(13) with scaling and squaring.
 
@@ -147,20 +187,26 @@ def discretise(a, b, dt_s):
     return e[:, :n, :n], e[:, :n, n:]
 
 
+#: Rows of a step's output, in the order :meth:`DiscreteSystems.advance` returns them: the next
+#: state comes first with the cable current taken from the output (a dummy state otherwise),
+#: then the outputs at the end of the sample.
+OUT_ROWS = (0, 4, 2, 3, 5)  # of [x_next (3), y (3)]: v_int, i_supply, v_cap, v_supply, v_load
+
+
 class DiscreteSystems:
     """Voltage-mode and current-limit-mode discrete systems of B scenarios, refreshed by subset.
 
-    Attributes ``phi``, ``gamma``, ``c_out``, ``d`` have shape (2, B, 3, 3): index 0 is voltage
-    mode, 1 is current-limit mode.
+    One step is one matrix product per scenario, ``out = w @ [x, v_cmd, i_src(, i_lim)]``
+    with ``out = [v_int', i_supply, v_cap', v_supply, v_load]`` at the end of the sample
+    (:data:`OUT_ROWS`), built from the exact discretisation as
+    ``[[phi, gamma], [c_out phi, c_out gamma + d]]``. ``w[0]`` (voltage mode) has shape
+    (5, 5, B) and leaves out the current-limit input, which that mode does not use; ``w[1]``
+    (current-limit mode) has shape (6, 5, B). Both are stored input-major, scenario last.
     """
 
     def __init__(self, n_batch, dt_s):
         self.dt_s = dt_s
-        shape = (2, n_batch, N_STATE, N_STATE)
-        self.phi = np.zeros(shape)
-        self.gamma = np.zeros(shape)
-        self.c_out = np.zeros(shape)
-        self.d = np.zeros(shape)
+        self.w = (np.zeros((N_STATE + 2, 5, n_batch)), np.zeros((N_STATE + N_INPUT, 5, n_batch)))
 
     def refresh(self, idx, r, l, c, esr, g, omega, is_open):
         """Recompute the systems of scenarios ``idx`` from per-scenario parameter arrays (B,)."""
@@ -168,18 +214,16 @@ class DiscreteSystems:
         if idx.size == 0:
             return
         for mode in (0, 1):
-            mats = [continuous_model(r[b], l[b], c[b], esr[b], g[b], omega[b], bool(is_open[b]), bool(mode))
-                    for b in idx]
-            a = np.array([mm[0] for mm in mats])
-            bb = np.array([mm[1] for mm in mats])
-            phi, gamma = discretise(a, bb, self.dt_s)
-            self.phi[mode, idx] = phi
-            self.gamma[mode, idx] = gamma
-            self.c_out[mode, idx] = np.array([mm[2] for mm in mats])
-            self.d[mode, idx] = np.array([mm[3] for mm in mats])
+            a, b, c_out, d = continuous_models(r[idx], l[idx], c[idx], esr[idx], g[idx], omega[idx],
+                                               is_open[idx], bool(mode))
+            phi, gamma = discretise(a, b, self.dt_s)
+            full = np.concatenate([np.concatenate([phi, gamma], axis=2),
+                                   np.concatenate([c_out @ phi, c_out @ gamma + d], axis=2)], axis=1)
+            w = full[:, OUT_ROWS, :self.w[mode].shape[0]]
+            self.w[mode][:, :, idx] = w.transpose(2, 1, 0)
 
-    def advance(self, mode, x, u):
-        """One step in ``mode`` (0 or 1) for all scenarios: returns (x_next, y_next), each (B, 3)."""
-        x_next = np.einsum("bij,bj->bi", self.phi[mode], x) + np.einsum("bij,bj->bi", self.gamma[mode], u)
-        y = np.einsum("bij,bj->bi", self.c_out[mode], x_next) + np.einsum("bij,bj->bi", self.d[mode], u)
-        return x_next, y
+    def advance(self, mode, z, idx=None):
+        """One step in ``mode`` (0 or 1): ``z`` is [x, v_cmd, i_src(, i_lim)] of shape (5 or 6, m)
+        for scenarios ``idx`` (all by default); returns the (5, m) output rows of :data:`OUT_ROWS`."""
+        w = self.w[mode] if idx is None else self.w[mode][:, :, idx]
+        return np.einsum("jib,jb->ib", w, z)

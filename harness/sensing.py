@@ -36,20 +36,21 @@ class Adc:
         self.offset = arr(lambda s: s.offset_lsb)
         self.sigma = arr(lambda s: s.noise_lsb_rms)
         self._rngs = [np.random.default_rng(seed) for seed in seeds]
-        self._noise = np.zeros((len(self.specs), 2, 0))
+        n = len(self.specs)
+        self._lsb = np.stack([self.v_lsb_per_v, self.i_lsb_per_a])
+        self._code_max = self.code_max.astype(float)
+        self._raw = np.empty((2, n))
+        self._noise = np.zeros((0, 2, n))
         self._pos = 0
 
     def _draw(self):
-        if self._pos >= self._noise.shape[2]:
-            self._noise = np.stack([rng.standard_normal((2, _NOISE_BLOCK)) for rng in self._rngs])
+        """Scaled noise (LSB) of both channels for the next sample, (2, B); drawn a block at a time."""
+        if self._pos >= self._noise.shape[0]:
+            block = np.stack([rng.standard_normal((2, _NOISE_BLOCK)) for rng in self._rngs])
+            self._noise = np.ascontiguousarray(block.transpose(2, 1, 0)) * self.sigma
             self._pos = 0
-        n = self._noise[:, :, self._pos]
         self._pos += 1
-        return n[:, 0] * self.sigma, n[:, 1] * self.sigma
-
-    def _code(self, x_lsb, noise):
-        raw = x_lsb * self.gain + self.offset + noise
-        return np.clip(np.floor(raw + 0.5), 0, self.code_max).astype(np.int64)
+        return self._noise[self._pos - 1]
 
     def convert(self, v_supply_v, i_supply_a, stuck_v=None, stuck_i=None):
         """Convert one sample of each scenario.
@@ -68,9 +69,17 @@ class Adc:
         v_code, i_code : ndarray of int64, shape (B,)
             Codes in [0, 2**adc_bits - 1].
         """
-        nv, ni = self._draw()
-        v_code = self._code(np.asarray(v_supply_v, float) * self.v_lsb_per_v, nv)
-        i_code = self._code(np.asarray(i_supply_a, float) * self.i_lsb_per_a, ni)
+        raw = self._raw
+        raw[0], raw[1] = v_supply_v, i_supply_a
+        np.multiply(raw, self._lsb, out=raw)
+        np.multiply(raw, self.gain, out=raw)
+        np.add(raw, self.offset, out=raw)
+        np.add(raw, self._draw(), out=raw)
+        np.add(raw, 0.5, out=raw)
+        np.floor(raw, out=raw)
+        np.maximum(raw, 0.0, out=raw)
+        np.minimum(raw, self._code_max, out=raw)
+        v_code, i_code = raw.astype(np.int64)
         if stuck_v is not None:
             v_code = np.where(stuck_v >= 0, stuck_v, v_code)
         if stuck_i is not None:
