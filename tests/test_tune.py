@@ -1,0 +1,168 @@
+"""linedrop tune: the demo's quick recommendation, its most sensitive knob, cache resume, Dask, bad input, rejection."""
+import contextlib
+import csv
+import dataclasses
+import io
+import json
+import os
+
+import pytest
+
+from algo.config import AlgoConfig
+from algo.params import derive
+from harness import range_check
+from harness.cli import main
+from harness.cmd_simulate import DEMO
+from harness.scenario import load_scenario
+from harness.tune_eval import KNOBS
+from harness.tune_run import Cache, Runner
+from harness.tune_search import Tuner
+
+SPEC = {"max_error_mv": 80.0, "max_settle_ms": 300.0, "min_gain_margin": 1.25, "max_ideal_ratio": 2.0}
+SPEC_ARGS = ["--max-error-mv", "80", "--max-settle-ms", "300"]
+QUICK_S = 0.3
+# A small sweep (two knobs, short runs) for the cache and scheduler tests.
+SMALL = ["--knobs", "corr_frac_bits,table_bits", "--duration-s", "0.2", "--max-error-mv", "200",
+         "--max-settle-ms", "150", "--quick"]
+
+
+def _tune(argv, capsys):
+    rc = main(["tune", *argv, "--json"])
+    return rc, json.loads(capsys.readouterr().out)
+
+
+@pytest.fixture(scope="module")
+def quick(tmp_path_factory):
+    """The demo's quick sweep, run once for the module: (JSON output, output folder)."""
+    out = tmp_path_factory.mktemp("tune")
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        rc = main(["tune", DEMO, "--quick", *SPEC_ARGS, "--out", str(out), "--json"])
+    assert rc == 0
+    return json.loads(buf.getvalue()), out
+
+
+def _fresh(tmp_path, configs):
+    """Re-run ``configs`` on the demo with an empty cache (one round, local processes)."""
+    runner = Runner(Cache(str(tmp_path / "fresh.jsonl")), QUICK_S, progress=False)
+    try:
+        tuner = Tuner([load_scenario(DEMO)], runner, SPEC)
+        return tuner.evaluate(configs, "check"), runner.new
+    finally:
+        runner.close()
+
+
+def test_quick_recommendation_meets_the_spec_within_twice_the_float_ideal(quick):
+    out, _ = quick
+    rec = out["recommended"]
+    assert rec["status"] == "ok" and rec["meets_spec"]
+    assert rec["error_mv"] <= SPEC["max_error_mv"]
+    assert rec["settle_ms"] is not None and rec["settle_ms"] <= SPEC["max_settle_ms"]
+    assert rec["error_mv"] <= 2 * rec["ideal_error_mv"]
+    assert rec["cost"] < out["start"]["cost"]
+    assert out["evaluated_new"] > 0
+
+
+def test_one_bit_less_on_the_most_sensitive_knob_breaks_the_spec(quick, tmp_path):
+    out, _ = quick
+    rec, knob = out["recommended"], out["most_sensitive_knob"]
+    assert knob is not None
+    settings = {k: rec[k] for k in KNOBS}
+    lower = dict(settings, **{knob: settings[knob] - 1})
+    (again, below), new = _fresh(tmp_path, [settings, lower])
+    # Two model runs and their ideal (shared unless a filter shift differs), none from the cache.
+    assert new == (4 if knob.endswith("_shift") else 3)
+    assert again["meets_spec"] and again["error_mv"] == pytest.approx(rec["error_mv"], rel=1e-12)
+    assert not below["meets_spec"]
+    assert below["severity"] > 1.0
+
+
+def test_every_evaluated_configuration_is_in_the_csv_and_the_plots_are_pngs(quick):
+    out, folder = quick
+    with open(out["csv"], newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert len(rows) == out["configurations"]
+    assert {r["phase"] for r in rows} >= {"sweep", "polish"}
+    for path in out["plots"]:
+        with open(path, "rb") as f:
+            assert f.read(8) == b"\x89PNG\r\n\x1a\n"
+    simulated = [r for r in rows if r["status"] == "ok"]
+    assert simulated and all(int(r["acc_peak"]) <= int(r["acc_bound"]) for r in simulated)
+    assert all(r["within_bounds"] == "True" for r in simulated)
+    assert not [p for p in os.listdir(folder) if p.startswith(".tmp-")]
+
+
+def test_overflowing_accumulators_are_rejected_not_simulated(quick):
+    out, _ = quick
+    with open(out["csv"], newline="") as f:
+        rows = list(csv.DictReader(f))
+    generous = {"adc_bits": "16", "table_bits": "16"}
+    narrow = [r for r in rows if r["acc_bits"] == "20" and all(r[k] == v for k, v in generous.items())]
+    assert narrow and all(r["status"] == "rejected" and r["error_mv"] == "" for r in narrow)
+    assert all("acc_bits" in r["reason"] for r in narrow)
+    assert out["rejected"] >= len(narrow)
+
+
+def test_range_analysis_rejects_a_block_whose_accumulators_can_overflow():
+    cfg = AlgoConfig(adc_bits=16, table_bits=16, acc_bits=24)
+    p = derive(cfg)
+    assert not range_check.overflows(range_check.analyse(p))
+    # The same demodulation shift with a narrower declared accumulator can overflow.
+    bad = range_check.overflows(range_check.analyse(dataclasses.replace(p, acc_bits=p.acc_bits - 1)))
+    assert {b.name for b in bad} == {"acc_vi", "acc_vq", "acc_ii", "acc_iq"}
+    with pytest.raises(Exception, match="acc_bits"):
+        derive(cfg.with_(acc_bits=20))
+
+
+def test_tuner_reports_a_rejected_configuration_with_its_reason(tmp_path):
+    (row,), new = _fresh(tmp_path, [{"adc_bits": 16, "table_bits": 16, "acc_bits": 20}])
+    assert row["status"] == "rejected" and not row["meets_spec"]
+    assert "too narrow" in row["reason"] and "error_mv" not in row
+    assert new == 2     # the ideal ran; the model job was answered by the rejection, without a run
+
+
+def test_second_run_resumes_from_the_cache_and_evaluates_nothing_new(tmp_path, capsys):
+    argv = [DEMO, *SMALL, "--out", str(tmp_path / "a")]
+    rc1, first = _tune(argv, capsys)
+    rc2, second = _tune(argv, capsys)
+    assert rc1 == rc2 == 0
+    assert first["evaluated_new"] > 0 and second["evaluated_new"] == 0
+    assert second["recommended"] == first["recommended"]
+
+
+def test_an_interrupted_sweep_reruns_only_the_missing_jobs(tmp_path, capsys):
+    argv = [DEMO, *SMALL, "--out", str(tmp_path / "a")]
+    _, full = _tune(argv, capsys)
+    cache = tmp_path / "a" / "tune-cache.jsonl"
+    lines = cache.read_text().splitlines(keepends=True)
+    keep = len(lines) // 2
+    cache.write_text("".join(lines[:keep]) + lines[keep][: len(lines[keep]) // 2])   # torn last line
+    _, resumed = _tune(argv, capsys)
+    assert resumed["evaluated_new"] == full["evaluated_new"] - keep
+    assert resumed["recommended"] == full["recommended"]
+
+
+def test_dask_local_cluster_gives_the_same_recommendation_as_local_processes(tmp_path, capsys):
+    distributed = pytest.importorskip("distributed")
+    _, local = _tune([DEMO, *SMALL, "--out", str(tmp_path / "local")], capsys)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as cluster:
+        _, dask = _tune([DEMO, *SMALL, "--out", str(tmp_path / "dask"), "--scheduler",
+                         cluster.scheduler_address], capsys)
+    assert dask["evaluated_new"] == local["evaluated_new"] > 0
+    assert dask["recommended"] == local["recommended"]
+
+
+@pytest.mark.parametrize("argv, needle", [
+    (["missing.toml"], "missing.toml"),
+    ([DEMO, "--max-error-mv", "-5"], "--max-error-mv"),
+    ([DEMO, "--max-settle-ms", "0"], "--max-settle-ms"),
+    ([DEMO, "--max-ideal-ratio", "nan"], "--max-ideal-ratio"),
+    ([DEMO, "--knobs", "adc_bits,gain"], "--knobs"),
+    ([DEMO, "--duration-s", "-1"], "--duration-s"),
+])
+def test_bad_input_exits_2_with_one_line(argv, needle, tmp_path, capsys):
+    assert main(["tune", *argv, "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and needle in err and err.startswith("linedrop tune: error:")
+    assert not (tmp_path / "o").exists()
