@@ -8,9 +8,12 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 SOURCES = ["step.c", "estimator.c", "batch.c"]
 
 
-def cdef_text():
-    """linedrop.h reduced to what cffi's cdef accepts: integer #defines, types, prototypes."""
-    with open(os.path.join(HERE, "linedrop.h")) as f:
+def cdef_text(header=os.path.join(HERE, "linedrop.h")):
+    """A linedrop.h (c_ref's own by default) reduced to what cffi's cdef accepts.
+
+    Keeps integer ``#define LD_*`` lines, types and prototypes.
+    """
+    with open(header) as f:
         text = f.read()
     keep = []
     for line in text.splitlines():
