@@ -15,7 +15,8 @@ float ideal's on the same run, the observed accumulators stay inside their stati
 and the small-signal loop model (harness.design.loop_summary) gives a gain margin of at least
 ``--min-gain-margin``. Configurations whose range analysis shows a possible overflow are
 rejected and never simulated. ``--json`` prints one object: recommended (knobs and figures),
-csv, plots, most_sensitive_knob, one_bit_less, spec, cost_definition, configurations, rejected,
+csv, plots, most_sensitive_knob, one_bit_less, sensitivity (severity rise per bit of cost saved,
+in the one-knob sweep), lowest_alone (each knob's lowest passing value in that sweep), start, spec, cost_definition, configurations, rejected,
 evaluated_new, evaluated_cached. Exit status 0 with a recommendation, 1 when none meets the spec.
 """
 import json
@@ -119,6 +120,8 @@ def run(args):
         out = {"recommended": None if rec is None else {k: _json_value(v) for k, v in rec.items()},
                "csv": paths["csv"], "plots": [paths["knobs_png"], paths["pareto_png"]],
                "most_sensitive_knob": result["most_sensitive"],
+               "sensitivity": {k: _json_value(v) for k, v in result["sensitivity"].items()},
+               "lowest_alone": result["lowest_alone"],
                "one_bit_less": {k: {c: _json_value(v) for c, v in r.items()}
                                 for k, r in result["neighbours"].items()},
                "start": {k: _json_value(v) for k, v in result["start"].items()},

@@ -10,10 +10,13 @@ import json
 import math
 import os
 
+from harness.errors import InputError
 from harness.tune_eval import evaluate
 
 #: Largest number of jobs simulated in one lockstep batch.
 MAX_CHUNK = 40
+#: Seconds to wait for a Dask scheduler before giving up.
+CONNECT_TIMEOUT_S = 10
 
 
 class Cache:
@@ -88,8 +91,12 @@ class Runner:
         self.workers = workers
         if scheduler is not None:
             from distributed import Client
-            self._client = scheduler if isinstance(scheduler, Client) else Client(scheduler)
             self._own_client = not isinstance(scheduler, Client)
+            try:
+                self._client = Client(scheduler, timeout=CONNECT_TIMEOUT_S) if self._own_client else scheduler
+            except (OSError, TimeoutError) as exc:
+                raise InputError(f"--scheduler: cannot reach a Dask scheduler at {scheduler}: "
+                                 f"{str(exc).splitlines()[0] if str(exc) else type(exc).__name__}") from None
             self.workers = max(1, sum(self._client.nthreads().values()))
         from tqdm import tqdm
         self.bar = tqdm(total=0, desc="tune", unit="run", disable=None if progress else True,

@@ -206,5 +206,6 @@ class Tuner:
         out["neighbours"] = neigh
         simulated = {k: r for k, r in neigh.items() if r["status"] == "ok"}
         if simulated:
-            out["most_sensitive"] = max(simulated, key=lambda k: simulated[k]["severity"])
+            out["most_sensitive"] = max(simulated, key=lambda k: (simulated[k]["severity"],
+                                                                  simulated[k]["error_mv"]))
         return out
