@@ -186,11 +186,12 @@ def build_port(c_dir):
                 raise PortError(f"{c_dir}: the cffi wrapper around the port does not build "
                                 f"({exc.__class__.__name__}): {first}", rest) from None
             spec = importlib.util.spec_from_file_location(name, so)
-            mod = importlib.util.module_from_spec(spec)
             try:
+                mod = importlib.util.module_from_spec(spec)
                 spec.loader.exec_module(mod)
             except ImportError as exc:
-                raise PortError(f"{c_dir}: the port does not link: {str(exc).split(': ')[-1]}") from None
+                why = str(exc).rsplit(".so: ", 1)[-1]
+                raise PortError(f"{c_dir}: the port does not load: {why}; it must define {', '.join(API)}") from None
         _loaded[name] = Port(mod.ffi, mod.lib)
     return _loaded[name]
 
