@@ -6,11 +6,11 @@ from algo.config import ConfigError
 from harness.errors import InputError
 from harness import cmd_bench, cmd_replay, cmd_simulate
 from harness import cmd_design
+from harness import cmd_tune
 from harness import cmd_vectors
 from harness import cmd_check_port
-from harness import cmd_tune
 
-COMMANDS = [cmd_simulate, cmd_replay, cmd_bench, cmd_design, cmd_tune]
+COMMANDS = [cmd_simulate, cmd_replay, cmd_bench, cmd_design, cmd_tune, cmd_vectors, cmd_check_port]
 
 
 def build_parser():
