@@ -1,4 +1,4 @@
-"""``linedrop bench``: throughput of the C batch and the Python model, measured side by side."""
+"""``linedrop bench``: throughput of the C batch, the Python model and the closed loop, side by side."""
 import json
 import time
 
@@ -34,6 +34,26 @@ def _rate(fn, samples):
     return samples / (time.perf_counter() - t0)
 
 
+def _closed_loop_rate(backend, n, samples):
+    """Scenario-samples per second of the whole closed loop (plant, ADC, algorithm, recording)
+    on ``n`` copies of the bundled demo scenario, ``samples`` samples long, setup included."""
+    from dataclasses import replace
+    from pathlib import Path
+
+    from harness.closed_loop import simulate
+    from harness.scenario import load_scenario
+    sc = load_scenario(Path(__file__).parent / "scenarios" / "demo_mast.toml")
+    # A shorter run, with the cable warming at the scenario's own rate (the ramp ends with the run).
+    duration_s = samples / sc.sensing.sample_rate_hz
+    cable = sc.cable
+    if cable.temperature_end_c is not None:
+        end_c = cable.temperature_c + (cable.temperature_end_c - cable.temperature_c) * duration_s / sc.run.duration_s
+        cable = replace(cable, temperature_end_c=end_c)
+    sc = replace(sc, cable=cable, run=replace(sc.run, duration_s=duration_s))
+    return _rate(lambda: simulate([sc] * n, backend, channels=("v_load_v", "i_supply_a", "v_supply_v")),
+                 n * samples)
+
+
 def measure(n=1024):
     """Return the throughput figures (samples per second) as a dict."""
     from c_ref.binding import CBatch
@@ -48,6 +68,9 @@ def measure(n=1024):
                                        len(v1))
     bm = BatchModel([p] * n)
     out["model_batch_samples_per_s"] = _rate(lambda: bm.run(v[:, :512], i[:, :512]), n * 512)
+    out["closed_loop_batch_samples_per_s"] = _closed_loop_rate("model", n, 4096)
+    out["closed_loop_single_samples_per_s"] = _closed_loop_rate("model", 1, 8192)
+    out["closed_loop_c_batch_samples_per_s"] = _closed_loop_rate("c", n, 4096)
     return out
 
 

@@ -213,14 +213,18 @@ class DiscreteSystems:
         idx = np.asarray(idx)
         if idx.size == 0:
             return
-        for mode in (0, 1):
-            a, b, c_out, d = continuous_models(r[idx], l[idx], c[idx], esr[idx], g[idx], omega[idx],
-                                               is_open[idx], bool(mode))
-            phi, gamma = discretise(a, b, self.dt_s)
-            full = np.concatenate([np.concatenate([phi, gamma], axis=2),
-                                   np.concatenate([c_out @ phi, c_out @ gamma + d], axis=2)], axis=1)
-            w = full[:, OUT_ROWS, :self.w[mode].shape[0]]
-            self.w[mode][:, :, idx] = w.transpose(2, 1, 0)
+        # Scenarios with identical parameters (a batch of copies) share one discretisation.
+        params = np.stack([r[idx], l[idx], c[idx], esr[idx], g[idx], omega[idx], is_open[idx]], axis=1)
+        params, inverse = np.unique(params, axis=0, return_inverse=True)
+        both = np.concatenate([params, params])  # voltage mode, then current-limit mode
+        current_mode = np.repeat([False, True], len(params))
+        a, b, c_out, d = continuous_models(*both[:, :6].T, both[:, 6] != 0, current_mode)
+        phi, gamma = discretise(a, b, self.dt_s)
+        full = np.concatenate([np.concatenate([phi, gamma], axis=2),
+                               np.concatenate([c_out @ phi, c_out @ gamma + d], axis=2)], axis=1)
+        for mode, rows in enumerate((slice(0, len(params)), slice(len(params), None))):
+            w = full[rows][:, OUT_ROWS, :self.w[mode].shape[0]]
+            self.w[mode][:, :, idx] = w[inverse.ravel()].transpose(2, 1, 0)
 
     def advance(self, mode, z, idx=None):
         """One step in ``mode`` (0 or 1): ``z`` is [x, v_cmd, i_src(, i_lim)] of shape (5 or 6, m)

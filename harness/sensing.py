@@ -4,6 +4,8 @@ import numpy as np
 
 #: Noise samples drawn per scenario at a time (the noise sequence does not depend on it).
 _NOISE_BLOCK = 4096
+#: Scenarios whose noise blocks are transposed together (keeps the transpose in cache).
+_TRANSPOSE_CHUNK = 64
 
 
 class Adc:
@@ -44,10 +46,21 @@ class Adc:
         self._pos = 0
 
     def _draw(self):
-        """Scaled noise (LSB) of both channels for the next sample, (2, B); drawn a block at a time."""
+        """Scaled noise (LSB) of both channels for the next sample, (2, B); drawn a block at a time.
+
+        Each scenario's generator fills a (2, block) array as before; those are transposed a
+        few scenarios at a time into sample-major order, so a sample's noise is contiguous."""
         if self._pos >= self._noise.shape[0]:
-            block = np.stack([rng.standard_normal((2, _NOISE_BLOCK)) for rng in self._rngs])
-            self._noise = np.ascontiguousarray(block.transpose(2, 1, 0)) * self.sigma
+            n = len(self._rngs)
+            if self._noise.shape[0] == 0:
+                self._noise = np.empty((_NOISE_BLOCK, 2, n))
+                self._scratch = np.empty((min(n, _TRANSPOSE_CHUNK), 2, _NOISE_BLOCK))
+            for b0 in range(0, n, _TRANSPOSE_CHUNK):
+                rngs = self._rngs[b0:b0 + _TRANSPOSE_CHUNK]
+                for j, rng in enumerate(rngs):
+                    rng.standard_normal(out=self._scratch[j])
+                self._noise[:, :, b0:b0 + len(rngs)] = self._scratch[:len(rngs)].transpose(2, 1, 0)
+            self._noise *= self.sigma
             self._pos = 0
         self._pos += 1
         return self._noise[self._pos - 1]
