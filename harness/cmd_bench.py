@@ -16,6 +16,9 @@ def add_parser(sub):
                                    "with machine load; compare ratios, not absolutes.")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--instances", type=int, default=1024, help="batch size (default 1024)")
+    p.add_argument("--firmware", action="store_true",
+                   help="instead, the firmware cost on Cortex-M4 and M0+: instructions per "
+                        "ld_step (emulated), code, state and stack bytes (needs arm-none-eabi-gcc)")
     p.set_defaults(func=run)
 
 
@@ -75,6 +78,14 @@ def measure(n=1024):
 
 
 def run(args):
+    if args.firmware:
+        from c_ref.cortexm.build import toolchain_missing
+        reason = toolchain_missing()
+        if reason:
+            from harness.errors import InputError
+            raise InputError(f"--firmware: {reason}")
+        from harness import firmware_cost
+        return firmware_cost.main(["--json"] if args.json else [])
     if args.instances < 1:
         from harness.errors import InputError
         raise InputError(f"--instances = {args.instances}: must be at least 1")
