@@ -1,0 +1,124 @@
+"""linedrop vectors: descriptive files, provenance, every fault and window status, byte-identical reruns."""
+import dataclasses
+import hashlib
+import json
+import os
+
+import numpy as np
+import pytest
+
+from algo import VERSION
+from algo.config import AlgoConfig
+from algo.params import derive
+from algo.state import STATE_FIELDS, STATUS_NAMES
+from harness import vectors
+from harness.cli import main
+from harness.cmd_vectors import DEMO
+from harness.scenario import load_scenario
+from harness.specs import FAULT_KINDS
+from harness.vector_files import COLUMNS, parse_vector_csv
+
+# Short runs keep the test quick; the long run still spans several windows.
+ARGS = ["--duration-s", "0.12", "--long-s", "0.2", "--seed", "7"]
+NAMES = ["normal", "load_step", "fault_cable_open", "fault_cap_open", "fault_load_short",
+         "fault_adc_stuck_i", "fault_adc_stuck_v", "long", "extreme_codes"]
+
+
+@pytest.fixture(scope="module")
+def vec_dir(tmp_path_factory):
+    out = tmp_path_factory.mktemp("vectors")
+    assert main(["vectors", "--out", str(out), *ARGS]) == 0
+    return out
+
+
+def _note(vec_dir):
+    return json.loads((vec_dir / "demo_mast-vectors.json").read_text())
+
+
+def _rows(vec_dir, name):
+    path = vec_dir / f"demo_mast-{name}.csv"
+    return parse_vector_csv(str(path), path.read_text())
+
+
+def test_rerun_with_the_same_inputs_writes_byte_identical_files(vec_dir, tmp_path):
+    assert main(["vectors", DEMO, "--out", str(tmp_path), *ARGS]) == 0
+    first = sorted(os.listdir(vec_dir))
+    assert first == sorted(os.listdir(tmp_path))
+    for name in first:
+        assert (vec_dir / name).read_bytes() == (tmp_path / name).read_bytes(), name
+
+
+def test_another_seed_changes_the_closed_loop_vectors(vec_dir, tmp_path):
+    assert main(["vectors", "--out", str(tmp_path), *ARGS[:-1], "8"]) == 0
+    assert (vec_dir / "demo_mast-normal.csv").read_bytes() != (tmp_path / "demo_mast-normal.csv").read_bytes()
+
+
+def test_files_have_descriptive_names_a_header_line_and_one_row_per_sample(vec_dir):
+    expected = {f"demo_mast-{n}.csv" for n in NAMES} | {"demo_mast-vectors.json", "demo_mast-params.h"}
+    assert set(os.listdir(vec_dir)) == expected
+    for entry in _note(vec_dir)["vectors"]:
+        lines = (vec_dir / entry["file"]).read_text().splitlines()
+        assert lines[0] == "adc_v,adc_i,cmd," + ",".join(STATE_FIELDS)
+        assert len(lines) - 1 == entry["samples"] > 0
+
+
+def test_every_fault_kind_has_its_own_closed_loop_variant():
+    scenario = load_scenario(DEMO)
+    variants = vectors.closed_loop_variants(scenario, 0.5)
+    kinds = {sc.faults[0].kind for _, _, sc in variants if sc.faults}
+    assert kinds == set(FAULT_KINDS)
+    normal = dict((n, sc) for n, _, sc in variants)["normal"]
+    assert normal.faults == () and normal.load.steps == ()
+
+
+def test_every_window_status_appears_somewhere_in_the_set(vec_dir):
+    seen = set()
+    for name in NAMES:
+        seen |= set(_rows(vec_dir, name)[:, COLUMNS.index("status")].tolist())
+    assert seen == set(STATUS_NAMES)
+
+
+def test_extreme_vector_holds_zero_full_scale_and_clamped_65535_codes(vec_dir):
+    rows = _rows(vec_dir, "extreme_codes")
+    adc_max = derive(AlgoConfig(**_note(vec_dir)["algo_config"])).adc_max
+    for col in (0, 1):
+        assert {0, adc_max, 65535} <= set(rows[:, col].tolist())
+
+
+def test_long_run_defaults_to_at_least_200_windows():
+    cfg = AlgoConfig()
+    assert vectors.long_duration(cfg) * cfg.sample_rate_hz / cfg.window_samples >= 200
+
+
+def test_provenance_names_scenario_settings_params_seed_and_version(vec_dir):
+    note = _note(vec_dir)
+    cfg = AlgoConfig(**note["algo_config"])
+    assert note["scenario"] == {"file": "demo_mast.toml",
+                                "sha256": hashlib.sha256(open(DEMO, "rb").read()).hexdigest()}
+    assert note["params_fingerprint"] == derive(cfg).fingerprint()
+    assert note["generator_seed"] == 7 and note["tool_version"] == VERSION
+    assert note["word_lengths"]["adc_bits"] == cfg.adc_bits
+    assert note["word_lengths"]["state"]["windows"] == "uint32_t"
+    assert dataclasses.asdict(cfg) == note["algo_config"]
+    header = (vec_dir / note["params_header"]).read_text()
+    assert f'"{note["params_fingerprint"]}"' in header and "static const ld_params_t" in header
+    for entry in note["vectors"]:
+        assert hashlib.sha256((vec_dir / entry["file"]).read_bytes()).hexdigest() == entry["sha256"]
+
+
+def test_closed_loop_vector_is_what_the_model_answers_for_its_inputs(vec_dir):
+    rows = _rows(vec_dir, "load_step")
+    params = derive(AlgoConfig(**_note(vec_dir)["algo_config"]))
+    assert np.array_equal(vectors.model_trace(params, rows[:, 0], rows[:, 1]), rows[:, 2:])
+
+
+@pytest.mark.parametrize("args, message", [
+    (["/nonexistent/x.toml"], "cannot read scenario"),
+    (["--duration-s", "0"], "--duration-s"),
+    (["--long-s", "-1"], "--long-s"),
+])
+def test_bad_input_exits_2_with_one_line(tmp_path, capsys, args, message):
+    assert main(["vectors", "--out", str(tmp_path), *args]) == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1 and message in err
+    assert os.listdir(tmp_path) == []
