@@ -191,7 +191,8 @@ def build_port(c_dir):
                 spec.loader.exec_module(mod)
             except ImportError as exc:
                 why = str(exc).rsplit(".so: ", 1)[-1]
-                raise PortError(f"{c_dir}: the port does not load: {why}; it must define {', '.join(API)}") from None
+                raise PortError(f"{c_dir}: the port does not load: {why}; "
+                                f"it must define {', '.join(API)}") from None
         _loaded[name] = Port(mod.ffi, mod.lib)
     return _loaded[name]
 

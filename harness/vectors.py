@@ -56,9 +56,9 @@ def _without_steps(load):
 
 
 def _with_step(scenario, duration_s):
-    """The scenario's own load steps, or one derived step when it has none; also returns how."""
+    """The scenario's own load steps, or a derived one when none falls in the run; also says which."""
     load = scenario.load
-    if load.steps:
+    if any(at < duration_s for at, _ in load.steps):
         return scenario, "the scenario's own load steps"
     if load.kind == "lamp":
         run = replace(scenario.run, start="cold")
@@ -80,8 +80,8 @@ def _fault(scenario, duration_s, kind, channel=None):
     if kind == "adc_stuck":
         code = int(STUCK_FRACTION * (1 << scenario.sensing.adc_bits))
     spec = FaultSpec(kind=kind, at_s=at, until_s=until, code=code, channel=channel)
-    return spec, f"{kind}{'' if channel is None else ' (' + channel + ' channel at ' + str(code) + ')'} " \
-                 f"from {at:g} s to {until:g} s"
+    what = kind if channel is None else f"{kind} ({channel} channel at code {code})"
+    return spec, f"{what} from {at:g} s to {until:g} s"
 
 
 def closed_loop_variants(scenario, duration_s):

@@ -1,4 +1,4 @@
-"""linedrop check-port: passes on c_ref, finds the first wrong sample of a broken copy, checks logs, rejects bad input.
+"""linedrop check-port: c_ref passes, a broken copy fails at its first wrong sample, logs, bad input.
 
 The first divergence of a broken copy is found independently of the checker:
 the copy is built with the text-vector replay driver (plain gcc, no cffi)
@@ -16,6 +16,7 @@ import pytest
 from c_ref import textvec
 from cbuild import C_REF, DRIVER, STRICT, gcc, run_driver
 from harness.cli import main
+from harness.port_check import LABELS
 from harness.vector_files import COLUMNS, params_from_note, parse_vector_csv
 from tools import require_tool
 
@@ -61,7 +62,8 @@ def _break(port, change):
 
 
 def _first_divergence_by_driver(port, vec_dir, tmp_path):
-    """(file, index) of the first row where the replay driver built from ``port`` differs from the vectors."""
+    """(file, index, differing columns) of the first row where the replay driver built from ``port``
+    differs from the vectors."""
     exe = str(tmp_path / "replay")
     res = gcc([*STRICT, "-O2", "-I", str(port), DRIVER, str(port / "step.c"), str(port / "estimator.c"),
                "-o", exe])
@@ -71,10 +73,12 @@ def _first_divergence_by_driver(port, vec_dir, tmp_path):
     for entry in note["vectors"]:
         rows = parse_vector_csv(entry["file"], (vec_dir / entry["file"]).read_text())
         out = run_driver(exe, textvec.dumps([(params, textvec.samples(rows[:, 0], rows[:, 1]))]))
-        got = np.array([[cmd] + [st[f] for f in OUTPUT_FIELDS[1:]] for cmd, st in textvec.parse_output(out.stdout)])
+        got = np.array([[cmd] + [st[f] for f in OUTPUT_FIELDS[1:]]
+                        for cmd, st in textvec.parse_output(out.stdout)])
         bad = np.flatnonzero((got != rows[:, 2:]).any(axis=1))
         if bad.size:
-            return entry["file"], int(bad[0])
+            k = int(bad[0])
+            return entry["file"], k, [LABELS[c] for c in np.flatnonzero(got[k] != rows[k, 2:])]
     return None
 
 
@@ -102,7 +106,8 @@ def test_one_line_change_is_reported_at_its_true_first_wrong_sample(vec_dir, tmp
     assert f"first divergence in {truth[0]} at sample {truth[1]} " in out
     rows = parse_vector_csv(truth[0], (vec_dir / truth[0]).read_text())
     assert f"inputs: adc_v={rows[truth[1], 0]} adc_i={rows[truth[1], 1]}" in out
-    assert "<-- differs" in out and "samples before it" in out or truth[1] == 0
+    assert f"differs: {', '.join(truth[2])}\n" in out
+    assert truth[1] == 0 or "samples before it" in out
     listed = re.findall(r"^  [* ] (\S+(?: \(\w+\))?)\s+-?\d+\s+-?\d+", out, flags=re.M)
     assert len(listed) == len(COLUMNS) - 2
 
