@@ -6,7 +6,7 @@ import os
 from harness.atomic import atomic_write
 from harness.tune_eval import KNOBS
 
-COLUMNS = ["config", "phase", *KNOBS, "cost", "status", "reason", "meets_spec", "severity",
+COLUMNS = ["config", "phase", *KNOBS, "cost", "status", "reason", "meets_spec", "fails", "severity",
            "error_mv", "ideal_error_mv", "error_ratio", "settle_ms", "ideal_settle_ms", "converge_ms",
            "ideal_converge_ms", "est_error_ohm", "ripple_mv", "ideal_ripple_mv", "limit_cycle",
            "ideal_limit_cycle", "toggle_share", "acc_peak", "acc_bound", "acc_headroom_bits",
@@ -135,7 +135,8 @@ def summary(result, knobs, spec, paths, counts):
         lines.append(f"  cost of the generous start: {st['cost']} (error {_fmt(st['error_mv'], ' mV')})")
         for k, r in result["neighbours"].items():
             what = (r["reason"] if r["status"] != "ok" else
-                    f"error {_fmt(r['error_mv'], ' mV')}, settling {_fmt(r['settle_ms'], ' ms')}")
+                    f"error {_fmt(r['error_mv'], ' mV')} (ideal {_fmt(r['ideal_error_mv'], ' mV')}), settling "
+                    f"{_fmt(r['settle_ms'], ' ms')}; fails: {r['fails'] or 'nothing'}")
             mark = "  <- most sensitive" if k == result["most_sensitive"] else ""
             lines.append(f"  one bit less on {k} ({r[k]}): {what}{mark}")
     lines += [f"CSV: {paths['csv']}", f"Plots: {paths['knobs_png']}, {paths['pareto_png']}"]

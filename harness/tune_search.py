@@ -84,7 +84,7 @@ class Tuner:
         bad = [r for r in fixed + ideal if r["status"] != "ok"]
         if bad:
             row.update(status=bad[0]["status"], reason=bad[0]["reason"], meets_spec=False,
-                       severity=math.inf)
+                       severity=math.inf, fails=bad[0]["status"])
         else:
             row.update(status="ok", reason="")
             row["error_mv"] = max(r["error_mv"] for r in fixed)
@@ -106,12 +106,26 @@ class Tuner:
             row["within_bounds"] = all(r["within_bounds"] for r in fixed)
             row["gain_margin"] = self._margin(s)
             row["severity"] = max(severity(f, self.spec, i) for f, i in zip(fixed, ideal))
-            gm = row["gain_margin"]
-            row["meets_spec"] = bool(row["severity"] <= 1.0 and row["within_bounds"] and
-                                     (gm is None or gm >= self.spec["min_gain_margin"]))
+            row["fails"] = " ".join(self._fails(row, fixed, ideal))
+            row["meets_spec"] = not row["fails"]
         self.rows[cid] = row
         self.order.append(cid)
         return row
+
+    def _fails(self, row, fixed, ideal):
+        """Names of the spec criteria a simulated row misses."""
+        sp = self.spec
+        if row["error_mv"] > sp["max_error_mv"]:
+            yield "error"
+        if any(r["settle_ms"] is None or r["settle_ms"] > sp["max_settle_ms"] for r in fixed):
+            yield "settling"
+        if sp.get("max_ideal_ratio") and any(
+                f["error_mv"] > sp["max_ideal_ratio"] * i["error_mv"] for f, i in zip(fixed, ideal)):
+            yield "ideal_ratio"
+        if row["gain_margin"] is not None and row["gain_margin"] < sp["min_gain_margin"]:
+            yield "gain_margin"
+        if not row["within_bounds"]:
+            yield "range_bounds"
 
     # -- search phases ----------------------------------------------------------------------
 
