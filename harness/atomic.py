@@ -15,6 +15,10 @@ def atomic_write(path, mode="w", **kw):
     try:
         with os.fdopen(fd, mode, **kw) as f:
             yield f
+        # mkstemp creates 0600; give the file the mode a plain open() would have.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

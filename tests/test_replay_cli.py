@@ -96,3 +96,11 @@ def test_config_file_changes_the_commands(tmp_path, adc_file):
     first_period = [int(r[0]) for r in _read(out)[1:33]]
     # No correction yet: one perturbation period averages to the 12 V code.
     assert abs(np.mean(first_period) - round(12.0 / 33.0 * 4096)) < 0.5
+
+
+def test_outputs_get_the_permissions_a_plain_open_would_give(tmp_path, adc_file):
+    out = tmp_path / "o.csv"
+    assert main(["replay", "--in", str(adc_file), "--out", str(out)]) == 0
+    umask = os.umask(0)
+    os.umask(umask)
+    assert os.stat(out).st_mode & 0o777 == 0o666 & ~umask
