@@ -63,6 +63,73 @@ def _check(t, names, states, bounds):
                            f"interval [{int(lo[b])}, {int(hi[b])}]")
 
 
+class LockstepLoop:
+    """A running closed loop of ``scenarios`` with ``algos`` in lock step (see :func:`run_lockstep`).
+
+    ``advance(n)`` runs n more samples and returns their record; the plant (``self.batch.plant``)
+    may be changed between calls, e.g. its ``faults`` replaced by a new
+    ``harness.faults.FaultSchedule``, which is how stateful tests inject faults.
+    """
+
+    def __init__(self, scenarios, algos=("model", "c"), overrides=None, check_every=1):
+        self.scenarios = list(scenarios)
+        per = overrides if isinstance(overrides, list) else [overrides] * len(self.scenarios)
+        self.cfgs = [algo_config(s, o) for s, o in zip(self.scenarios, per)]
+        rates = {c.sample_rate_hz for c in self.cfgs}
+        if len(rates) != 1:
+            raise ValueError(f"scenarios in one batch must share sample_rate_hz, got {sorted(rates)}")
+        self.params = [derive(c) for c in self.cfgs]
+        self.impls = [backends.make(a, self.cfgs) if isinstance(a, str) else a for a in algos]
+        self.names = [a if isinstance(a, str) else type(a).__name__ for a in algos]
+        self.batch = build_batch(self.scenarios)
+        self.bounds = _bounds(self.params)
+        self.check_every = check_every
+        self.r_unit = np.array([c.v_full_scale_v / c.i_full_scale_a / (1 << c.r_frac_bits) for c in self.cfgs])
+        self.corr_unit = np.array([c.dac_full_scale_v / (1 << c.dac_bits) / (1 << c.corr_frac_bits)
+                                   for c in self.cfgs])
+        self.batch.reset()
+        self.t = 0
+        self.last_obs = None
+        states = [impl.states() for impl in self.impls]
+        _check(-1, self.names, states, self.bounds)
+        self.cmd = np.asarray(states[0]["cmd"], dtype=np.int64)
+
+    def advance(self, n_t):
+        """Run ``n_t`` samples; returns (channels, trace): dicts of (n_t, B) arrays (module docstring)."""
+        n_b = len(self.scenarios)
+        rec = {name: np.empty((n_t, n_b), dtype=np.float32) for name in CHANNELS}
+        trace = {name: np.empty((n_t, n_b), dtype=np.int64) for name in TRACE_FIELDS}
+        v_per_code, code_max = self.batch.dac.v_per_code, self.batch.dac.code_max
+        impls, names = self.impls, self.names
+        for k in range(n_t):
+            t = self.t
+            command_v = np.clip(self.cmd, 0, code_max) * v_per_code
+            obs = self.batch.plant.step(command_v)
+            v_code, i_code = self.batch.sample(obs)
+            cmds = [np.asarray(impl.step(v_code, i_code), dtype=np.int64) for impl in impls]
+            for name, c in zip(names[1:], cmds[1:]):
+                if not np.array_equal(c, cmds[0]):
+                    b = int(np.flatnonzero(c != cmds[0])[0])
+                    raise Mismatch(f"sample {t}, scenario {b}: command differs: {names[0]}={cmds[0][b]} "
+                                   f"{name}={c[b]}")
+            self.cmd = cmds[0]
+            if t % self.check_every == 0:
+                st = impls[0].states()
+                _check(t, names, [st] + [impl.states() for impl in impls[1:]], self.bounds)
+                for name in TRACE_FIELDS:
+                    trace[name][k] = st[name]
+            else:
+                for name in TRACE_FIELDS:
+                    trace[name][k] = impls[0].field(name)
+            rec["v_supply_v"][k], rec["i_supply_a"][k] = obs.v_supply_v, obs.i_supply_a
+            rec["v_load_v"][k], rec["command_v"][k] = obs.v_load_v, command_v
+            rec["r_estimate_ohm"][k] = trace["r_est"][k] * self.r_unit
+            rec["correction_v"][k] = trace["corr"][k] * self.corr_unit
+            self.t += 1
+            self.last_obs = obs
+        return rec, trace
+
+
 def run_lockstep(scenarios, algos=("model", "c"), overrides=None, check_every=1):
     """Run ``scenarios`` (shared sample rate, duration and start) with ``algos`` in lock step.
 
@@ -72,8 +139,8 @@ def run_lockstep(scenarios, algos=("model", "c"), overrides=None, check_every=1)
     algos : sequence of str or objects
         Backend names (``"model"``, ``"c"``) or port objects (module docstring); the first
         drives the plant.
-    overrides : dict, optional
-        Algorithm settings replacing the scenarios' own (one dict for all, or a list per scenario).
+    overrides : dict or list of dict, optional
+        Algorithm settings replacing the scenarios' own (one for all, or one per scenario).
     check_every : int
         Compare and range-check every this many samples (1: every sample).
 
@@ -85,46 +152,11 @@ def run_lockstep(scenarios, algos=("model", "c"), overrides=None, check_every=1)
     durations = {s.run.duration_s for s in scenarios}
     if len(durations) != 1:
         raise ValueError(f"scenarios in one batch must share run.duration_s, got {sorted(durations)}")
-    per = overrides if isinstance(overrides, list) else [overrides] * len(scenarios)
-    cfgs = [algo_config(s, o) for s, o in zip(scenarios, per)]
-    params = [derive(c) for c in cfgs]
-    impls = [backends.make(a, cfgs) if isinstance(a, str) else a for a in algos]
-    names = [a if isinstance(a, str) else type(a).__name__ for a in algos]
-    batch = build_batch(scenarios)
-    bounds = _bounds(params)
-    v_per_code, code_max = batch.dac.v_per_code, batch.dac.code_max
-    r_unit = np.array([c.v_full_scale_v / c.i_full_scale_a / (1 << c.r_frac_bits) for c in cfgs])
-    corr_unit = np.array([c.dac_full_scale_v / (1 << c.dac_bits) / (1 << c.corr_frac_bits) for c in cfgs])
-    n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
-    n_b = len(scenarios)
-    rec = {name: np.empty((n_t, n_b), dtype=np.float32) for name in CHANNELS}
-    trace = {name: np.empty((n_t, n_b), dtype=np.int64) for name in TRACE_FIELDS}
-    batch.reset()
-    states = [impl.states() for impl in impls]
-    _check(-1, names, states, bounds)
-    cmd = np.asarray(states[0]["cmd"], dtype=np.int64)
-    for t in range(n_t):
-        command_v = np.clip(cmd, 0, code_max) * v_per_code
-        obs = batch.plant.step(command_v)
-        v_code, i_code = batch.sample(obs)
-        cmds = [np.asarray(impl.step(v_code, i_code), dtype=np.int64) for impl in impls]
-        for name, c in zip(names[1:], cmds[1:]):
-            if not np.array_equal(c, cmds[0]):
-                b = int(np.flatnonzero(c != cmds[0])[0])
-                raise Mismatch(f"sample {t}, scenario {b}: command differs: {names[0]}={cmds[0][b]} "
-                               f"{name}={c[b]}")
-        cmd = cmds[0]
-        st = impls[0].states() if (t % check_every == 0 or len(impls) == 1) else None
-        if t % check_every == 0:
-            _check(t, names, [st] + [impl.states() for impl in impls[1:]], bounds)
-        for name in TRACE_FIELDS:
-            trace[name][t] = st[name] if st is not None else impls[0].field(name)
-        rec["v_supply_v"][t], rec["i_supply_a"][t] = obs.v_supply_v, obs.i_supply_a
-        rec["v_load_v"][t], rec["command_v"][t] = obs.v_load_v, command_v
-        rec["r_estimate_ohm"][t] = trace["r_est"][t] * r_unit
-        rec["correction_v"][t] = trace["corr"][t] * corr_unit
-    t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
-    run = Run(t_s=t_s, channels=rec, scenarios=scenarios, cfgs=cfgs,
-              r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend="+".join(names),
-              compensation="linedrop")
-    return LockstepRun(run=run, trace=trace, bounds=bounds)
+    loop = LockstepLoop(scenarios, algos, overrides, check_every)
+    n_t = int(round(durations.pop() * loop.cfgs[0].sample_rate_hz))
+    rec, trace = loop.advance(n_t)
+    t_s = (np.arange(n_t) + 1) / loop.cfgs[0].sample_rate_hz
+    run = Run(t_s=t_s, channels=rec, scenarios=scenarios, cfgs=loop.cfgs,
+              r_cable_ohm=np.asarray(loop.last_obs.r_cable_ohm, dtype=float).copy(),
+              backend="+".join(loop.names), compensation="linedrop")
+    return LockstepRun(run=run, trace=trace, bounds=loop.bounds)

@@ -45,6 +45,8 @@ F_LO_MIN_HZ = design.AC_SHORT / (2 * math.pi * R_RANGE[1] * C_RANGE[1])
 DROP_MAX = {"constant_current": 0.5, "resistive": 0.5, "constant_power": 0.2, "lamp": 0.5}
 CURRENT_RANGE_A = (0.01, 100.0)
 LOAD_KINDS = tuple(DROP_MAX)
+#: Lamp filament thermal time constants drawn, s (miniature to mains-rated small lamps; from memory).
+LAMP_TAU_RANGE_S = (1e-3, 50e-3)
 
 
 @dataclass(frozen=True)
@@ -74,6 +76,7 @@ class DrawnPlant:
     temperature_c: float
     temperature_end_c: float     # equal to temperature_c: no drift
     sample_rate_hz: float
+    lamp_tau_s: float = 0.05     # lamp filament thermal time constant, s (lamps only)
 
     @property
     def f_lo_hz(self):
@@ -146,7 +149,8 @@ def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, s
         i_full_scale_a=i_max * draw(st.floats(1.5, 4.0)), adc_bits=draw(st.integers(*ADC_BITS)),
         dac_bits=draw(st.integers(12, 16)), noise_lsb_rms=draw(st.floats(0.0, 1.5)),
         offset_lsb=draw(st.floats(-2.0, 2.0)), gain_error=draw(st.floats(-0.01, 0.01)),
-        temperature_c=t0, temperature_end_c=t1, sample_rate_hz=rate_for(f_lo, bw))
+        temperature_c=t0, temperature_end_c=t1, sample_rate_hz=rate_for(f_lo, bw),
+        lamp_tau_s=draw(_log(LAMP_TAU_RANGE_S[0], LAMP_TAU_RANGE_S[1])))
 
 
 def unservable_plants():
@@ -166,7 +170,7 @@ def load_spec(plant, steps_s=()):
     v, i = plant.target_v, plant.load_current_a
     cutoff = 0.25 * v
     if plant.load_kind == "lamp":
-        return LoadSpec("lamp", value=v * i, rated_v=v)
+        return LoadSpec("lamp", value=v * i, rated_v=v, thermal_tau_s=plant.lamp_tau_s)
     if plant.load_kind == "constant_current":
         conv = lambda f: i * f                                   # noqa: E731
     elif plant.load_kind == "resistive":
@@ -205,8 +209,11 @@ def window_s(scenario):
     return a["period_samples"] * a["periods_per_window"] / scenario.sensing.sample_rate_hz
 
 
-def design_scenario(plant, windows, faults=(), seed=0, start="steady", overrides=None):
+def design_scenario(plant, windows, faults=(), seed=0, start="steady", overrides=None, extra_s=0.0):
     """Scenario of ``plant`` with the design calculator's [algorithm] settings, run for ``windows``.
+
+    ``extra_s`` (s) is added to the run and to every event time (windows are counted after it):
+    the proof suite lets a lamp's filament settle that long first.
 
     Load steps (``plant.load_steps``) and ``faults`` (``(kind, at_window, until_window)``, until
     may be ``math.inf``) are placed in measurement windows of the recommended configuration.
@@ -217,9 +224,9 @@ def design_scenario(plant, windows, faults=(), seed=0, start="steady", overrides
     rec, fs = design.recommend(probe)
     rec = dict(rec, **(overrides or {}))
     win = rec["period_samples"] * rec["periods_per_window"] / fs
-    steps = tuple((w * win, f) for w, f in plant.load_steps if w < windows)
-    fs_specs = tuple(FaultSpec(kind, at * win, until * win) for kind, at, until in faults)
-    sc = base_scenario(plant, windows * win, steps, fs_specs, seed, start, rate_hz=fs)
+    steps = tuple((extra_s + w * win, f) for w, f in plant.load_steps if w < windows)
+    fs_specs = tuple(FaultSpec(kind, extra_s + at * win, extra_s + until * win) for kind, at, until in faults)
+    sc = base_scenario(plant, extra_s + windows * win, steps, fs_specs, seed, start, rate_hz=fs)
     return replace(sc, algorithm=rec)
 
 
