@@ -161,6 +161,10 @@ class Tuner:
             sens[k] = (worst - start_row["severity"]) / saved if saved else math.inf
         return start_row, lowest, sens
 
+    def _costly(self):
+        """Knobs that cost something: only these are shrunk (weightless shifts are only swept)."""
+        return [k for k in self.knobs if KNOBS[k][2] > 0]
+
     def chain(self, cur, lowest, sens):
         """Phase 3: shrink knobs least-sensitive-first toward their lowest values.
 
@@ -168,7 +172,7 @@ class Tuner:
         just above that knob's target, so a broken link is repaired in the same round.
         """
         target = dict(lowest)
-        remaining = [k for k in sorted(self.knobs, key=lambda k: (sens[k], k)) if target[k] < cur[k]]
+        remaining = [k for k in sorted(self._costly(), key=lambda k: (sens[k], k)) if target[k] < cur[k]]
         for _ in range(MAX_ROUNDS):
             if not remaining:
                 break
@@ -198,7 +202,7 @@ class Tuner:
         most cost (then the least severe), until none passes. Returns (config, the one-bit-lower
         neighbours' rows of the final round)."""
         for _ in range(MAX_ROUNDS):
-            cands = [(k, v, self._with(cur, **{k: v})) for k in self.knobs
+            cands = [(k, v, self._with(cur, **{k: v})) for k in self._costly()
                      for v in range(cur[k] - 1, KNOBS[k][0] - 1, -1)]
             rows = self.evaluate([c for _, _, c in cands], "polish")
             ok = [(cost(c), r["severity"], k, c) for (k, v, c), r in zip(cands, rows) if r["meets_spec"]]
