@@ -16,7 +16,7 @@ from harness.vectors import model_trace
 #: Samples shown before a divergence.
 CONTEXT = 3
 #: Labels of the compared columns (``cmd`` is both the return value and a state field).
-LABELS = ["cmd (returned)"] + ["cmd (state)" if f == "cmd" else f for f in STATE_FIELDS]
+LABELS = ["command"] + list(STATE_FIELDS)
 U16_MAX = 0xFFFF
 
 

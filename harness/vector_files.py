@@ -22,7 +22,7 @@ from harness.errors import InputError
 from harness.params_header import params_header
 
 FORMAT = "linedrop-vectors 1"
-COLUMNS = ["adc_v", "adc_i", "cmd"] + STATE_FIELDS
+COLUMNS = ["adc_v", "adc_i", "command"] + STATE_FIELDS
 PROVENANCE_SUFFIX = "-vectors.json"
 WORD_LENGTH_SETTINGS = ("adc_bits", "dac_bits", "table_bits", "acc_bits", "r_frac_bits", "corr_frac_bits")
 

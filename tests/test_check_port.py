@@ -183,7 +183,7 @@ def test_broken_port_exits_2_with_a_clear_first_line(vec_dir, tmp_path, capsys, 
     (["{tmp}/none", "--c-dir", "{tmp}"], "no such directory of vectors"),
     (["{tmp}", "--c-dir", "{tmp}"], "no vector set"),
     (["{vec}", "--log", "{tmp}/none.csv"], "cannot read log"),
-    (["{vec}", "--log", "{vec}/demo_mast-params.h"], "header must be adc_v,adc_i,cmd,"),
+    (["{vec}", "--log", "{vec}/demo_mast-params.h"], "header must be adc_v,adc_i,command,"),
     (["--log", "{vec}/demo_mast-normal.csv"], "give VECTORS_DIR or --config"),
 ])
 def test_bad_arguments_exit_2_with_one_line(vec_dir, tmp_path, capsys, args, message):

@@ -58,7 +58,7 @@ def test_files_have_descriptive_names_a_header_line_and_one_row_per_sample(vec_d
     assert set(os.listdir(vec_dir)) == expected
     for entry in _note(vec_dir)["vectors"]:
         lines = (vec_dir / entry["file"]).read_text().splitlines()
-        assert lines[0] == "adc_v,adc_i,cmd," + ",".join(STATE_FIELDS)
+        assert lines[0] == "adc_v,adc_i,command," + ",".join(STATE_FIELDS)
         assert len(lines) - 1 == entry["samples"] > 0
 
 
