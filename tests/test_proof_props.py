@@ -7,12 +7,12 @@ reference must agree with it on the command and every state field at every sampl
 and every state field must stay inside algo.ranges.state_bounds (property 2). Bounds come from
 harness.bounds only.
 """
-from hypothesis import Phase, event, given, note, settings
+from hypothesis import Phase, given, note, settings
 
 from harness import bounds as bd
 from harness import strategies as hs
 from harness.algo_setup import algo_config
-from proof_support import known_finding, reproducer, run_groups, settle_windows, settled_failures
+from proof_support import admitted, reproducer, run_groups, settle_windows, settled_failures
 
 BATCH = 8
 
@@ -24,16 +24,6 @@ def _examples(fraction):
                     phases=(Phase.explicit, Phase.reuse, Phase.generate))
 
 
-def _admitted(scenarios):
-    kept = []
-    for sc in scenarios:
-        finding = known_finding(sc)
-        event(f"known finding {finding}" if finding else "admitted")
-        if finding is None:
-            kept.append(sc)
-    return kept
-
-
 @_examples(0.10)
 @given(hs.plant_batches(size=BATCH, max_steps=0))
 def test_converges_from_a_steady_start_within_the_stated_windows(batch):
@@ -42,7 +32,7 @@ def test_converges_from_a_steady_start_within_the_stated_windows(batch):
     for n, p in enumerate(batch):
         sc = hs.design_scenario(p, bd.SETTLE_WINDOWS, seed=n)
         scs.append(hs.design_scenario(p, settle_windows(sc) + bd.CHECK_WINDOWS, seed=n))
-    for lr, b in run_groups(_admitted(scs)):
+    for lr, b in run_groups(admitted(scs)):
         sc = lr.run.scenarios[b]
         cfg = algo_config(sc)
         n_settle = settle_windows(sc)

@@ -1,0 +1,108 @@
+"""Proof properties 2 and 5: safe saturation and bit-exactness for ANY algorithm settings.
+
+The algorithm's own settings are drawn anywhere in their documented ranges
+(harness.strategies.algorithm_overrides), on plants with load steps and faults, from a steady
+or a cold start. harness.lockstep_loop checks, at every sample, that the C reference equals
+the model on the command and every state field, and that every state field lies inside
+algo.ranges.state_bounds: the command in [cmd_min, cmd_max] (the min_v / max_v codes), the
+estimate in [0, r_max_q], the correction in [0, corr_max_q], the accumulators inside acc_bits.
+A separate property shows that nothing winds up while the correction is clamped.
+"""
+from dataclasses import replace
+
+from hypothesis import Phase, event, given, settings, strategies as st
+
+from algo.params import derive
+from algo.ranges import declared_width_violations
+from harness import bounds as bd
+from harness import strategies as hs
+from harness.algo_setup import algo_config
+from harness.errors import InputError
+from proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
+
+import strategies_algo as sa
+
+FAULTS = ("cable_open", "cap_open", "load_short", "adc_stuck")
+
+
+def _examples(fraction):
+    return settings(max_examples=max(2, int(settings.default.max_examples * fraction)),
+                    phases=(Phase.explicit, Phase.reuse, Phase.generate))
+
+
+@settings(max_examples=settings.default.max_examples * 5)
+@given(sa.configs())
+def test_range_analysis_fits_every_declared_word_for_every_derivable_config(cp):
+    """Every parameter block derive() accepts has state bounds inside the C types and acc_bits."""
+    _, p = cp
+    assert declared_width_violations(p) == []
+
+
+@st.composite
+def _safety_case(draw):
+    batch = draw(hs.plant_batches(size=6, max_steps=2, steps_after=2.0))
+    start = draw(st.sampled_from(["steady", "cold"]))
+    scs = []
+    for n, p in enumerate(batch):
+        base = hs.design_scenario(p, 24)
+        over = draw(hs.algorithm_overrides(base))
+        faults = ()
+        if draw(st.booleans()):
+            kind = draw(st.sampled_from(FAULTS))
+            at = draw(st.floats(1.0, 12.0))
+            faults = ((kind, at, at + draw(st.floats(1.0, 10.0))),)
+        sc = hs.design_scenario(p, 24, faults=faults, seed=n, start=start, overrides=over)
+        if faults and faults[0][0] == "adc_stuck":
+            f = sc.faults[0]
+            code = draw(st.sampled_from([0, (1 << p.adc_bits) - 1]))
+            sc = replace(sc, faults=(replace(f, code=code, channel=draw(st.sampled_from("vi"))),))
+        try:
+            derive(algo_config(sc))
+        except InputError:
+            event("overrides rejected by derive")
+            continue
+        scs.append(sc)
+    return scs
+
+
+@_examples(0.10)
+@given(_safety_case())
+def test_any_settings_keep_every_state_field_in_range_and_c_bit_exact_at_every_sample(scs):
+    """run_groups raises with a reproducer on the first mismatch or out-of-range field."""
+    for lr, b in run_groups(scs):
+        event(f"last status {int(lr.trace['status'][-1, b])}")
+        assert lr.trace["cmd"][:, b].max() <= derive(lr.run.cfgs[b]).cmd_max
+
+
+@_examples(0.05)
+@given(hs.plant_batches(size=6, kinds=("constant_current", "resistive", "constant_power"), max_steps=0),
+       st.data())
+def test_nothing_winds_up_while_the_correction_is_clamped(batch, data):
+    """A heavy load needs more correction than the headroom allows, so corr sits at corr_max_q;
+    after a step to a light load the loop settles within RECOVER_WINDOWS as from rest and the
+    load never exceeds the overshoot margin (a wound-up state would overshoot or lag)."""
+    heavy = bd.SETTLE_WINDOWS
+    scs = []
+    for n, p in enumerate(batch):
+        light = data.draw(st.floats(0.05, 0.3))
+        need = (p.r_cable_ohm + p.esr_ohm) * p.load_current_a
+        p = replace(p, max_v=p.target_v + 0.5 * need, load_steps=((float(heavy), light),))
+        sc = hs.design_scenario(p, heavy + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS, seed=n)
+        scs.append(replace(sc, source=f"step of {p.load_current_a * (1 - light)!r} A"))
+    for lr, b in run_groups(admitted(scs)):
+        sc = lr.run.scenarios[b]
+        cfg = algo_config(sc)
+        ends = window_ends(lr, b)
+        corr = lr.trace["corr"][:, b]
+        clamped = corr[ends[heavy - 2]] == derive(cfg).corr_max_q
+        event("clamped before release" if clamped else "not clamped")
+        why = settled_failures(lr, b, sc, heavy + bd.RECOVER_WINDOWS, heavy + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS)
+        after = samples_between(lr, b, heavy, heavy + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS)
+        corr_v = float(lr.run.channels["correction_v"][ends[heavy - 1], b])
+        d_i = float(sc.source.split()[2])
+        limit = bd.overshoot_limit_v(cfg, corr_v, 0.0, d_i, sc.cable.inductance_h,
+                                     sc.load_end.capacitance_f)
+        v_max = float(lr.run.channels["v_load_v"][after, b].max())
+        if v_max > limit:
+            why.append(f"after the clamp was released the load reached {v_max:.6g} V > {limit:.6g} V")
+        assert not why, reproducer(sc, "; ".join(why))
