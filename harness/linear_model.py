@@ -215,7 +215,12 @@ class DiscreteSystems:
             return
         # Scenarios with identical parameters (a batch of copies) share one discretisation.
         params = np.stack([r[idx], l[idx], c[idx], esr[idx], g[idx], omega[idx], is_open[idx]], axis=1)
-        params, inverse = np.unique(params, axis=0, return_inverse=True)
+        # A full sort to find duplicates costs more than the exponentials it saves, so only the
+        # cheap case is shared: every row equal to the first.
+        if (params == params[0]).all():
+            params, inverse = params[:1], np.zeros(len(idx), dtype=np.int64)
+        else:
+            inverse = np.arange(len(idx))
         both = np.concatenate([params, params])  # voltage mode, then current-limit mode
         current_mode = np.repeat([False, True], len(params))
         a, b, c_out, d = continuous_models(*both[:, :6].T, both[:, 6] != 0, current_mode)
