@@ -19,7 +19,7 @@ from c_ref import textvec
 from c_ref.cortexm import build, qemu_run
 from c_ref.fuzz.gen_params_corpus import configs
 from harness.firmware_cost import input_run
-from tools import tools_required
+from tools import skip_or_fail
 
 SEED = 31337
 OPTS = ("-Os", "-O2")
@@ -29,18 +29,10 @@ ALLOWED_EXTERNALS = {"memset", "__aeabi_ldivmod", "__aeabi_lmul", "__aeabi_lasr"
                      "__aeabi_llsr"}
 
 
-def _need(reason):
-    if reason is None:
-        return
-    if tools_required():
-        pytest.fail(f"LINEDROP_REQUIRE_TOOLS=1 but {reason}")
-    pytest.skip(reason)
-
-
 @pytest.mark.parametrize("cpu", sorted(build.CPUS))
 @pytest.mark.parametrize("opt", OPTS)
 def test_firmware_sources_cross_compile_warning_free_under_strict_flags(cpu, opt, tmp_path):
-    _need(build.toolchain_missing())
+    skip_or_fail(build.toolchain_missing())
     objs = build.compile_algo(cpu, opt, str(tmp_path))  # -Werror: any warning fails here
     nm = subprocess.run(["arm-none-eabi-nm", "-u", *objs], capture_output=True, text=True,
                         check=True).stdout
@@ -50,7 +42,7 @@ def test_firmware_sources_cross_compile_warning_free_under_strict_flags(cpu, opt
 
 @pytest.mark.parametrize("cpu", sorted(build.CPUS))
 def test_window_division_links_from_libgcc_without_a_hardware_64_bit_divider(cpu, tmp_path):
-    _need(build.toolchain_missing())
+    skip_or_fail(build.toolchain_missing())
     elf, _ = build.link_bare(cpu, "-Os", str(tmp_path))
     syms = subprocess.run(["arm-none-eabi-nm", elf], capture_output=True, text=True,
                           check=True).stdout
@@ -115,9 +107,9 @@ def golden():
 @pytest.mark.parametrize("opt", OPTS)
 def test_cortex_m4_in_qemu_matches_the_model_bit_for_bit_on_every_state_field(golden, opt,
                                                                               tmp_path):
-    _need(build.toolchain_missing())
-    _need(build.qemu_missing())
-    _need(qemu_run.driver_missing())
+    skip_or_fail(build.toolchain_missing())
+    skip_or_fail(build.qemu_missing())
+    skip_or_fail(qemu_run.driver_missing())
     text, names, want = golden
     got = textvec.parse_output(qemu_run.run_text(qemu_run.build_image(opt, str(tmp_path)), text,
                                                  str(tmp_path)))

@@ -10,22 +10,14 @@ import importlib.util
 import pytest
 
 from c_ref.cortexm import build
-from tools import tools_required
-
-
-def _need(reason):
-    if reason is None:
-        return
-    if tools_required():
-        pytest.fail(f"LINEDROP_REQUIRE_TOOLS=1 but {reason}")
-    pytest.skip(reason)
+from tools import skip_or_fail
 
 
 @pytest.fixture(scope="module")
 def cost():
-    _need(build.toolchain_missing())
+    skip_or_fail(build.toolchain_missing())
     missing = [m for m in ("unicorn", "capstone", "elftools") if importlib.util.find_spec(m) is None]
-    _need(f"python packages missing: {', '.join(missing)} (pip install unicorn capstone "
+    skip_or_fail(f"python packages missing: {', '.join(missing)} (pip install unicorn capstone "
           f"pyelftools)" if missing else None)
     from harness import firmware_cost
     return firmware_cost.measure()
@@ -59,7 +51,7 @@ def test_window_end_is_the_worst_case_sample(cost):
 
 def test_benchmark_prints_the_cost_table(capsys):
     """Benchmark entry point: run with ``pytest -s`` to see the table."""
-    _need(build.toolchain_missing())
+    skip_or_fail(build.toolchain_missing())
     from harness import firmware_cost
     assert firmware_cost.main([]) == 0
     out = capsys.readouterr().out

@@ -14,7 +14,7 @@ import pytest
 from algo.config import AlgoConfig
 from algo.params import derive
 from c_ref.fuzz import gen_params_corpus as gen
-from tools import tools_required
+from tools import skip_or_fail
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 C_REF = os.path.join(ROOT, "c_ref")
@@ -24,23 +24,17 @@ SOURCES = [os.path.join(C_REF, "fuzz", "fuzz_step.c"), os.path.join(C_REF, "step
            os.path.join(C_REF, "estimator.c")]
 
 
-def _skip_or_fail(reason):
-    if tools_required():
-        pytest.fail(f"LINEDROP_REQUIRE_TOOLS=1 but {reason}")
-    pytest.skip(reason)
-
-
 @pytest.fixture(scope="module")
 def fuzzer(tmp_path_factory):
     """Path of the built fuzz target."""
     clang = shutil.which("clang")
     if clang is None:
-        _skip_or_fail("clang not found on PATH (apt install clang libclang-rt-14-dev)")
+        skip_or_fail("clang not found on PATH (apt install clang libclang-rt-14-dev)")
     exe = str(tmp_path_factory.mktemp("fuzz") / "fuzz_step")
     res = subprocess.run([clang, *FUZZ_FLAGS, "-I", C_REF, *SOURCES, "-o", exe],
                          capture_output=True, text=True)
     if res.returncode != 0 and "fuzzer" in res.stderr and "cannot find" in res.stderr:
-        _skip_or_fail(f"clang has no libFuzzer runtime (apt install libclang-rt-14-dev): "
+        skip_or_fail(f"clang has no libFuzzer runtime (apt install libclang-rt-14-dev): "
                       f"{res.stderr.strip()[:200]}")
     assert res.returncode == 0, res.stderr
     return exe
@@ -67,7 +61,7 @@ def test_fuzz_target_aborts_when_a_params_block_breaks_the_range_analysis(tmp_pa
     for the default block makes the first input abort, while the real corpus runs it cleanly."""
     clang = shutil.which("clang")
     if clang is None:
-        _skip_or_fail("clang not found on PATH")
+        skip_or_fail("clang not found on PATH")
     kw, p = gen.configs()[0]
     shutil.copy(SOURCES[0], tmp_path / "fuzz_step.c")
     (tmp_path / "params_corpus.h").write_text(gen.render(blocks=[(kw, replace(p, acc_bits=8))]))
@@ -75,7 +69,7 @@ def test_fuzz_target_aborts_when_a_params_block_breaks_the_range_analysis(tmp_pa
     res = subprocess.run([clang, *FUZZ_FLAGS, "-I", C_REF, str(tmp_path / "fuzz_step.c"),
                           *SOURCES[1:], "-o", exe], capture_output=True, text=True)
     if res.returncode != 0 and "cannot find" in res.stderr:
-        _skip_or_fail(f"clang has no libFuzzer runtime: {res.stderr.strip()[:200]}")
+        skip_or_fail(f"clang has no libFuzzer runtime: {res.stderr.strip()[:200]}")
     assert res.returncode == 0, res.stderr
     sample = tmp_path / "flat.bin"
     sample.write_bytes(bytes([0, 0, 0]) + bytes([0xFF, 0x0F, 0xFF, 0x0F]) * 16)

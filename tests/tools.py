@@ -49,7 +49,11 @@ def require_tool(name):
     name : str
         ``"gcc"``, ``"gcc-m32"`` (32-bit multilib) or ``"gcc-sanitizers"`` (UBSan + ASan).
     """
-    reason = _probe(name)
+    skip_or_fail(_probe(name))
+
+
+def skip_or_fail(reason):
+    """Nothing if ``reason`` is None; else skip with it, or fail under LINEDROP_REQUIRE_TOOLS=1."""
     if reason is None:
         return
     if tools_required():
