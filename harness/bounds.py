@@ -113,10 +113,12 @@ def measured_r_ohm(scenario, r_ohm, f_hz, g_s):
 def expected_load_v(cfg, r_cable_ohm, r_measured_ohm, i_a):
     """Settled load voltage, V: target + k (R_measured - allowance) I - R_cable I.
 
-    With R_measured = R_cable + ESR = R_cable + allowance this is target - (1 - k) * drop.
+    With R_measured = R_cable + ESR = R_cable + allowance this is target - (1 - k) * drop. The
+    correction is capped only by the supply's headroom max_v - target_v: a corr_max_v below what
+    the headroom allows is a sizing error, not an excuse.
     """
     corr = cfg.compensation * max(r_measured_ohm - cfg.esr_allowance_ohm, 0.0) * i_a
-    return cfg.target_v + min(corr, cfg.corr_max_v, cfg.max_v - cfg.target_v) - r_cable_ohm * i_a
+    return cfg.target_v + min(corr, cfg.max_v - cfg.target_v) - r_cable_ohm * i_a
 
 
 def load_tolerance_v(cfg, sensing, r_ohm, i_a):

@@ -66,9 +66,8 @@ def _check(t, names, states, bounds):
 class LockstepLoop:
     """A running closed loop of ``scenarios`` with ``algos`` in lock step (see :func:`run_lockstep`).
 
-    ``advance(n)`` runs n more samples and returns their record; the plant (``self.batch.plant``)
-    may be changed between calls, e.g. its ``faults`` replaced by a new
-    ``harness.faults.FaultSchedule``, which is how stateful tests inject faults.
+    ``advance(n)`` runs n more samples and returns their record (channels and traces), so a
+    caller can check a long run piece by piece.
     """
 
     def __init__(self, scenarios, algos=("model", "c"), overrides=None, check_every=1):

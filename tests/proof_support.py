@@ -8,6 +8,7 @@ replays it (``linedrop simulate FILE``); the file is also written under PROOF_FA
 import hashlib
 import math
 import os
+import tempfile
 from collections import defaultdict
 from dataclasses import replace
 from pathlib import Path
@@ -23,7 +24,8 @@ from harness.lockstep_loop import Mismatch, run_lockstep
 from harness.scenario_toml import scenario_to_toml
 from harness.strategies import window_s
 
-PROOF_FAILURES_DIR = Path(os.environ.get("LINEDROP_PROOF_FAILURES", "proof-failures"))
+PROOF_FAILURES_DIR = Path(os.environ.get("LINEDROP_PROOF_FAILURES",
+                                          os.path.join(tempfile.gettempdir(), "linedrop-proof-failures")))
 ALGOS = ("model", "c")
 
 
@@ -143,7 +145,7 @@ def finding_d2_corr_max_below_need(sc):
     cfg = algo_config(sc)
     r = sc.cable.resistance_ohm * max(1.0, float(temperature_scale(
         sc.cable.material, sc.cable.temperature_c, sc.cable.temperature_end_c or sc.cable.temperature_c)))
-    i = _current_at_target(sc)
+    i = current_at_target(sc)
     need = cfg.compensation * max(r + sc.load_end.esr_ohm - cfg.esr_allowance_ohm, 0.0) * i
     return cfg.corr_max_v < 0.999 * min(need, cfg.max_v - cfg.target_v)
 
@@ -168,7 +170,29 @@ def finding_d4_perturbation_below_v_lsb(sc):
     return cfg.pert_min_v < 2.0 * v_lsb
 
 
-def _current_at_target(sc):
+def finding_d6_light_load_clips_the_current_swing(sc):
+    """D6: at a load lighter than the perturbation's current swing, the supply current swings
+    negative and the (unipolar) current ADC clips it at code 0; the demodulated current halves and
+    the estimate reads up to twice R_cable + ESR, VALID, so the next load step overcorrects."""
+    cfg = algo_config(sc)
+    ld = sc.load
+    values = [ld.value] + [v for _, v in ld.steps]
+    v = sc.supply.target_v
+    if ld.kind == "constant_current":
+        currents = values
+    elif ld.kind == "resistive":
+        currents = [v / x for x in values]
+    elif ld.kind == "constant_power":
+        currents = [p / v for p in values]
+    else:
+        currents = [current_at_target(sc)]
+    r = sc.cable.resistance_ohm + sc.load_end.esr_ohm
+    w = 2 * math.pi * cfg.perturbation_hz
+    z = abs(complex(r, -1.0 / (w * sc.load_end.capacitance_f)))
+    return any(i < 1.2 * max(cfg.pert_min_v, cfg.pert_fraction * r * i) / z for i in currents)
+
+
+def current_at_target(sc):
     ld = sc.load
     values = [ld.value] + [v for _, v in ld.steps]
     v = sc.supply.target_v
@@ -182,7 +206,8 @@ def _current_at_target(sc):
 
 
 KNOWN_FINDINGS = {"D1": finding_d1_zero_perturbation, "D2": finding_d2_corr_max_below_need,
-                  "D3": finding_d3_x_max_ignores_inductance, "D4": finding_d4_perturbation_below_v_lsb}
+                  "D3": finding_d3_x_max_ignores_inductance, "D4": finding_d4_perturbation_below_v_lsb,
+                  "D6": finding_d6_light_load_clips_the_current_swing}
 
 
 def known_finding(sc):

@@ -18,6 +18,8 @@ def tools_required():
 @functools.lru_cache(maxsize=None)
 def _probe(name):
     """Return ``None`` if tool ``name`` works here, else a reason string."""
+    if name == "ngspice":
+        return _probe_ngspice()
     gcc = shutil.which("gcc")
     if name == "gcc":
         return None if gcc else "gcc not found on PATH"
@@ -41,13 +43,29 @@ def _probe(name):
     return None
 
 
+def _probe_ngspice():
+    """``None`` if ``ngspice -b`` runs a one-resistor netlist, else the reason."""
+    exe = shutil.which("ngspice")
+    if not exe:
+        return "ngspice not found on PATH (Debian package ngspice)"
+    with tempfile.TemporaryDirectory() as tmp:
+        net = os.path.join(tmp, "probe.cir")
+        with open(net, "w") as f:
+            f.write("probe\nV1 1 0 1\nR1 1 0 1\n.op\n.end\n")
+        run = subprocess.run([exe, "-b", net], capture_output=True, text=True, timeout=60)
+        if run.returncode != 0:
+            return f"ngspice -b fails: {(run.stderr or run.stdout).strip()[:200]}"
+    return None
+
+
 def require_tool(name):
     """Skip the calling test if ``name`` is unavailable; fail instead under LINEDROP_REQUIRE_TOOLS=1.
 
     Parameters
     ----------
     name : str
-        ``"gcc"``, ``"gcc-m32"`` (32-bit multilib) or ``"gcc-sanitizers"`` (UBSan + ASan).
+        ``"gcc"``, ``"gcc-m32"`` (32-bit multilib), ``"gcc-sanitizers"`` (UBSan + ASan) or
+        ``"ngspice"`` (batch-mode circuit simulator).
     """
     skip_or_fail(_probe(name))
 

@@ -1,0 +1,33 @@
+"""Reproducers of the design failures the proof suite found (harness/PROOFS.md, "Open findings").
+
+Each scenario file in tests/proof_findings/ is a plant the sizing rules admit on which the
+recommended configuration does not converge. They are strict xfails: the day the design is
+fixed the test XPASSes, strict makes that a failure, and the finding's predicate in
+tests/proof_support.py (which keeps the property tests from re-finding it meanwhile) is deleted
+together with the marker. Replay one with ``linedrop simulate tests/proof_findings/<file>``.
+"""
+from pathlib import Path
+
+import pytest
+
+from harness.scenario import load_scenario
+from proof_support import KNOWN_FINDINGS, run_groups, settle_windows, settled_failures
+from harness import bounds as bd
+
+HERE = Path(__file__).parent / "proof_findings"
+FILES = sorted(HERE.glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", FILES, ids=[p.stem for p in FILES])
+def test_finding_is_still_recognised_by_its_predicate(path):
+    sc = load_scenario(path)
+    assert KNOWN_FINDINGS[path.stem[:2].upper()](sc)
+
+
+@pytest.mark.xfail(strict=True, reason="open design findings D1-D6, reported to the algo owner")
+@pytest.mark.parametrize("path", FILES, ids=[p.stem for p in FILES])
+def test_finding_scenario_converges(path):
+    sc = load_scenario(path)
+    (lr, b), = run_groups([sc])
+    n = min(settle_windows(sc), int(lr.trace["windows"][-1, b]) - bd.CHECK_WINDOWS)
+    assert settled_failures(lr, b, lr.run.scenarios[b], n, n + bd.CHECK_WINDOWS) == []

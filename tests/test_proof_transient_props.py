@@ -1,0 +1,52 @@
+"""Proof property 4: load steps landing anywhere in a window never move the settled estimate by more
+than TRANSIENT_R_REL and never push the load above target + the overshoot margin; the loop settles
+again within RECOVER_WINDOWS. Model and C in lock step (harness.lockstep_loop)."""
+from dataclasses import replace
+
+from hypothesis import Phase, given, settings
+
+from harness import bounds as bd
+from harness import strategies as hs
+from harness.algo_setup import algo_config
+from proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
+
+STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.strategies.plants)
+
+
+def _examples(fraction):
+    return settings(max_examples=max(2, int(settings.default.max_examples * fraction)),
+                    phases=(Phase.explicit, Phase.reuse, Phase.generate))
+
+
+@_examples(0.05)
+@given(hs.plant_batches(size=6, kinds=("constant_current", "resistive", "constant_power"), max_steps=2,
+                        steps_after=float(bd.SETTLE_WINDOWS)))
+def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_overshoot(batch):
+    total = bd.SETTLE_WINDOWS + STEP_SPAN + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS
+    scs = [hs.design_scenario(p, total, seed=n) for n, p in enumerate(batch) if p.load_steps]
+    scs = [replace(sc, source=repr(p.load_current_a)) for p, sc in zip([p for p in batch if p.load_steps], scs)]
+    for lr, b in run_groups(admitted(scs)):
+        sc = lr.run.scenarios[b]
+        cfg = algo_config(sc)
+        win = hs.window_s(sc)
+        first = int(sc.load.steps[0][0] / win)
+        ends = window_ends(lr, b)
+        ch = lr.run.channels
+        r_before = float(ch["r_estimate_ohm"][ends[first - 1], b])
+        after = samples_between(lr, b, first, len(ends))
+        r = ch["r_estimate_ohm"][after, b]
+        move = float(abs(r - r_before).max())
+        allowed = bd.TRANSIENT_R_REL * (sc.cable.resistance_ohm + sc.load_end.esr_ohm) \
+            + bd.R_LSB_SLACK * bd.r_lsb_ohm(cfg)
+        why = []
+        if move > allowed:
+            why.append(f"a load step moved the estimate by {move:.4g} ohm (> {allowed:.4g} ohm) from {r_before:.5g}")
+        i0 = float(sc.source)
+        corr_before = float(ch["correction_v"][:ends[first - 1] + 1, b].max())
+        limit = bd.overshoot_limit_v(cfg, corr_before, 0.0, 1.5 * i0, sc.cable.inductance_h, sc.load_end.capacitance_f)
+        v_max = float(ch["v_load_v"][after, b].max())
+        if v_max > limit:
+            why.append(f"the load reached {v_max:.6g} V after a step (> target + margin {limit:.6g} V)")
+        w_back = int(sc.load.steps[-1][0] / win) + 1 + bd.RECOVER_WINDOWS
+        why += settled_failures(lr, b, sc, w_back, w_back + bd.CHECK_WINDOWS)
+        assert not why, reproducer(sc, "; ".join(why))
