@@ -57,7 +57,8 @@ FAULT_EXTRA_WINDOWS = 2
 #: tests/test_proof_fallback_props.py.
 LOAD_OFF_WINDOWS = 24
 
-#: Overshoot margin: the load never exceeds target + the correction in force before the event +
+#: Overshoot margin: the load never exceeds target (or the settled voltage, where a load-shunted
+#: ESR leaves it above target) + the correction in force before the event +
 #: this share of target (perturbation ripple, at most harness.design.RIPPLE_FRACTION, and
 #: settling) + the passive LC ring of a load step, |dI| * sqrt(L / C). Proved by
 #: test_proof_fallback_props.py and test_proof_transient_props.py.
@@ -147,8 +148,11 @@ def sensing_bias_v(cfg, sensing, r_ohm, i_a):
     return cfg.compensation * r_ohm * (abs(sensing.gain_error) * i_a + abs(sensing.offset_lsb) * i_lsb)
 
 
-def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, c_f=1.0):
+def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, c_f=1.0, settled_v=0.0):
     """Highest load voltage allowed around an event, V (OVERSHOOT_REL, module docstring).
+
+    The base is target_v, or the settled load voltage ``settled_v`` (expected_load_v) where the
+    residual of a load-shunted ESR puts it above target.
 
     Parameters
     ----------
@@ -161,5 +165,5 @@ def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, 
         Load step (A), loop inductance (H) and load capacitance (F) for the passive LC ring.
     """
     ring = abs(d_current_a) * math.sqrt(l_h / c_f) if l_h > 0 else 0.0
-    return (cfg.target_v + max(corr_before_v, 0.0) + bias_v + OVERSHOOT_REL * cfg.target_v + ring
+    return (max(cfg.target_v, settled_v) + max(corr_before_v, 0.0) + bias_v + OVERSHOOT_REL * cfg.target_v + ring
             + DAC_LSB_SLACK * dac_lsb_v(cfg))
