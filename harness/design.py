@@ -34,6 +34,10 @@ COMPENSATIONS = (0.98, 0.95, 0.9, 0.85, 0.8, 0.7, 0.6, 0.5)
 SMOOTHINGS = (1, 2, 3)
 FLOOR_LSB = 16.0         # smallest current swing, current-ADC LSBs (common practice, no published source)
 RIPPLE_FRACTION = 0.005  # largest perturbation ripple at the load, peak, share of target_v (same)
+V_FLOOR_LSB = 4.0        # smallest perturbation, voltage-ADC LSBs (same)
+DAC_FLOOR_LSB = 2.0      # smallest perturbation, DAC codes (same)
+LIGHT_LOAD_SHARE = 0.5   # largest floor swing as a share of the lightest load current (same)
+X_MAX_FACTOR = 3.0       # x_max_ohm at least this multiple of the plant's own |X| at f
 R_RESOLUTION = 1e-3      # estimate LSB at most this share of R_min
 R_MAX_FACTOR = 2.0       # r_max_ohm = this * (R_max + ESR)
 HEADROOM_FACTOR = 1.25   # corr_max_v = this * the largest correction needed (capped by max_v - target_v)
@@ -61,6 +65,27 @@ def uncompensated(scenario, cfg, r_ohm):
         op = operating_point(scenario, none, v, r_ohm)
         out.append({"value": v, "current_a": op.i_a, "drop_v": op.i_a * r_ohm, "load_v": op.v_load_v})
     return out
+
+
+def needed_current(scenario, loads):
+    """Largest load current once compensated, A: a resistive or lamp load draws more at the
+    target voltage than at the sagging uncompensated one (bounded as I ~ V; constant power
+    draws less, so its uncompensated current already bounds it)."""
+    target = scenario.supply.target_v
+    return max(x["current_a"] * max(1.0, target / max(x["load_v"], 1e-9)) for x in loads)
+
+
+def perturbation_floor(scenario, z_mag, i_min):
+    """pert_min_v: enough for FLOOR_LSB current-ADC LSBs of swing, V_FLOOR_LSB voltage-ADC LSBs
+    and DAC_FLOOR_LSB DAC codes (below those the swing demodulates to nothing), but, where the
+    converters allow, no more than half the lightest load current's worth of swing, so the
+    unipolar current ADC never clips it at code 0."""
+    sen, sup = scenario.sensing, scenario.supply
+    i_lsb = sen.i_full_scale_a / (1 << sen.adc_bits)
+    v_lsb = sen.v_full_scale_v / (1 << sen.adc_bits)
+    dac_lsb = sup.dac_full_scale_v / (1 << sup.dac_bits)
+    converters = max(V_FLOOR_LSB * v_lsb, DAC_FLOOR_LSB * dac_lsb)
+    return max(converters, min(FLOOR_LSB * i_lsb * z_mag, LIGHT_LOAD_SHARE * i_min * z_mag))
 
 
 def pick_frequency(scenario, fs, r_min):
@@ -124,14 +149,18 @@ def recommend(scenario):
     ppw = next((p for p in (4, 8, 16, 32, 64) if n * p / fs >= tau / TAU_PER_WINDOW and n * p <= 16384),
                min(64, 16384 // n))
     loads = uncompensated(scenario, base, r_max)
-    i_max = max(x["current_a"] for x in loads)
+    i_max = needed_current(scenario, loads)
+    i_min = min(x["current_a"] for x in loads)
     w = 2 * math.pi * f
-    z_mag = abs(r_min + le.esr_ohm + 1 / (1j * w * le.capacitance_f))
+    z_mag = abs(r_min + le.esr_ohm + 1j * w * scenario.cable.inductance_h
+                + 1 / (1j * w * le.capacitance_f))
     zc_mag = abs(le.esr_ohm + 1 / (1j * w * le.capacitance_f))
     i_lsb = sen.i_full_scale_a / (1 << sen.adc_bits)
-    pert_min = FLOOR_LSB * i_lsb * z_mag
+    pert_min = perturbation_floor(scenario, z_mag, i_min)
     ripple_cap = RIPPLE_FRACTION * scenario.supply.target_v / zc_mag * z_mag
     pert_max = max(pert_min, min(ripple_cap, 0.1 * (r_max + le.esr_ohm) * i_max))
+    # The quadrature part the plant itself shows (cable inductance and the capacitor), with room.
+    x_plant = abs(w * scenario.cable.inductance_h - 1.0 / (w * le.capacitance_f))
     v_ratio = sen.v_full_scale_v / sen.i_full_scale_a
     r_frac = min(16, max(8, math.ceil(math.log2(v_ratio / (R_RESOLUTION * r_min)))))
     rec = {
@@ -139,7 +168,8 @@ def recommend(scenario):
         "pert_fraction": 0.1, "pert_min_v": _clip("pert_min_v", pert_min),
         "pert_max_v": _clip("pert_max_v", pert_max), "r_frac_bits": r_frac,
         "r_max_ohm": _clip("r_max_ohm", R_MAX_FACTOR * (r_max + le.esr_ohm)),
-        "x_max_ohm": _clip("x_max_ohm", max(3.0 / (w * le.capacitance_f), 0.5 * r_max)),
+        "x_max_ohm": _clip("x_max_ohm", max(3.0 / (w * le.capacitance_f), 0.5 * r_max,
+                                            X_MAX_FACTOR * x_plant)),
         "esr_allowance_ohm": _clip("esr_allowance_ohm", le.esr_ohm),
         "r_step_max_ohm": _clip("r_step_max_ohm", max(0.25 * (r_max + le.esr_ohm), 0.01)),
         "swing_min_a": _clip("swing_min_a", FLOOR_LSB / 4 * i_lsb),

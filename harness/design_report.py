@@ -11,6 +11,8 @@ ELV_LIMIT_V = 60.0
 #: Constant-power load: warn when the cable drop exceeds this share of the load voltage (the
 #: loop model's gain margin falls with it; common practice, no published source).
 CP_DROP_SHARE = 0.2
+#: Warn when the perturbation floor's current swing exceeds this share of the lightest load.
+LIGHT_LOAD_SHARE = 0.5
 #: Warn when ESR exceeds this share of the cable resistance.
 ESR_SHARE = 0.2
 #: Supply bandwidth: warn when f is above bandwidth / this.
@@ -52,6 +54,14 @@ def _warnings(sc, cfg, fig):
     if esr > ESR_SHARE * r:
         out.append(f"the capacitor's ESR {esr:.3g} ohm is {100 * esr / r:.0f} % of the cable resistance: "
                    "the estimate includes it, so set esr_allowance_ohm from the capacitor's data")
+    i_min = min(x["current_a"] for x in fig["loads"])
+    w = 2 * math.pi * f
+    z = abs(r + esr + 1j * w * sc.cable.inductance_h + 1 / (1j * w * c))
+    if cfg.pert_min_v / z > LIGHT_LOAD_SHARE * i_min:
+        out.append(f"the lightest load ({i_min:.3g} A) is below twice the perturbation floor's current "
+                   f"swing ({cfg.pert_min_v / z:.3g} A): the current swings near zero, the current "
+                   "ADC clips it and the estimate reads high; use a finer current ADC or a heavier "
+                   "minimum load")
     gm = fig["gain_margin"]
     if fig["spectral_radius"] >= 1.0:
         out.append("the correction loop is unstable: the correction will ring and hit its limits; "
