@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 
 from harness.scenario import load_scenario
-from proof_support import KNOWN_FINDINGS, REPRODUCER_ONLY, run_groups, settle_windows, settled_failures
+from proof_support import KNOWN_FINDINGS, run_groups, settle_windows, settled_failures
 from harness import bounds as bd
 
 HERE = Path(__file__).parent / "proof_findings"
@@ -21,7 +21,7 @@ FILES = sorted(HERE.glob("*.toml"))
 @pytest.mark.parametrize("path", FILES, ids=[p.stem for p in FILES])
 def test_finding_is_still_recognised_by_its_predicate(path):
     sc = load_scenario(path)
-    assert {**KNOWN_FINDINGS, **REPRODUCER_ONLY}[path.stem[:2].upper()](sc)
+    assert KNOWN_FINDINGS[path.stem[:2].upper()](sc)
 
 
 @pytest.mark.xfail(strict=True, reason="open design findings D1-D4, D6, reported to the algo owner")
