@@ -169,7 +169,9 @@ def finding_d3_x_max_ignores_inductance(sc):
     cfg = algo_config(sc)
     w = 2 * math.pi * cfg.perturbation_hz
     x = w * sc.cable.inductance_h - 1.0 / (w * sc.load_end.capacitance_f)
-    return abs(x) > 0.9 * cfg.x_max_ohm
+    # Also where w L outgrows R + ESR, short of x_max: the in-phase part is then a small
+    # projection of a large quadrature one, and ADC noise makes the estimate wander by 10-25 %.
+    return abs(x) > 0.9 * cfg.x_max_ohm or w * sc.cable.inductance_h > sc.cable.resistance_ohm + sc.load_end.esr_ohm
 
 
 def finding_d4_perturbation_below_v_lsb(sc):
@@ -203,6 +205,13 @@ def finding_d6_light_load_clips_the_current_swing(sc):
     w = 2 * math.pi * cfg.perturbation_hz
     z = abs(complex(r, -1.0 / (w * sc.load_end.capacitance_f)))
     return any(i < 1.2 * max(cfg.pert_min_v, cfg.pert_fraction * r * i) / z for i in currents)
+
+
+def finding_d8_cap_open_constant_power(sc):
+    """D8: capacitor open with a constant-power load: the real part R + (-V**2/P) is negative or
+    small, the windows are VALID (r_raw clamps to 0), so bad_windows never counts and the
+    correction is not forced to zero; with a heavy load the plant itself diverges (inf V)."""
+    return sc.load.kind == "constant_power" and any(f.kind == "cap_open" for f in sc.faults)
 
 
 def current_at_target(sc):
@@ -243,7 +252,8 @@ def finding_d7_undetected_step(sc):
 
 KNOWN_FINDINGS = {"D1": finding_d1_zero_perturbation, "D2": finding_d2_corr_max_below_need,
                   "D3": finding_d3_x_max_ignores_inductance, "D4": finding_d4_perturbation_below_v_lsb,
-                  "D6": finding_d6_light_load_clips_the_current_swing, "D7": finding_d7_undetected_step}
+                  "D6": finding_d6_light_load_clips_the_current_swing, "D7": finding_d7_undetected_step,
+                  "D8": finding_d8_cap_open_constant_power}
 
 
 def known_finding(sc):
