@@ -214,6 +214,23 @@ def finding_d8_cap_open_constant_power(sc):
     return sc.load.kind == "constant_power" and any(f.kind == "cap_open" for f in sc.faults)
 
 
+def finding_d9_constant_power_restart(sc):
+    """D9: after a cable-open fault a constant-power load restarts below its cut-off (resistive),
+    latches on the low-voltage branch, and the headroom cannot pull it back: no re-convergence."""
+    return sc.load.kind == "constant_power" and any(f.kind == "cable_open" for f in sc.faults)
+
+
+def finding_d10_transient_windows_count_as_faults(sc):
+    """D10: TRANSIENT windows count toward fault_windows. Where (R + ESR) C is a fair share of a
+    window, a load step keeps the detector firing for fault_windows windows, the estimate is
+    forced to 0, the correction dropped, and the load dips (15 % in the reproducer)."""
+    if not sc.load.steps:
+        return False
+    cfg = algo_config(sc)
+    tau = (sc.cable.resistance_ohm + sc.load_end.esr_ohm) * sc.load_end.capacitance_f
+    return tau >= 0.25 * cfg.window_samples / cfg.sample_rate_hz
+
+
 def current_at_target(sc):
     ld = sc.load
     values = [ld.value] + [v for _, v in ld.steps]
@@ -253,7 +270,8 @@ def finding_d7_undetected_step(sc):
 KNOWN_FINDINGS = {"D1": finding_d1_zero_perturbation, "D2": finding_d2_corr_max_below_need,
                   "D3": finding_d3_x_max_ignores_inductance, "D4": finding_d4_perturbation_below_v_lsb,
                   "D6": finding_d6_light_load_clips_the_current_swing, "D7": finding_d7_undetected_step,
-                  "D8": finding_d8_cap_open_constant_power}
+                  "D8": finding_d8_cap_open_constant_power, "D9": finding_d9_constant_power_restart,
+                  "D10": finding_d10_transient_windows_count_as_faults}
 
 
 def known_finding(sc):
