@@ -57,6 +57,23 @@ def make_compensator(compensation, backend, cfgs, scenarios):
     raise ValueError(f"unknown compensation {compensation!r}; choose from {COMPENSATIONS}")
 
 
+def _value(name, obs, command_v, v_code, i_code, cmd):
+    """One recorded channel's values at this sample."""
+    if name == "v_load_v":
+        return obs.v_load_v
+    if name == "v_supply_v":
+        return obs.v_supply_v
+    if name == "i_supply_a":
+        return obs.i_supply_a
+    if name == "command_v":
+        return command_v
+    if name == "adc_v_code":
+        return v_code
+    if name == "adc_i_code":
+        return i_code
+    return cmd  # command_code
+
+
 def simulate(scenarios, backend="model", compensation="linedrop", overrides=None, progress=False,
              channels=CHANNELS):
     """Run scenarios (same sample rate, duration and start) in closed loop.
@@ -90,21 +107,24 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
         from tqdm import tqdm
         steps = tqdm(steps, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
                      leave=False, disable=None, mininterval=0.5)
+    plain = [n for n in channels if n not in ("r_estimate_ohm", "correction_v")]
+    rows = {name: rec[name] for name in plain}
+    r_rec = rec.get("r_estimate_ohm")
+    c_rec = rec.get("correction_v")
+    code_max = code_max.astype(np.float64)
+    command_v = np.empty(len(scenarios))
     for t in steps:
-        command_v = np.clip(cmd, 0, code_max) * v_per_code
+        np.multiply(np.minimum(np.maximum(cmd, 0.0), code_max), v_per_code, out=command_v)
         obs = batch.plant.step(command_v)
         v_code, i_code = batch.sample(obs)
         cmd = comp.step(v_code, i_code)
-        row = {"v_supply_v": obs.v_supply_v, "i_supply_a": obs.i_supply_a, "v_load_v": obs.v_load_v,
-               "command_v": command_v, "adc_v_code": v_code, "adc_i_code": i_code,
-               "command_code": cmd}
-        for name in channels:
-            if name == "r_estimate_ohm":
-                rec[name][t] = comp.field("r_est") * r_unit
-            elif name == "correction_v":
-                rec[name][t] = comp.field("corr") * corr_unit
-            else:
-                rec[name][t] = row[name]
+        for name, dst in rows.items():
+            dst[t] = _value(name, obs, command_v, v_code, i_code, cmd)
+        if r_rec is not None:
+            np.multiply(comp.field("r_est"), r_unit, out=r_rec[t], casting="unsafe")
+        if c_rec is not None:
+            np.multiply(comp.field("corr"), corr_unit, out=c_rec[t], casting="unsafe")
+    batch.adc.close()
     t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
     return Run(t_s=t_s, channels=rec, scenarios=list(scenarios), cfgs=cfgs,
                r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend=backend,

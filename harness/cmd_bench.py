@@ -71,9 +71,9 @@ def measure(n=1024):
                                        len(v1))
     bm = BatchModel([p] * n)
     out["model_batch_samples_per_s"] = _rate(lambda: bm.run(v[:, :512], i[:, :512]), n * 512)
-    out["closed_loop_batch_samples_per_s"] = _closed_loop_rate("model", n, 4096)
+    out["closed_loop_batch_samples_per_s"] = _closed_loop_rate("model", n, 16384)
     out["closed_loop_single_samples_per_s"] = _closed_loop_rate("model", 1, 8192)
-    out["closed_loop_c_batch_samples_per_s"] = _closed_loop_rate("c", n, 4096)
+    out["closed_loop_c_batch_samples_per_s"] = _closed_loop_rate("c", n, 16384)
     return out
 
 

@@ -1,5 +1,7 @@
 """Supply-side ADC (voltage and current to unsigned codes) and the command DAC, batched."""
 
+import concurrent.futures
+
 import numpy as np
 
 #: Noise samples drawn per scenario at a time (the noise sequence does not depend on it).
@@ -44,26 +46,47 @@ class Adc:
         self._raw = np.empty((2, n))
         self._noise = np.zeros((0, 2, n))
         self._pos = 0
+        self._next = None
+
+    def _block(self):
+        """The next (block, 2, B) array of scaled noise (LSB).
+
+        Each scenario's generator fills a (2, block) array; those are transposed a few
+        scenarios at a time into sample-major order, so a sample's noise is contiguous."""
+        n = len(self._rngs)
+        noise = np.empty((_NOISE_BLOCK, 2, n))
+        scratch = np.empty((min(n, _TRANSPOSE_CHUNK), 2, _NOISE_BLOCK))
+        for b0 in range(0, n, _TRANSPOSE_CHUNK):
+            rngs = self._rngs[b0:b0 + _TRANSPOSE_CHUNK]
+            for j, rng in enumerate(rngs):
+                rng.standard_normal(out=scratch[j])
+            noise[:, :, b0:b0 + len(rngs)] = scratch[:len(rngs)].transpose(2, 1, 0)
+        noise *= self.sigma
+        return noise
 
     def _draw(self):
-        """Scaled noise (LSB) of both channels for the next sample, (2, B); drawn a block at a time.
+        """Scaled noise (LSB) of both channels for the next sample, (2, B).
 
-        Each scenario's generator fills a (2, block) array as before; those are transposed a
-        few scenarios at a time into sample-major order, so a sample's noise is contiguous."""
+        Blocks are drawn one ahead on a worker thread (numpy's generators release the GIL, so
+        this uses the second core); one worker draws them strictly in order, so the noise
+        sequence is the same as drawing them here."""
         if self._pos >= self._noise.shape[0]:
-            n = len(self._rngs)
-            if self._noise.shape[0] == 0:
-                self._noise = np.empty((_NOISE_BLOCK, 2, n))
-                self._scratch = np.empty((min(n, _TRANSPOSE_CHUNK), 2, _NOISE_BLOCK))
-            for b0 in range(0, n, _TRANSPOSE_CHUNK):
-                rngs = self._rngs[b0:b0 + _TRANSPOSE_CHUNK]
-                for j, rng in enumerate(rngs):
-                    rng.standard_normal(out=self._scratch[j])
-                self._noise[:, :, b0:b0 + len(rngs)] = self._scratch[:len(rngs)].transpose(2, 1, 0)
-            self._noise *= self.sigma
+            if self._next is None:
+                self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
+                self._noise = self._block()
+            else:
+                self._noise = self._next.result()
+            self._next = self._pool.submit(self._block)
             self._pos = 0
         self._pos += 1
         return self._noise[self._pos - 1]
+
+    def close(self):
+        """Stop the noise worker (drawing nothing more)."""
+        if self._next is not None:
+            self._next.cancel()
+            self._pool.shutdown(wait=True)
+            self._next = None
 
     def convert(self, v_supply_v, i_supply_a, stuck_v=None, stuck_i=None):
         """Convert one sample of each scenario.
