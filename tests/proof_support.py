@@ -147,22 +147,6 @@ def settled_failures(lr, b, sc, w_from, w_to):
 # tests/test_proof_findings.py turn into failures as soon as the design is fixed, which is the
 # signal to delete the predicate here.
 
-def finding_d1_zero_perturbation(sc):
-    """D1: the recommended pert_min_v rounds to 0 DAC codes; a zero amplitude doubled stays 0."""
-    return derive(algo_config(sc)).pert_min == 0
-
-
-def finding_d2_corr_max_below_need(sc):
-    """D2: corr_max_v is sized from the uncompensated current; a resistive or lamp load draws more
-    once compensated, so the correction clamps below what the drop needs and the load sags."""
-    cfg = algo_config(sc)
-    r = sc.cable.resistance_ohm * max(1.0, float(temperature_scale(
-        sc.cable.material, sc.cable.temperature_c, sc.cable.temperature_end_c or sc.cable.temperature_c)))
-    i = current_at_target(sc)
-    need = cfg.compensation * max(r + sc.load_end.esr_ohm - cfg.esr_allowance_ohm, 0.0) * i
-    return cfg.corr_max_v < 0.999 * min(need, cfg.max_v - cfg.target_v)
-
-
 def finding_d3_x_max_ignores_inductance(sc):
     """D3: x_max_ohm = max(3 / (w C), R_max / 2) leaves out the cable's w L; where w L dominates
     the quadrature part every window is REACTIVE and the correction never starts."""
@@ -172,17 +156,6 @@ def finding_d3_x_max_ignores_inductance(sc):
     # Also where w L outgrows R + ESR, short of x_max: the in-phase part is then a small
     # projection of a large quadrature one, and ADC noise makes the estimate wander by 10-25 %.
     return abs(x) > 0.9 * cfg.x_max_ohm or w * sc.cable.inductance_h > sc.cable.resistance_ohm + sc.load_end.esr_ohm
-
-
-def finding_d4_perturbation_below_v_lsb(sc):
-    """D4: the perturbation floor pert_min_v is sized by the current ADC only. The supply-side
-    voltage swing is the perturbation itself; below about two voltage-ADC LSBs the in-phase
-    voltage demodulates to ~0, the window is VALID with r_raw = 0, the amplitude (10 % of the
-    estimated drop) stays at the floor, and the estimate stays at 0 for good: no correction and
-    no warning. Also after a step to a light load, where the amplitude falls back to the floor."""
-    cfg = algo_config(sc)
-    v_lsb = sc.sensing.v_full_scale_v / (1 << sc.sensing.adc_bits)
-    return cfg.pert_min_v < 2.0 * v_lsb
 
 
 def finding_d6_light_load_clips_the_current_swing(sc):
@@ -267,8 +240,10 @@ def finding_d7_undetected_step(sc):
     return False
 
 
-KNOWN_FINDINGS = {"D1": finding_d1_zero_perturbation, "D2": finding_d2_corr_max_below_need,
-                  "D3": finding_d3_x_max_ignores_inductance, "D4": finding_d4_perturbation_below_v_lsb,
+# D1 (pert_min below one DAC code), D2 (corr_max from the uncompensated current) and D4 (perturbation
+# floor below the voltage ADC's LSB) were fixed in the design calculator (commit fc379ac); their
+# reproducers stay as regression tests in tests/test_proof_findings.py.
+KNOWN_FINDINGS = {"D3": finding_d3_x_max_ignores_inductance,
                   "D6": finding_d6_light_load_clips_the_current_swing, "D7": finding_d7_undetected_step,
                   "D8": finding_d8_cap_open_constant_power, "D9": finding_d9_constant_power_restart,
                   "D10": finding_d10_transient_windows_count_as_faults}
