@@ -172,7 +172,8 @@ class BatchModel:
         d = _step_toward(r_est, np.maximum(r_raw, 0), p.r_shift[k]) - r_est
         d = np.clip(d, -p.r_step_max_q[k], p.r_step_max_q[k])
         r_est = np.where(valid, np.clip(r_est + d, 0, p.r_max_q[k]), r_est)
-        bad = np.where(valid, 0, np.minimum(s.bad_windows[k] + 1, 0xFFFF))
+        bad = np.where(valid, 0, np.where(status == st.STATUS_TRANSIENT, s.bad_windows[k],
+                                          np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]
         r_est = np.where(forced, 0, r_est)
         drop_total = self._drop_vq(r_est, k)

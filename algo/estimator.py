@@ -85,7 +85,9 @@ def window_end(p, s):
         d = step_toward(s.r_est, target, p.r_shift) - s.r_est
         s.r_est = sat(s.r_est + sat(d, -p.r_step_max_q, p.r_step_max_q), 0, p.r_max_q)
         s.bad_windows = 0
-    else:
+    elif status != st.STATUS_TRANSIENT:
+        # A load step only holds the estimate; counting it as a fault window would let a step
+        # spread over several windows by the load capacitor force the correction to zero.
         s.bad_windows = min(s.bad_windows + 1, 0xFFFF)
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0

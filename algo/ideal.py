@@ -142,7 +142,8 @@ class IdealBatch:
         d = np.clip((np.maximum(r_raw, 0) - r_est) * self.r_g[k], -self.r_step_max[k],
                     self.r_step_max[k])
         r_est = np.where(valid, np.clip(r_est + d, 0, self.r_max[k]), r_est)
-        bad = np.where(valid, 0, np.minimum(self.bad_windows[k] + 1, 0xFFFF))
+        bad = np.where(valid, 0, np.where(status == st.STATUS_TRANSIENT, self.bad_windows[k],
+                                          np.minimum(self.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= self.fault_windows[k]
         r_est = np.where(forced, 0.0, r_est)
         i_mean = self.isum[k] / self.window[k]

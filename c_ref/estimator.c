@@ -115,7 +115,9 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
         d = ld_sat(d, -p->r_step_max_q, p->r_step_max_q);
         s->r_est = ld_sat(s->r_est + d, 0, p->r_max_q);
         s->bad_windows = 0u;
-    } else if (s->bad_windows < UINT16_MAX) {
+    } else if (status != LD_STATUS_TRANSIENT && s->bad_windows < UINT16_MAX) {
+        /* A load step only holds the estimate; counting it as a fault window would let a
+         * step spread over several windows by the load capacitor force the correction off. */
         s->bad_windows++;
     }
     if (s->bad_windows >= p->fault_windows) {

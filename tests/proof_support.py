@@ -193,17 +193,6 @@ def finding_d9_constant_power_restart(sc):
     return sc.load.kind == "constant_power" and any(f.kind == "cable_open" for f in sc.faults)
 
 
-def finding_d10_transient_windows_count_as_faults(sc):
-    """D10: TRANSIENT windows count toward fault_windows. Where (R + ESR) C is a fair share of a
-    window, a load step keeps the detector firing for fault_windows windows, the estimate is
-    forced to 0, the correction dropped, and the load dips (15 % in the reproducer)."""
-    if not sc.load.steps:
-        return False
-    cfg = algo_config(sc)
-    tau = (sc.cable.resistance_ohm + sc.load_end.esr_ohm) * sc.load_end.capacitance_f
-    return tau >= 0.25 * cfg.window_samples / cfg.sample_rate_hz
-
-
 def current_at_target(sc):
     ld = sc.load
     values = [ld.value] + [v for _, v in ld.steps]
@@ -242,11 +231,11 @@ def finding_d7_undetected_step(sc):
 
 # D1 (pert_min below one DAC code), D2 (corr_max from the uncompensated current) and D4 (perturbation
 # floor below the voltage ADC's LSB) were fixed in the design calculator (commit fc379ac); their
-# reproducers stay as regression tests in tests/test_proof_findings.py.
+# reproducers stay as regression tests in tests/test_proof_findings.py. D10 (TRANSIENT windows
+# counted toward fault_windows) was fixed in the algorithm: load-step windows no longer count.
 KNOWN_FINDINGS = {"D3": finding_d3_x_max_ignores_inductance,
                   "D6": finding_d6_light_load_clips_the_current_swing, "D7": finding_d7_undetected_step,
-                  "D8": finding_d8_cap_open_constant_power, "D9": finding_d9_constant_power_restart,
-                  "D10": finding_d10_transient_windows_count_as_faults}
+                  "D8": finding_d8_cap_open_constant_power, "D9": finding_d9_constant_power_restart}
 
 
 def known_finding(sc):
