@@ -28,6 +28,9 @@ from harness.operating_point import load_values, operating_point
 
 AC_SHORT = 10.0          # capacitor reactance at f at most R_min / this
 BW_FACTOR = 10.0         # f at most supply bandwidth / this
+L_SHORT = 3.0            # cable reactance wL at f at most R_min / this: the sampled current of an
+                         # inductive cable lags the held command and biases Re(V/I) (seen in the
+                         # proof suite; common practice, no published source)
 TAU_PER_WINDOW = 4.0     # window at least R*C / this
 GM_TARGET = 1.25         # room for 25 % loop-gain error (sense gains, ESR, load share of the estimate)
 COMPENSATIONS = (0.98, 0.95, 0.9, 0.85, 0.8, 0.7, 0.6, 0.5)
@@ -88,11 +91,17 @@ def perturbation_floor(scenario, z_mag, i_min):
     return max(converters, min(FLOOR_LSB * i_lsb * z_mag, LIGHT_LOAD_SHARE * i_min * z_mag))
 
 
+def inductive_limit_hz(scenario, r_min):
+    """Highest perturbation frequency at which the cable's wL stays below R_min / L_SHORT, Hz."""
+    return r_min / (L_SHORT * 2 * math.pi * scenario.cable.inductance_h)
+
+
 def pick_frequency(scenario, fs, r_min):
     """(frequency Hz, period samples, sample rate Hz) for the perturbation.
 
     The band is [f_lo, f_hi]: f_lo puts the capacitor's reactance at R_min / AC_SHORT, f_hi is
-    the supply bandwidth / BW_FACTOR (fs / 16 for an ideal supply). The period is the power of
+    the supply bandwidth / BW_FACTOR (fs / 16 for an ideal supply), lowered where needed so the
+    cable's wL stays below R_min / L_SHORT. The period is the power of
     two in [16, 256] whose fs / period lies nearest the band's geometric middle, inside the
     band when one is; when the scenario's rate cannot reach a non-empty band, the rate becomes
     32 samples per period of the middle (rounded to 100 Hz). An empty band (the rules
@@ -102,6 +111,8 @@ def pick_frequency(scenario, fs, r_min):
     f_lo = AC_SHORT / (2 * math.pi * r_min * c)
     bw = scenario.supply.loop_bandwidth_hz
     f_hi = bw / BW_FACTOR if bw > 0 else fs / 16
+    if scenario.cable.inductance_h > 0:
+        f_hi = min(f_hi, inductive_limit_hz(scenario, r_min))
     f_mid = math.sqrt(f_lo * f_hi)
     periods = (16, 32, 64, 128, 256)
     fits = [n for n in periods if f_lo <= fs / n <= f_hi] if f_hi >= f_lo else list(periods)

@@ -33,6 +33,12 @@ def _warnings(sc, cfg, fig):
     if f < CORNER_WARN * fig["rc_corner_hz"]:
         out.append(f"the perturbation frequency {f:.4g} Hz is not well above the R*C corner "
                    f"{fig['rc_corner_hz']:.4g} Hz: the capacitor charging current swamps the measurement")
+    xl = 2 * math.pi * f * sc.cable.inductance_h
+    if xl > r / d.L_SHORT:
+        out.append(f"the cable's inductive reactance {xl:.3g} ohm at {f:.4g} Hz is more than a third of "
+                   f"its {r:.3g} ohm resistance: the sampled current lags the command and the "
+                   "estimate is biased; lower the perturbation frequency (and fit a larger capacitor "
+                   "so it stays an AC short)")
     bw = sc.supply.loop_bandwidth_hz
     if bw > 0 and f > bw / BW_WARN:
         out.append(f"the perturbation frequency {f:.4g} Hz is too close to the supply's loop bandwidth "

@@ -1,7 +1,7 @@
 """Hypothesis strategies that draw plants (supply, cable, capacitor, load, sensing) for property tests.
 
 Import them to test a firmware port against the same plants the proof suite uses
-(``harness/PROOFS.md``); hypothesis must be installed (``pip install linedrop[test]``).
+(``harness/PROOFS.md``); hypothesis is installed with linedrop.
 
 A drawn :class:`DrawnPlant` is physical only: loop resistance 0.05-20 ohm, load capacitance
 100 uF-47 mF with ESR, loop inductance 0-50 uH, supply bandwidth (or an ideal source), a load of
@@ -15,7 +15,9 @@ The only range the admitted plants leave out is the one DESIGN.md's sizing rules
 capacitor must be an AC short at a perturbation frequency that also sits a decade below the
 supply bandwidth and at most fs/16 with fs <= MAX_RATE_HZ, i.e. ``f_lo = 10 / (2 pi R C)`` is at
 most F_LO_MAX_HZ. :func:`unservable_plants` draws exactly those; the design calculator warns
-about every one (tests/test_proof_strategies.py).
+about every one (tests/test_proof_strategies.py). The same rules keep the cable's wL below
+R / design.L_SHORT at the perturbation, so admitted plants draw their inductance up to the value
+that leaves an octave of band above f_lo (the calculator warns beyond it, tests/test_design.py).
 """
 import math
 from dataclasses import dataclass, replace
@@ -124,8 +126,10 @@ def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, s
     r = draw(_log(r_lo, r_hi))
     c = min(max(rc / r, C_RANGE[0]), C_RANGE[1])
     esr = draw(st.one_of(st.just(0.0), _log(1e-3, max(1e-3, min(1.0, r)))))
-    inductance = draw(st.one_of(st.just(0.0), _log(L_MIN_H, L_MAX_H)))
     f_lo = design.AC_SHORT / (2 * math.pi * r * c)
+    # The sizing rules keep wL below R / L_SHORT at the perturbation: leave the band an octave.
+    l_top = min(L_MAX_H, r / (design.L_SHORT * 2 * math.pi * 2 * f_lo)) if servable else L_MAX_H
+    inductance = draw(st.one_of(st.just(0.0), _log(L_MIN_H, l_top))) if l_top > L_MIN_H else 0.0
     bw = draw(st.one_of(st.just(0.0), _log(20.0 * f_lo, max(20.0 * f_lo, 2e5))))
     kind = draw(st.sampled_from(kinds))
     target = draw(st.floats(5.0, 48.0))

@@ -36,6 +36,7 @@ max_v = {max_v}
 loop_bandwidth_hz = {bw}
 [cable]
 resistance_ohm = {r}
+inductance_h = {l}
 [load_end]
 capacitance_f = {c}
 esr_ohm = {esr}
@@ -57,7 +58,7 @@ def write(tmp_path, text, name="s.toml"):
 
 def plant(tmp_path, **kw):
     """A scenario file from BASE with defaults changed by ``kw`` (an invented 2-ohm run)."""
-    v = dict(target=24.0, max_v=30.0, bw=0.0, r=2.0, c=22e-3, esr=0.0, kind="constant_current",
+    v = dict(target=24.0, max_v=30.0, bw=0.0, r=2.0, l=0.0, c=22e-3, esr=0.0, kind="constant_current",
              key="current_a", value=1.5, gain_error=0.0, algorithm="")
     v.update(kw)
     return load_scenario(write(tmp_path, BASE.format(**v)))
@@ -127,6 +128,7 @@ OWN_ALGO = "[algorithm]\nperiod_samples = 32\n"     # 1 kHz at 32 kHz: analysed 
     (dict(target=48.0, max_v=65.0, r=4.0), "extra-low-voltage"),
     (dict(kind="constant_power", key="power_w", value=60.0), "constant-power"),
     (dict(esr=1.0), "capacitor's ESR"),
+    (dict(l=200e-6, algorithm=OWN_ALGO), "inductive reactance"),
     (dict(c=4.7e-3, gain_error=0.3, algorithm="[algorithm]\nperiod_samples = 32\nperiods_per_window = 1\n"
           "smoothing_shift = 0\n"), "unstable"),
     (dict(c=22e-3, algorithm="[algorithm]\nperiod_samples = 32\nperiods_per_window = 1\n"
@@ -136,7 +138,7 @@ def test_each_warning_fires_on_a_plant_built_for_it(tmp_path, kw, phrase):
     """Each plain-language warning fires on an invented plant that breaks its rule.
 
     Rules: AC short and corner (design brief 3.9; factor 10 and 3 common practice, no published
-    source), supply bandwidth (same), headroom = max_v - target_v, extra-low voltage about
+    source), supply bandwidth (same), cable inductance wL below R / 3 (same), headroom = max_v - target_v, extra-low voltage about
     60 V DC (design brief 5), constant-power drop share and ESR share (common practice, no
     published source), loop margin (harness.loop_model).
     """
@@ -193,3 +195,14 @@ def test_missing_file_exits_2(tmp_path, capsys):
     """A scenario that cannot be read: exit 2, the path named."""
     assert main(["design", str(tmp_path / "none.toml")]) == 2
     assert "none.toml" in capsys.readouterr().err
+
+
+def test_recommended_frequency_keeps_the_cable_inductance_small(tmp_path):
+    """The calculator lowers the perturbation so wL stays below R / L_SHORT (common practice,
+    no published source) when the capacitor still allows it, and then warns about nothing."""
+    import math
+    sc = plant(tmp_path, r=0.5, l=20e-6, c=47e-3)
+    rep = design_report(sc)
+    f = rep["perturbation_hz"]
+    assert 2 * math.pi * f * 20e-6 <= 0.5 / 3
+    assert not any("inductive" in w for w in rep["warnings"]), rep["warnings"]
