@@ -21,12 +21,21 @@ FILES = sorted(HERE.glob("*.toml"))
 STEP_FINDINGS = ("d7", "d10")       # broken promise: the transient bound, not convergence
 CALCULATOR_FINDINGS = ("d1", "d2", "d3", "d4")   # findings in the design calculator's choices
 FIXED = ("d1", "d2", "d4")          # fixed in the calculator (fc379ac): regression tests now
+# Fixed in the calculator by keeping the cable's wL below R / 3 (design.L_SHORT); the rest of
+# D3 (x_max leaves out wL) stays open.
+FIXED_FILES = ("d3_inductive_reactance_noisy_estimate",)
 FIXED_STEP = ("d10",)               # fixed in the algorithm: load-step windows do not count as faults
-OPEN = [p for p in FILES if p.stem.split("_")[0] not in STEP_FINDINGS + FIXED]
 
 
-@pytest.mark.parametrize("path", [p for p in FILES if p.stem.split("_")[0] not in FIXED + FIXED_STEP],
-                         ids=[p.stem for p in FILES if p.stem.split("_")[0] not in FIXED + FIXED_STEP])
+def _fixed(p):
+    return p.stem.split("_")[0] in FIXED or p.stem in FIXED_FILES
+
+
+OPEN = [p for p in FILES if p.stem.split("_")[0] not in STEP_FINDINGS and not _fixed(p)]
+RECOGNISED = [p for p in FILES if not _fixed(p) and p.stem.split("_")[0] not in FIXED_STEP]
+
+
+@pytest.mark.parametrize("path", RECOGNISED, ids=[p.stem for p in RECOGNISED])
 def test_finding_is_still_recognised_by_its_predicate(path):
     sc = load_scenario(path)
     assert KNOWN_FINDINGS[path.stem.split('_')[0].upper()](sc)
@@ -42,8 +51,8 @@ def _converges(path):
     assert settled_failures(lr, b, lr.run.scenarios[b], n, n + bd.CHECK_WINDOWS) == []
 
 
-@pytest.mark.parametrize("path", [p for p in FILES if p.stem.split("_")[0] in FIXED],
-                         ids=[p.stem for p in FILES if p.stem.split("_")[0] in FIXED])
+@pytest.mark.parametrize("path", [p for p in FILES if _fixed(p)],
+                         ids=[p.stem for p in FILES if _fixed(p)])
 def test_fixed_finding_converges_with_the_recommended_settings(path):
     _converges(path)
 
