@@ -37,7 +37,8 @@ COMPENSATIONS = (0.98, 0.95, 0.9, 0.85, 0.8, 0.7, 0.6, 0.5)
 SMOOTHINGS = (1, 2, 3)
 FLOOR_LSB = 16.0         # smallest current swing, current-ADC LSBs (common practice, no published source)
 RIPPLE_FRACTION = 0.005  # largest perturbation ripple at the load, peak, share of target_v (same)
-V_FLOOR_LSB = 4.0        # smallest perturbation, voltage-ADC LSBs (same)
+V_FLOOR_LSB = 10.0       # smallest perturbation, voltage-ADC LSBs: with little ADC noise to
+                         # dither it, a few-LSB sine demodulates with a bias of several % (same)
 DAC_FLOOR_LSB = 2.0      # smallest perturbation, DAC codes (same)
 LIGHT_LOAD_SHARE = 0.5   # largest floor swing as a share of the lightest load current (same)
 X_MAX_FACTOR = 3.0       # x_max_ohm at least this multiple of the plant's own |X| at f
