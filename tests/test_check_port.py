@@ -5,7 +5,6 @@ the copy is built with the text-vector replay driver (plain gcc, no cffi)
 and its output compared with the vector files row by row.
 """
 import glob
-import json
 import os
 import re
 import shutil
@@ -16,6 +15,7 @@ import pytest
 from c_ref import textvec
 from cbuild import C_REF, DRIVER, STRICT, gcc, run_driver
 from harness.cli import main
+from vector_helpers import read_note, write_vectors
 from harness.port_check import LABELS
 from harness.vector_files import COLUMNS, params_from_note, parse_vector_csv
 from tools import require_tool
@@ -36,13 +36,7 @@ CONSTANT = {
 
 @pytest.fixture(scope="module")
 def vec_dir(tmp_path_factory):
-    out = tmp_path_factory.mktemp("vectors")
-    assert main(["vectors", "--out", str(out), *ARGS]) == 0
-    return out
-
-
-def _note(vec_dir):
-    return json.loads((vec_dir / "demo_mast-vectors.json").read_text())
+    return write_vectors(tmp_path_factory, ARGS)
 
 
 def _copy_c_ref(dest):
@@ -68,7 +62,7 @@ def _first_divergence_by_driver(port, vec_dir, tmp_path):
     res = gcc([*STRICT, "-O2", "-I", str(port), DRIVER, str(port / "step.c"), str(port / "estimator.c"),
                "-o", exe])
     assert res.returncode == 0, res.stderr
-    note = _note(vec_dir)
+    note = read_note(vec_dir)
     params = params_from_note(note, "note")
     for entry in note["vectors"]:
         rows = parse_vector_csv(entry["file"], (vec_dir / entry["file"]).read_text())
@@ -83,7 +77,7 @@ def _first_divergence_by_driver(port, vec_dir, tmp_path):
 
 
 def _total_samples(vec_dir):
-    return sum(e["samples"] for e in _note(vec_dir)["vectors"])
+    return sum(e["samples"] for e in read_note(vec_dir)["vectors"])
 
 
 def test_c_ref_copy_is_bit_exact_on_every_sample(vec_dir, tmp_path, capsys):
@@ -130,7 +124,7 @@ def test_log_made_by_the_model_passes_and_a_tampered_one_fails_at_the_edit(vec_d
 
 
 def test_log_params_can_come_from_an_algorithm_config(vec_dir, tmp_path, capsys):
-    cfg = _note(vec_dir)["algo_config"]
+    cfg = read_note(vec_dir)["algo_config"]
     toml = tmp_path / "algo.toml"
     toml.write_text("[algorithm]\n" + "".join(f"{k} = {v!r}\n" for k, v in cfg.items()))
     assert main(["check-port", "--log", str(vec_dir / "demo_mast-normal.csv"), "--config", str(toml)]) == 0

@@ -1,7 +1,6 @@
 """linedrop vectors: descriptive files, provenance, every fault and window status, byte-identical reruns."""
 import dataclasses
 import hashlib
-import json
 import os
 
 import numpy as np
@@ -13,6 +12,7 @@ from algo.params import derive
 from algo.state import STATE_FIELDS, STATUS_NAMES
 from harness import vectors
 from harness.cli import main
+from vector_helpers import read_note, write_vectors
 from harness.cmd_vectors import DEMO
 from harness.scenario import load_scenario
 from harness.specs import FAULT_KINDS
@@ -26,13 +26,7 @@ NAMES = ["normal", "load_step", "fault_cable_open", "fault_cap_open", "fault_loa
 
 @pytest.fixture(scope="module")
 def vec_dir(tmp_path_factory):
-    out = tmp_path_factory.mktemp("vectors")
-    assert main(["vectors", "--out", str(out), *ARGS]) == 0
-    return out
-
-
-def _note(vec_dir):
-    return json.loads((vec_dir / "demo_mast-vectors.json").read_text())
+    return write_vectors(tmp_path_factory, ARGS)
 
 
 def _rows(vec_dir, name):
@@ -56,7 +50,7 @@ def test_another_seed_changes_the_closed_loop_vectors(vec_dir, tmp_path):
 def test_files_have_descriptive_names_a_header_line_and_one_row_per_sample(vec_dir):
     expected = {f"demo_mast-{n}.csv" for n in NAMES} | {"demo_mast-vectors.json", "demo_mast-params.h"}
     assert set(os.listdir(vec_dir)) == expected
-    for entry in _note(vec_dir)["vectors"]:
+    for entry in read_note(vec_dir)["vectors"]:
         lines = (vec_dir / entry["file"]).read_text().splitlines()
         assert lines[0] == "adc_v,adc_i,command," + ",".join(STATE_FIELDS)
         assert len(lines) - 1 == entry["samples"] > 0
@@ -80,7 +74,7 @@ def test_every_window_status_appears_somewhere_in_the_set(vec_dir):
 
 def test_extreme_vector_holds_zero_full_scale_and_clamped_65535_codes(vec_dir):
     rows = _rows(vec_dir, "extreme_codes")
-    adc_max = derive(AlgoConfig(**_note(vec_dir)["algo_config"])).adc_max
+    adc_max = derive(AlgoConfig(**read_note(vec_dir)["algo_config"])).adc_max
     for col in (0, 1):
         assert {0, adc_max, 65535} <= set(rows[:, col].tolist())
 
@@ -91,7 +85,7 @@ def test_long_run_defaults_to_at_least_200_windows():
 
 
 def test_provenance_names_scenario_settings_params_seed_and_version(vec_dir):
-    note = _note(vec_dir)
+    note = read_note(vec_dir)
     cfg = AlgoConfig(**note["algo_config"])
     assert note["scenario"] == {"file": "demo_mast.toml",
                                 "sha256": hashlib.sha256(open(DEMO, "rb").read()).hexdigest()}
@@ -108,7 +102,7 @@ def test_provenance_names_scenario_settings_params_seed_and_version(vec_dir):
 
 def test_closed_loop_vector_is_what_the_model_answers_for_its_inputs(vec_dir):
     rows = _rows(vec_dir, "load_step")
-    params = derive(AlgoConfig(**_note(vec_dir)["algo_config"]))
+    params = derive(AlgoConfig(**read_note(vec_dir)["algo_config"]))
     assert np.array_equal(vectors.model_trace(params, rows[:, 0], rows[:, 1]), rows[:, 2:])
 
 
