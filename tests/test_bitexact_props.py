@@ -8,8 +8,8 @@ from algo.config import AlgoConfig
 from algo.params import derive
 from algo.state import STATUS_NAMES, STATUS_LOW_SWING, STATUS_VALID
 from c_ref.binding import CBatch
-from lockstep import Pair, assert_same, first_difference, model_run, py_state
-import strategies_algo as sa
+from support.model_c_pair import Pair, assert_same, first_difference, model_run, py_state
+from harness.proof import algo_strategies as sa
 
 
 def _scaled(fraction):

@@ -9,9 +9,9 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from c_ref import textvec
-from cbuild import VARIANTS, build_driver, run_driver
-import strategies_algo as sa
-from tools import require_tool
+from support.cbuild import VARIANTS, build_driver, run_driver
+from harness.proof import algo_strategies as sa
+from support.tools import require_tool
 
 _builds = {}
 

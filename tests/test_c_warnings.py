@@ -6,8 +6,8 @@ The headers are also compiled alone, to prove they are self-contained.
 """
 import pytest
 
-from cbuild import STRICT, c_sources, gcc
-from tools import require_tool
+from support.cbuild import STRICT, c_sources, gcc
+from support.tools import require_tool
 
 OPT_LEVELS = ["-O0", "-O2", "-Os"]
 HEADERS = ["linedrop.h", "fixed.h"]

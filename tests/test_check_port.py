@@ -13,12 +13,12 @@ import numpy as np
 import pytest
 
 from c_ref import textvec
-from cbuild import C_REF, DRIVER, STRICT, gcc, run_driver
-from harness.cli import main
-from vector_helpers import read_note, write_vectors
-from harness.port_check import LABELS
-from harness.vector_files import COLUMNS, params_from_note, parse_vector_csv
-from tools import require_tool
+from support.cbuild import C_REF, DRIVER, STRICT, gcc, run_driver
+from harness.cli.main import main
+from support.vector_helpers import read_note, write_vectors
+from harness.port.check import LABELS
+from harness.port.vector_files import COLUMNS, params_from_note, parse_vector_csv
+from support.tools import require_tool
 
 ARGS = ["--duration-s", "0.1", "--long-s", "0.15", "--seed", "5"]
 OUTPUT_FIELDS = textvec.OUTPUT_FIELDS[:-1]   # command and the model's state fields, no 'reserved'

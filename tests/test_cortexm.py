@@ -18,8 +18,8 @@ from algo.params import derive
 from c_ref import textvec
 from c_ref.cortexm import build, qemu_run
 from c_ref.fuzz.gen_params_corpus import configs
-from harness.firmware_cost import input_run
-from tools import skip_or_fail
+from harness.port.firmware_cost import input_run
+from support.tools import skip_or_fail
 
 SEED = 31337
 OPTS = ("-Os", "-O2")

@@ -5,13 +5,13 @@ import math
 import pytest
 
 from algo.params import derive
-from harness.algo_setup import algo_config
-from harness.algo_toml import load_algo_config
-from harness.cli import main
-from harness.design_report import design_report
-from harness.scenario import load_scenario
+from harness.scenario.algo_setup import algo_config
+from harness.scenario.algo_toml import load_algo_config
+from harness.cli.main import main
+from harness.design.report import design_report
+from harness.scenario.read import load_scenario
 
-DEMO = "harness/scenarios/demo_mast.toml"
+DEMO = "harness/scenario/scenarios/demo_mast.toml"
 
 # Invented test plants. PoE-like: 48 V feed, constant-current powered device at the far end.
 POE_AF = """
@@ -140,7 +140,7 @@ def test_each_warning_fires_on_a_plant_built_for_it(tmp_path, kw, phrase):
     Rules: AC short and corner (design brief 3.9; factor 10 and 3 common practice, no published
     source), supply bandwidth (same), cable inductance wL below R / 3 (same), headroom = max_v - target_v, extra-low voltage about
     60 V DC (design brief 5), constant-power drop share and ESR share (common practice, no
-    published source), loop margin (harness.loop_model).
+    published source), loop margin (harness.design.loop_model).
     """
     warnings = design_report(plant(tmp_path, **kw))["warnings"]
     assert any(phrase in w for w in warnings), warnings

@@ -10,7 +10,7 @@ import importlib.util
 import pytest
 
 from c_ref.cortexm import build
-from tools import skip_or_fail
+from support.tools import skip_or_fail
 
 
 @pytest.fixture(scope="module")
@@ -19,7 +19,7 @@ def cost():
     missing = [m for m in ("unicorn", "capstone", "elftools") if importlib.util.find_spec(m) is None]
     skip_or_fail(f"python packages missing: {', '.join(missing)} (pip install unicorn capstone "
           f"pyelftools)" if missing else None)
-    from harness import firmware_cost
+    from harness.port import firmware_cost
     return firmware_cost.measure()
 
 
@@ -52,7 +52,7 @@ def test_window_end_is_the_worst_case_sample(cost):
 def test_benchmark_prints_the_cost_table(capsys):
     """Benchmark entry point: run with ``pytest -s`` to see the table."""
     skip_or_fail(build.toolchain_missing())
-    from harness import firmware_cost
+    from harness.port import firmware_cost
     assert firmware_cost.main([]) == 0
     out = capsys.readouterr().out
     with capsys.disabled():
@@ -61,7 +61,7 @@ def test_benchmark_prints_the_cost_table(capsys):
 
 
 def test_line_profile_attributes_every_instruction_of_a_call_to_a_source_line(cost):
-    from harness import firmware_cost
+    from harness.port import firmware_cost
     ordinary, window_end = firmware_cost.profile_lines("m4", "-O2", windows=2)
     assert "?" not in "".join(ordinary) and any(k.startswith("step.c:") for k in ordinary)
     assert sum(window_end.values()) == pytest.approx(cost["m4_instr_max"], rel=0.1)

@@ -12,9 +12,9 @@ clamp on overflow.
 import pytest
 
 from algo import fixed
-from fixed_shim import (INT32_MAX, INT32_MIN, INT64_MAX, INT64_MIN, exact_bit_length,
+from support.fixed_shim import (INT32_MAX, INT32_MIN, INT64_MAX, INT64_MIN, exact_bit_length,
                         exact_div_trunc, exact_rshift_round, exact_sat, exact_step_toward, load)
-from tools import require_tool
+from support.tools import require_tool
 
 
 @pytest.fixture(scope="module")

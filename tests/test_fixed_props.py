@@ -3,9 +3,9 @@ import pytest
 from hypothesis import assume, given, strategies as st
 
 from algo import fixed
-from fixed_shim import (INT32_MAX, INT32_MIN, INT64_MAX, INT64_MIN, exact_bit_length,
+from support.fixed_shim import (INT32_MAX, INT32_MIN, INT64_MAX, INT64_MIN, exact_bit_length,
                         exact_div_trunc, exact_rshift_round, exact_sat, exact_step_toward, load)
-from tools import require_tool
+from support.tools import require_tool
 
 i32 = st.integers(INT32_MIN, INT32_MAX)
 i64 = st.integers(INT64_MIN, INT64_MAX)

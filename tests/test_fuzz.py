@@ -14,7 +14,7 @@ import pytest
 from algo.config import AlgoConfig
 from algo.params import derive
 from c_ref.fuzz import gen_params_corpus as gen
-from tools import skip_or_fail
+from support.tools import skip_or_fail
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 C_REF = os.path.join(ROOT, "c_ref")

@@ -6,13 +6,13 @@ import control
 import numpy as np
 import pytest
 
-from harness import loop_model as lm
-from harness.algo_setup import algo_config
-from harness.closed_loop import simulate
-from harness.operating_point import operating_point
-from harness.scenario import load_scenario, parse_scenario
+from harness.design import loop_model as lm
+from harness.scenario.algo_setup import algo_config
+from harness.loop.closed_loop import simulate
+from harness.design.operating_point import operating_point
+from harness.scenario.read import load_scenario, parse_scenario
 
-DEMO = "harness/scenarios/demo_mast.toml"
+DEMO = "harness/scenario/scenarios/demo_mast.toml"
 
 
 def rc_scenario(c_f, gain_error=0.0, ppw=1, ss=2, k=0.98, duration_s=0.6):
@@ -100,7 +100,7 @@ def test_gain_margin_agrees_with_python_control(c_f, ss):
 def test_unstable_and_stable_configurations_in_the_time_domain():
     """What the model calls unstable rings into the correction clamp in simulate; stable settles.
 
-    Source of the plant behaviour: the harness's exact-ZOH plant (harness.plant) with the
+    Source of the plant behaviour: the harness's exact-ZOH plant (harness.plant.plant) with the
     fixed-point model. A sensing gain error (+20 %, +30 %) raises the loop gain; with
     smoothing_shift 0 and R*C several windows long the model puts a pole outside the unit
     circle, with smoothing_shift 2 inside.

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from harness.plant import Plant
-from harness.specs import LoadSpec
-from plant_factory import make_scenario
+from harness.plant.plant import Plant
+from harness.scenario.specs import LoadSpec
+from support.plant_factory import make_scenario
 
 
 def run(plant, command, n):
@@ -99,7 +99,7 @@ def test_expm_batch_matches_scipy_expm():
     random matrices, including norms far above the Pade(13) bound. Tolerance 1e-12 relative."""
     from scipy.linalg import expm
 
-    from harness.linear_model import expm_batch
+    from harness.plant.linear_model import expm_batch
 
     rng = np.random.default_rng(3)
     for scale in (1e-4, 1.0, 30.0, 3e3):

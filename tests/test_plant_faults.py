@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from harness.plant import Plant
-from harness.specs import LOAD_SHORT_OHM, LoadSpec
-from plant_factory import make_scenario
+from harness.plant.plant import Plant
+from harness.scenario.specs import LOAD_SHORT_OHM, LoadSpec
+from support.plant_factory import make_scenario
 
 FS = 32000.0
 

@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-from harness.loads import LAMP_COLD_RATIO, LoadBank, lamp_steady_u
-from harness.plant import Plant
-from harness.specs import LoadSpec
-from plant_factory import make_scenario
+from harness.plant.loads import LAMP_COLD_RATIO, LoadBank, lamp_steady_u
+from harness.plant.plant import Plant
+from harness.scenario.specs import LoadSpec
+from support.plant_factory import make_scenario
 
 
 def test_steady_start_satisfies_ohms_law_and_stays_put():

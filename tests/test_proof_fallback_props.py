@@ -1,17 +1,17 @@
 """Proof property 3: cable open, capacitor open, both, or load disconnected -> the correction falls
 to zero within the stated windows, stays there, the loop re-converges after, and the load never
 exceeds target + the overshoot margin. A rule-based machine injects the same events into a running
-closed loop in any order. Bounds from harness.bounds; model and C in lock step throughout."""
+closed loop in any order. Bounds from harness.proof.bounds; model and C in lock step throughout."""
 import math
 from dataclasses import replace
 
 from hypothesis import Phase, assume, event, given, settings, strategies as st
 from hypothesis.stateful import RuleBasedStateMachine, initialize, rule
 
-from harness import bounds as bd
-from harness import strategies as hs
-from harness.algo_setup import algo_config
-from proof_support import admitted, known_finding, reproducer, run_groups, samples_between, settled_failures, window_ends
+from harness.proof import bounds as bd
+from harness.proof import strategies as hs
+from harness.scenario.algo_setup import algo_config
+from support.proof_support import admitted, known_finding, reproducer, run_groups, samples_between, settled_failures, window_ends
 
 KINDS = ("cable_open", "cap_open", "both", "load_off")
 

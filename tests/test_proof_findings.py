@@ -1,9 +1,9 @@
-"""Reproducers of the design failures the proof suite found (harness/PROOFS.md, "Open findings").
+"""Reproducers of the design failures the proof suite found (harness/proof/PROOFS.md, "Open findings").
 
 Each scenario file in tests/proof_findings/ is a plant the sizing rules admit on which the
 recommended configuration does not converge. They are strict xfails: the day the design is
 fixed the test XPASSes, strict makes that a failure, and the finding's predicate in
-tests/proof_support.py (which keeps the property tests from re-finding it meanwhile) is deleted
+tests/support/proof_support.py (which keeps the property tests from re-finding it meanwhile) is deleted
 together with the marker. Replay one with ``linedrop simulate tests/proof_findings/<file>``.
 """
 from dataclasses import replace
@@ -11,10 +11,10 @@ from pathlib import Path
 
 import pytest
 
-from harness.design import recommend
-from harness.scenario import load_scenario
-from proof_support import KNOWN_FINDINGS, run_groups, settle_windows, settled_failures
-from harness import bounds as bd
+from harness.design.calculator import recommend
+from harness.scenario.read import load_scenario
+from support.proof_support import KNOWN_FINDINGS, run_groups, settle_windows, settled_failures
+from harness.proof import bounds as bd
 
 HERE = Path(__file__).parent / "proof_findings"
 FILES = sorted(HERE.glob("*.toml"))

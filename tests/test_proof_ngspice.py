@@ -2,7 +2,7 @@
 
 Source of the reference: ngspice-39 (or later) run in batch mode (``ngspice -b``) on a netlist this
 test writes: an ideal supply at a fixed command -> cable R and L -> capacitor C in series with its
-ESR, in parallel with a constant-current load stepped by a PWL source. harness.plant must give the
+ESR, in parallel with a constant-current load stepped by a PWL source. harness.plant.plant must give the
 same load voltage within 0.1 % at every sample of the run.
 """
 import os
@@ -12,10 +12,10 @@ import tempfile
 import numpy as np
 import pytest
 
-from harness.plant import Plant
-from harness.specs import LoadSpec
-from plant_factory import make_scenario
-from tools import require_tool
+from harness.plant.plant import Plant
+from harness.scenario.specs import LoadSpec
+from support.plant_factory import make_scenario
+from support.tools import require_tool
 
 RATE = 32000.0
 DURATION = 0.02

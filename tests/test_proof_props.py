@@ -1,18 +1,18 @@
 """Proof properties 1 and 5: every admitted plant converges, in lock step on the model and the C.
 
-Each example is a batch of plants drawn by harness.strategies.plant_batches, configured by the
+Each example is a batch of plants drawn by harness.proof.strategies.plant_batches, configured by the
 design calculator, run as one closed-loop call per sample rate through
-harness.lockstep_loop.run_lockstep, where the fixed-point model drives the plant and the C
+harness.loop.lockstep.run_lockstep, where the fixed-point model drives the plant and the C
 reference must agree with it on the command and every state field at every sample (property 5),
 and every state field must stay inside algo.ranges.state_bounds (property 2). Bounds come from
-harness.bounds only.
+harness.proof.bounds only.
 """
 from hypothesis import Phase, given, note, settings
 
-from harness import bounds as bd
-from harness import strategies as hs
-from harness.algo_setup import algo_config
-from proof_support import admitted, reproducer, run_groups, settle_windows, settled_failures, settled_load_v
+from harness.proof import bounds as bd
+from harness.proof import strategies as hs
+from harness.scenario.algo_setup import algo_config
+from support.proof_support import admitted, reproducer, run_groups, settle_windows, settled_failures, settled_load_v
 
 BATCH = 8
 

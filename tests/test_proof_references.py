@@ -9,12 +9,12 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from harness.closed_loop import simulate
-from harness.design import recommend
-from harness.loads import LAMP_COLD_RATIO, LAMP_R_EXPONENT, LAMP_U_AMBIENT, lamp_steady_u
-from harness.metrics import metrics
-from harness.specs import LoadSpec
-from plant_factory import make_scenario
+from harness.loop.closed_loop import simulate
+from harness.design.calculator import recommend
+from harness.plant.loads import LAMP_COLD_RATIO, LAMP_R_EXPONENT, LAMP_U_AMBIENT, lamp_steady_u
+from harness.loop.metrics import metrics
+from harness.scenario.specs import LoadSpec
+from support.plant_factory import make_scenario
 
 #: Lamp rerating exponents (IES Lighting Handbook, incandescent lamp rerating rules; quoted from
 #: memory): light ~ V**3.4, power ~ V**1.6.

@@ -1,8 +1,8 @@
 """Proof properties 2 and 5: safe saturation and bit-exactness for ANY algorithm settings.
 
 The algorithm's own settings are drawn anywhere in their documented ranges
-(harness.strategies.algorithm_overrides), on plants with load steps and faults, from a steady
-or a cold start. harness.lockstep_loop checks, at every sample, that the C reference equals
+(harness.proof.strategies.algorithm_overrides), on plants with load steps and faults, from a steady
+or a cold start. harness.loop.lockstep checks, at every sample, that the C reference equals
 the model on the command and every state field, and that every state field lies inside
 algo.ranges.state_bounds: the command in [cmd_min, cmd_max] (the min_v / max_v codes), the
 estimate in [0, r_max_q], the correction in [0, corr_max_q], the accumulators inside acc_bits.
@@ -14,13 +14,13 @@ from hypothesis import Phase, event, given, settings, strategies as st
 
 from algo.params import derive
 from algo.ranges import declared_width_violations
-from harness import bounds as bd
-from harness import strategies as hs
-from harness.algo_setup import algo_config
+from harness.proof import bounds as bd
+from harness.proof import strategies as hs
+from harness.scenario.algo_setup import algo_config
 from harness.errors import InputError
-from proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
+from support.proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
 
-import strategies_algo as sa
+from harness.proof import algo_strategies as sa
 
 FAULTS = ("cable_open", "cap_open", "load_short", "adc_stuck")
 

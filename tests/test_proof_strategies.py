@@ -5,10 +5,10 @@ from dataclasses import replace
 
 from hypothesis import given, settings
 
-from harness import strategies as hs
-from harness.design_report import design_report
-from harness.scenario import parse_scenario
-from harness.scenario_toml import scenario_to_toml
+from harness.proof import strategies as hs
+from harness.design.report import design_report
+from harness.scenario.read import parse_scenario
+from harness.scenario.write import scenario_to_toml
 
 
 @settings(max_examples=settings.default.max_examples * 2)

@@ -1,16 +1,16 @@
 """Proof property 4: load steps landing anywhere in a window never move the settled estimate by more
 than TRANSIENT_R_REL and never push the load above target + the overshoot margin; the loop settles
-again within RECOVER_WINDOWS. Model and C in lock step (harness.lockstep_loop)."""
+again within RECOVER_WINDOWS. Model and C in lock step (harness.loop.lockstep)."""
 from dataclasses import replace
 
 from hypothesis import Phase, given, settings
 
-from harness import bounds as bd
-from harness import strategies as hs
-from harness.algo_setup import algo_config
-from proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
+from harness.proof import bounds as bd
+from harness.proof import strategies as hs
+from harness.scenario.algo_setup import algo_config
+from support.proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
 
-STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.strategies.plants)
+STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.proof.strategies.plants)
 
 
 def _examples(fraction):

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from algo.state import STATE_FIELDS
-from harness.cli import main
+from harness.cli.main import main
 
 
 def _write_adc(path, v, i, header="adc_v,adc_i"):

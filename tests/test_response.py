@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from algo.config import AlgoConfig
-from harness.replay import replay
+from harness.loop.replay import replay
 
 CFG = AlgoConfig()
 V_LSB = CFG.v_full_scale_v / 4096

@@ -4,11 +4,11 @@ from pathlib import Path
 
 import pytest
 
-from harness.batch import build_batch
+from harness.plant.rig import build_rig
 from harness.errors import InputError
-from harness.scenario import load_scenario
+from harness.scenario.read import load_scenario
 
-SCENARIOS = Path(__file__).resolve().parents[1] / "harness" / "scenarios"
+SCENARIOS = Path(__file__).resolve().parents[1] / "harness" / "scenario" / "scenarios"
 
 BASE = """
 [supply]
@@ -35,7 +35,7 @@ def _write(tmp_path, text, name="scenario.toml"):
 def test_demo_scenarios_load_and_build(name):
     """The shipped demo files parse and build a plant (no outside source)."""
     sc = load_scenario(SCENARIOS / name)
-    batch = build_batch([sc])
+    batch = build_rig([sc])
     obs = batch.reset()
     assert obs.v_supply_v.shape == (1,)
 
@@ -47,7 +47,7 @@ def test_demo_mast_loop_resistance_from_gauge():
 
 
 def test_defaults_are_filled_in(tmp_path):
-    """Documented defaults (harness/SCENARIO_KEYS.md): 12-bit ADC at 32 kHz, steady start."""
+    """Documented defaults (harness/scenario/SCENARIO_KEYS.md): 12-bit ADC at 32 kHz, steady start."""
     sc = load_scenario(_write(tmp_path, BASE))
     assert (sc.sensing.adc_bits, sc.sensing.sample_rate_hz, sc.run.start) == (12, 32000.0, "steady")
     assert sc.load.cutoff_v == pytest.approx(6.0)

@@ -1,6 +1,6 @@
 """Every bundled scenario as a regression test: linedrop holds the load and beats every baseline.
 
-The scenarios are invented demo data (harness/scenarios/*.toml). The 1 % band
+The scenarios are invented demo data (harness/scenario/scenarios/*.toml). The 1 % band
 is the issue's acceptance figure for the demo; the baselines run through the
 same plant, sensing and seed.
 """
@@ -8,11 +8,11 @@ import os
 
 import pytest
 
-from harness.closed_loop import COMPENSATIONS, simulate
-from harness.metrics import metrics
-from harness.scenario import load_scenario
+from harness.loop.closed_loop import COMPENSATIONS, simulate
+from harness.loop.metrics import metrics
+from harness.scenario.read import load_scenario
 
-HERE = os.path.join(os.path.dirname(__file__), "..", "harness", "scenarios")
+HERE = os.path.join(os.path.dirname(__file__), "..", "harness", "scenario", "scenarios")
 SCENARIOS = ["demo_mast", "garden_lamps", "parking_camera", "mast_faults"]
 
 

@@ -5,8 +5,8 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from harness.sensing import Adc, Dac
-from harness.specs import SensingSpec, SupplySpec
+from harness.plant.sensing import Adc, Dac
+from harness.scenario.specs import SensingSpec, SupplySpec
 
 SPEC = SensingSpec(v_full_scale_v=40.96, i_full_scale_a=4.096, adc_bits=12, noise_lsb_rms=0.0)
 

@@ -5,7 +5,7 @@ import os
 
 import pytest
 
-from harness.cli import main
+from harness.cli.main import main
 
 SHORT = """
 [supply]

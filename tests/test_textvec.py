@@ -3,7 +3,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from c_ref import textvec
-import strategies_algo as sa
+from harness.proof import algo_strategies as sa
 
 
 @st.composite

@@ -1,7 +1,7 @@
 """require_tool: a missing system tool skips the test, or fails it under LINEDROP_REQUIRE_TOOLS=1."""
 import pytest
 
-import tools
+from support import tools
 
 
 def _missing(monkeypatch):

@@ -10,13 +10,13 @@ import pytest
 
 from algo.config import AlgoConfig
 from algo.params import derive
-from harness import range_check
-from harness.cli import main
-from harness.cmd_simulate import DEMO
-from harness.scenario import load_scenario
-from harness.tune_eval import KNOBS
-from harness.tune_run import Cache, Runner
-from harness.tune_search import Tuner
+from harness.tune import range_check
+from harness.cli.main import main
+from harness.cli.simulate import DEMO
+from harness.scenario.read import load_scenario
+from harness.tune.evaluate import KNOBS
+from harness.tune.runner import Cache, Runner
+from harness.tune.search import Tuner
 
 SPEC = {"max_error_mv": 80.0, "max_settle_ms": 300.0, "min_gain_margin": 1.25, "max_ideal_ratio": 2.0}
 SPEC_ARGS = ["--max-error-mv", "80", "--max-settle-ms", "300"]

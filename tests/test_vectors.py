@@ -10,13 +10,13 @@ from algo import VERSION
 from algo.config import AlgoConfig
 from algo.params import derive
 from algo.state import STATE_FIELDS, STATUS_NAMES
-from harness import vectors
-from harness.cli import main
-from vector_helpers import read_note, write_vectors
-from harness.cmd_vectors import DEMO
-from harness.scenario import load_scenario
-from harness.specs import FAULT_KINDS
-from harness.vector_files import COLUMNS, parse_vector_csv
+from harness.port import vectors
+from harness.cli.main import main
+from support.vector_helpers import read_note, write_vectors
+from harness.cli.vectors import DEMO
+from harness.scenario.read import load_scenario
+from harness.scenario.specs import FAULT_KINDS
+from harness.port.vector_files import COLUMNS, parse_vector_csv
 
 # Short runs keep the test quick; the long run still spans several windows.
 ARGS = ["--duration-s", "0.12", "--long-s", "0.2", "--seed", "7"]

@@ -1,0 +1,97 @@
+"""``linedrop bench``: throughput of the C batch, the Python model and the closed loop, side by side."""
+import json
+import time
+
+import numpy as np
+
+from algo import step as scalar
+from algo.batch import BatchModel
+from algo.config import AlgoConfig
+from algo.params import derive
+
+
+def add_parser(sub):
+    p = sub.add_parser("bench", help="measure samples per second of each backend (a benchmark)",
+                       description="Measure throughput in one run, side by side. Figures vary "
+                                   "with machine load; compare ratios, not absolutes.")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--instances", type=int, default=1024, help="batch size (default 1024)")
+    p.add_argument("--firmware", action="store_true",
+                   help="instead, the firmware cost on Cortex-M4 and M0+: instructions per "
+                        "ld_step (emulated), code, state and stack bytes (needs arm-none-eabi-gcc)")
+    p.set_defaults(func=run)
+
+
+def _inputs(p, n, t, seed=1):
+    """Realistic codes: a mid-scale voltage and current swinging with the perturbation, plus noise."""
+    rng = np.random.default_rng(seed)
+    ph = 2 * np.pi * np.arange(t) / p.period
+    v = 0.7 * p.adc_max + 0.002 * p.adc_max * np.sin(ph) + rng.normal(0, 1, (n, t))
+    i = 0.25 * p.adc_max + 0.02 * p.adc_max * np.sin(ph - 0.1) + rng.normal(0, 1, (n, t))
+    return (np.clip(v, 0, p.adc_max).astype(np.uint16), np.clip(i, 0, p.adc_max).astype(np.uint16))
+
+
+def _rate(fn, samples):
+    t0 = time.perf_counter()
+    fn()
+    return samples / (time.perf_counter() - t0)
+
+
+def _closed_loop_rate(backend, n, samples):
+    """Scenario-samples per second of the whole closed loop (plant, ADC, algorithm, recording)
+    on ``n`` copies of the bundled demo scenario, ``samples`` samples long, setup included."""
+    from dataclasses import replace
+
+    from harness.loop.closed_loop import simulate
+    from harness.scenario.read import DEMO, load_scenario
+    sc = load_scenario(DEMO)
+    # A shorter run, with the cable warming at the scenario's own rate (the ramp ends with the run).
+    duration_s = samples / sc.sensing.sample_rate_hz
+    cable = sc.cable
+    if cable.temperature_end_c is not None:
+        end_c = cable.temperature_c + (cable.temperature_end_c - cable.temperature_c) * duration_s / sc.run.duration_s
+        cable = replace(cable, temperature_end_c=end_c)
+    sc = replace(sc, cable=cable, run=replace(sc.run, duration_s=duration_s))
+    return _rate(lambda: simulate([sc] * n, backend, channels=("v_load_v", "i_supply_a", "v_supply_v")),
+                 n * samples)
+
+
+def measure(n=1024):
+    """Return the throughput figures (samples per second) as a dict."""
+    from c_ref.binding import CBatch
+    p = derive(AlgoConfig())
+    out = {}
+    v, i = _inputs(p, n, 4096)
+    c = CBatch([p] * n)
+    out["c_batch_samples_per_s"] = _rate(lambda: c.run(v, i), v.size)
+    v1, i1 = v[0].tolist(), i[0].tolist()
+    s = scalar.init(p)
+    out["model_samples_per_s"] = _rate(lambda: [scalar.step(p, s, a, b) for a, b in zip(v1, i1)],
+                                       len(v1))
+    bm = BatchModel([p] * n)
+    out["model_batch_samples_per_s"] = _rate(lambda: bm.run(v[:, :512], i[:, :512]), n * 512)
+    out["closed_loop_batch_samples_per_s"] = _closed_loop_rate("model", n, 16384)
+    out["closed_loop_single_samples_per_s"] = _closed_loop_rate("model", 1, 8192)
+    out["closed_loop_c_batch_samples_per_s"] = _closed_loop_rate("c", n, 16384)
+    return out
+
+
+def run(args):
+    if args.firmware:
+        from c_ref.cortexm.build import toolchain_missing
+        reason = toolchain_missing()
+        if reason:
+            from harness.errors import InputError
+            raise InputError(f"--firmware: {reason}")
+        from harness.port import firmware_cost
+        return firmware_cost.main(["--json"] if args.json else [])
+    if args.instances < 1:
+        from harness.errors import InputError
+        raise InputError(f"--instances = {args.instances}: must be at least 1")
+    figures = measure(args.instances)
+    if args.json:
+        print(json.dumps(figures))
+    else:
+        for key, value in figures.items():
+            print(f"{key:32s} {value:14,.0f}")
+    return 0

@@ -1,0 +1,86 @@
+"""``linedrop simulate``: run a scenario in closed loop, print metrics, write a report and waveforms."""
+import csv
+import json
+import os
+
+from harness.atomic import atomic_write
+from harness.loop.backends import BACKENDS
+from harness.loop.cautions import voltage_cautions
+from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, simulate
+from harness.loop.metrics import metrics
+from harness.scenario.read import DEMO, load_scenario
+
+#: Runs with more scenario-samples than this show a progress bar.
+PROGRESS_SAMPLES = 50_000
+
+
+def add_parser(sub):
+    p = sub.add_parser("simulate", help="run a scenario in closed loop (default: the built-in demo)",
+                       description="Simulate supply, cable, load capacitor, load, sensing and faults "
+                                   "in closed loop with the algorithm or a baseline.")
+    p.add_argument("scenario", nargs="?", default=None,
+                   help="scenario TOML file (default: the built-in demo, an invented sensor mast)")
+    p.add_argument("--backend", choices=BACKENDS, default="model",
+                   help="algorithm implementation (default: model)")
+    p.add_argument("--compensation", choices=COMPENSATIONS, default="linedrop",
+                   help="linedrop's algorithm or a baseline (default: linedrop)")
+    p.add_argument("--out", metavar="DIR", help="write a report folder (plots, metrics, baselines)")
+    p.add_argument("--waveform", metavar="FILE.csv", help="write every sample's true plant values")
+    p.add_argument("--json", action="store_true", help="print the metrics as one JSON object")
+    p.set_defaults(func=run)
+
+
+def _write_waveform(path, run):
+    with atomic_write(path, newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["t_s"] + list(CHANNELS))
+        cols = [run.channels[c][:, 0] for c in CHANNELS]
+        for k, t in enumerate(run.t_s):
+            w.writerow([f"{t:.7f}"] + [f"{c[k]:.6g}" for c in cols])
+
+
+def _print_summary(name, m, warn):
+    print(f"scenario: {name}")
+    for key in ("r_cable_ohm", "r_estimate_ohm", "uncompensated_drop_v", "load_error_v",
+                "improvement", "max_load_v", "min_load_v", "ripple_load_v_pp", "settling_s"):
+        v = m[key]
+        print(f"  {key:22s} {'n/a' if v is None else format(v, '.4g')}")
+    print(f"  {'converged':22s} {m['converged']}")
+    for f in m["faults"]:
+        fall = "never" if f["fall_time_s"] is None else f"{f['fall_time_s'] * 1e3:.1f} ms"
+        print(f"  fault {f['kind']} [{f['at_s']}, {f['until_s']}) s: correction "
+              f"{f['correction_before_v']:.3f} V before, {f['correction_at_end_v']:.3f} V at end, "
+              f"fell below 5 % in {fall}")
+    for line in warn:
+        print(line)
+
+
+def run(args):
+    path = args.scenario or DEMO
+    sc = load_scenario(path)
+    samples = sc.run.duration_s * sc.sensing.sample_rate_hz
+    progress = samples > PROGRESS_SAMPLES and not args.json
+    main = simulate([sc], args.backend, args.compensation, progress=progress)
+    m = metrics(main)
+    runs, all_m = {args.compensation: main}, {args.compensation: m}
+    if args.out:
+        for comp in COMPENSATIONS:
+            if comp != args.compensation:
+                runs[comp] = simulate([sc], args.backend, comp, progress=progress)
+                all_m[comp] = metrics(runs[comp])
+        from harness.loop.report import write_report
+        write_report(args.out, runs, all_m)
+    if args.waveform:
+        _write_waveform(args.waveform, main)
+    warn = voltage_cautions(m["max_load_v"], m["max_supply_v"])
+    if args.json:
+        out = dict(m, scenario=path, backend=args.backend, compensation=args.compensation,
+                   cautions=warn)
+        if len(all_m) > 1:
+            out["baselines"] = {k: v for k, v in all_m.items() if k != args.compensation}
+        print(json.dumps(out, indent=2))
+    else:
+        _print_summary(os.path.basename(path), m, warn)
+        if args.out:
+            print(f"report: {os.path.join(args.out, 'report.md')}")
+    return 0

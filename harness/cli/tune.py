@@ -1,0 +1,135 @@
+"""``linedrop tune``: find the cheapest word lengths that still meet a regulation spec.
+
+Runs the fixed-point model and the float ideal in closed loop on the same scenarios (same noise
+seed), searches the knobs greedily (harness.tune.search) and writes ``tune.csv`` (every evaluated
+configuration), ``error_vs_bits.png`` and ``pareto.png`` into ``--out``. Cost is the weighted sum
+of the word lengths: 2 x adc_bits (two converter channels) + dac_bits + table_bits + acc_bits +
+r_frac_bits + corr_frac_bits. The filter shifts (r_filter_shift, smoothing_shift) are swept for
+the plots but weigh nothing: they cost no memory or cycles, and a smaller smoothing shift would
+only trade the correction loop's damping for speed, so they move only where that lowers the error.
+
+A configuration meets the spec when, on every scenario, the fixed-point model's load error
+(target minus the mean load voltage over the last 20 % of the run) is at most ``--max-error-mv``,
+the load settles into the 1 % band within ``--max-settle-ms`` of the last load step or fault end
+(of the start when there is none), that error is at most ``--max-ideal-ratio`` times the
+float ideal's on the same run, the observed accumulators stay inside their static bounds,
+and the small-signal loop model (harness.design.calculator.loop_summary) gives a gain margin of at least
+``--min-gain-margin``. Configurations whose range analysis shows a possible overflow are
+rejected and never simulated. ``--json`` prints one object: recommended (knobs and figures),
+csv, plots, most_sensitive_knob, one_bit_less, sensitivity (severity rise per bit of cost saved,
+in the one-knob sweep), lowest_alone (each knob's lowest passing value in that sweep), start, spec, cost_definition, configurations, rejected,
+evaluated_new, evaluated_cached. Exit status 0 with a recommendation, 1 when none meets the spec.
+"""
+import json
+import math
+import os
+
+from harness.design.calculator import GM_TARGET
+from harness.errors import InputError
+from harness.scenario.read import load_scenario
+from harness.tune.evaluate import KNOBS
+from harness.tune.report import summary, write_outputs
+from harness.tune.runner import Cache, Runner
+from harness.tune.search import Tuner
+
+COST_DEFINITION = ("2*adc_bits + dac_bits + table_bits + acc_bits + r_frac_bits + corr_frac_bits "
+                   "(filter shifts weigh 0)")
+QUICK_DURATION_S = 0.3
+DEFAULT_DURATION_S = 0.8
+CACHE_FILE = "tune-cache.jsonl"
+
+
+def add_parser(sub):
+    p = sub.add_parser("tune", help="search word lengths against a regulation spec (model vs float ideal)",
+                       description="Sweep ADC, table, accumulator, estimate, correction and DAC word "
+                                   "lengths and filter shifts greedily; report the cheapest "
+                                   "configuration meeting the spec.")
+    p.add_argument("scenarios", nargs="+", metavar="SCENARIO.toml", help="scenario files (all must pass)")
+    p.add_argument("--max-error-mv", type=float, default=100.0, help="largest load error, mV (default 100)")
+    p.add_argument("--max-settle-ms", type=float, default=300.0, help="longest settling time, ms (default 300)")
+    p.add_argument("--min-gain-margin", type=float, default=GM_TARGET,
+                   help=f"smallest loop gain margin from the small-signal model (default {GM_TARGET})")
+    p.add_argument("--max-ideal-ratio", type=float, default=2.0,
+                   help="largest load error as a multiple of the float ideal's on the same run "
+                        "(default 2; 0 turns the check off)")
+    p.add_argument("--quick", action="store_true",
+                   help=f"short runs ({QUICK_DURATION_S} s simulated; about a minute in all)")
+    p.add_argument("--duration-s", type=float, help=f"simulated time per run, s (default {DEFAULT_DURATION_S}, "
+                                                    "capped at the scenario's run.duration_s)")
+    p.add_argument("--knobs", help=f"comma-separated knobs to tune (default all: {','.join(KNOBS)})")
+    p.add_argument("--out", metavar="DIR", default="tune-out", help="output folder (default tune-out)")
+    p.add_argument("--cache", metavar="DIR", help="results cache folder (default: the output folder)")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="run on this Dask distributed scheduler")
+    p.add_argument("--workers", type=int, default=2, help="local worker processes (default 2)")
+    p.add_argument("--json", action="store_true", help="print the recommendation as one JSON object")
+    p.set_defaults(func=run)
+
+
+def _positive(name, value):
+    if not (math.isfinite(value) and value > 0):
+        raise InputError(f"--{name}: must be a positive number of {name.rsplit('-', 1)[-1]}, got {value:g}")
+    return value
+
+
+def parse(args):
+    """Checked (scenarios, spec, knobs, duration_s); InputError with one line on bad input."""
+    spec = {"max_error_mv": _positive("max-error-mv", args.max_error_mv),
+            "max_settle_ms": _positive("max-settle-ms", args.max_settle_ms),
+            "min_gain_margin": args.min_gain_margin, "max_ideal_ratio": args.max_ideal_ratio}
+    if not math.isfinite(args.max_ideal_ratio) or args.max_ideal_ratio < 0:
+        raise InputError(f"--max-ideal-ratio: must be a number >= 0, got {args.max_ideal_ratio:g}")
+    if not math.isfinite(args.min_gain_margin) or args.min_gain_margin < 0:
+        raise InputError(f"--min-gain-margin: must be a number >= 0, got {args.min_gain_margin:g}")
+    if args.workers < 1:
+        raise InputError(f"--workers: must be at least 1, got {args.workers}")
+    knobs = list(KNOBS)
+    if args.knobs:
+        knobs = [k.strip() for k in args.knobs.split(",") if k.strip()]
+        unknown = [k for k in knobs if k not in KNOBS]
+        if unknown or not knobs:
+            raise InputError(f"--knobs: unknown {', '.join(unknown) or '(none given)'}; allowed: {', '.join(KNOBS)}")
+    scenarios = [load_scenario(path) for path in args.scenarios]
+    duration = args.duration_s if args.duration_s is not None else (
+        QUICK_DURATION_S if args.quick else DEFAULT_DURATION_S)
+    if not (math.isfinite(duration) and duration > 0):
+        raise InputError(f"--duration-s: must be a positive number of seconds, got {duration:g}")
+    duration = min([duration] + [s.run.duration_s for s in scenarios])
+    return scenarios, spec, knobs, duration
+
+
+def _json_value(v):
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
+
+
+def run(args):
+    scenarios, spec, knobs, duration = parse(args)
+    cache = Cache(os.path.join(args.cache or args.out, CACHE_FILE))
+    runner = Runner(cache, duration, scheduler=args.scheduler, workers=args.workers, progress=not args.json)
+    try:
+        tuner = Tuner(scenarios, runner, spec, knobs, quick=args.quick)
+        result = tuner.run()
+    finally:
+        runner.close()
+    rows = [tuner.rows[c] for c in tuner.order]
+    paths = write_outputs(args.out, result, rows, knobs, tuner.start, spec)
+    counts = {"configs": len(rows), "rejected": sum(r["status"] == "rejected" for r in rows),
+              "new": runner.new, "cached": runner.cached}
+    rec = result["recommended"]
+    if args.json:
+        out = {"recommended": None if rec is None else {k: _json_value(v) for k, v in rec.items()},
+               "csv": paths["csv"], "plots": [paths["knobs_png"], paths["pareto_png"]],
+               "most_sensitive_knob": result["most_sensitive"],
+               "sensitivity": {k: _json_value(v) for k, v in result["sensitivity"].items()},
+               "lowest_alone": result["lowest_alone"],
+               "one_bit_less": {k: {c: _json_value(v) for c, v in r.items()}
+                                for k, r in result["neighbours"].items()},
+               "start": {k: _json_value(v) for k, v in result["start"].items()},
+               "spec": spec, "duration_s": duration, "cost_definition": COST_DEFINITION,
+               "configurations": counts["configs"], "rejected": counts["rejected"],
+               "evaluated_new": counts["new"], "evaluated_cached": counts["cached"]}
+        print(json.dumps(out, indent=1))
+    else:
+        print(summary(result, knobs, spec, paths, counts))
+    return 0 if rec is not None else 1

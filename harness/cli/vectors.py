@@ -1,0 +1,52 @@
+"""``linedrop vectors``: write golden test vectors of a scenario for checking a firmware port."""
+import os
+
+from algo.params import derive
+from harness.port import vectors
+from harness.errors import InputError
+from harness.scenario.read import DEMO, load_scenario
+from harness.port.vector_files import write_set
+
+
+
+def add_parser(sub):
+    p = sub.add_parser("vectors", help="write golden test vectors (CSV, provenance, params header)",
+                       description="Run a scenario and variants of it (load step, each fault, a long "
+                                   "run, extreme ADC codes) through the model and write, per vector, "
+                                   "the ADC codes, the command and every state field per sample.")
+    p.add_argument("scenario", nargs="?", metavar="SCENARIO.toml",
+                   help="scenario file (default: the built-in demo, demo_mast.toml)")
+    p.add_argument("--out", required=True, metavar="DIR", help="output directory (files written atomically)")
+    p.add_argument("--duration-s", type=float, metavar="S",
+                   help="length of each closed-loop run, s (default: the scenario's run.duration_s)")
+    p.add_argument("--long-s", type=float, metavar="S",
+                   help=f"length of the long run, s (default: {vectors.LONG_WINDOWS} windows)")
+    p.add_argument("--seed", type=int, metavar="N",
+                   help="generator seed for ADC noise and random codes (default: the scenario's run.seed)")
+    p.set_defaults(func=run)
+
+
+def _positive(name, value):
+    if value is not None and not 0.0 < value <= 3600.0:
+        raise InputError(f"--{name} = {value:g}: must be in (0, 3600] s")
+
+
+def run(args):
+    path = args.scenario or DEMO
+    _positive("duration-s", args.duration_s)
+    _positive("long-s", args.long_s)
+    if args.seed is not None and not 0 <= args.seed < 2**63:
+        raise InputError(f"--seed = {args.seed}: must be in [0, 2**63)")
+    scenario = load_scenario(path)
+    with open(path, "rb") as f:
+        scenario_bytes = f.read()
+    cfg, seed, vecs = vectors.generate(scenario, args.duration_s, args.long_s, args.seed)
+    params = derive(cfg)
+    stem = os.path.splitext(os.path.basename(path))[0]
+    written = write_set(args.out, stem, os.path.basename(path), scenario_bytes, cfg, params, seed, vecs)
+    total = sum(len(v.adc_v) for v in vecs)
+    for vec in vecs:
+        print(f"{stem}-{vec.name}.csv: {len(vec.adc_v)} samples ({vec.description})")
+    print(f"wrote {len(written)} files to {args.out}: {len(vecs)} vectors, {total} samples, "
+          f"params fingerprint {params.fingerprint()}")
+    return 0

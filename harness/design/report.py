@@ -1,0 +1,142 @@
+"""The design report of a scenario: plant figures, recommended settings, predictions and warnings."""
+import math
+from dataclasses import replace
+
+from harness.scenario.algo_setup import FROM_PLANT, algo_config
+from harness.design import calculator as d
+
+
+#: Extra-low-voltage limit, V DC (SELV, about 60 V DC per the design brief; IEC 61140 class III
+#: from memory). Lighting and Class 2 circuits have lower limits.
+ELV_LIMIT_V = 60.0
+#: Constant-power load: warn when the cable drop exceeds this share of the load voltage (the
+#: loop model's gain margin falls with it; common practice, no published source).
+CP_DROP_SHARE = 0.2
+#: Warn when the perturbation floor's current swing exceeds this share of the lightest load.
+LIGHT_LOAD_SHARE = 0.5
+#: Warn when ESR exceeds this share of the cable resistance.
+ESR_SHARE = 0.2
+#: Supply bandwidth: warn when f is above bandwidth / this.
+BW_WARN = 5.0
+#: R*C corner: warn when f is below this multiple of the corner.
+CORNER_WARN = 3.0
+
+
+def _warnings(sc, cfg, fig):
+    """Plain-language warnings for configuration ``cfg`` on scenario ``sc`` given figures ``fig``."""
+    out = []
+    f, c, r = cfg.perturbation_hz, sc.load_end.capacitance_f, fig["r_cable_range_ohm"][0]
+    xc = 1.0 / (2 * math.pi * f * c)
+    if xc > r / d.AC_SHORT:
+        out.append(f"the load capacitor is not an AC short at {f:.4g} Hz: its reactance {xc:.3g} ohm is "
+                   f"more than a tenth of the cable's {r:.3g} ohm; fit at least "
+                   f"{fig['min_capacitance_f']:.3g} F or raise the perturbation frequency")
+    if f < CORNER_WARN * fig["rc_corner_hz"]:
+        out.append(f"the perturbation frequency {f:.4g} Hz is not well above the R*C corner "
+                   f"{fig['rc_corner_hz']:.4g} Hz: the capacitor charging current swamps the measurement")
+    xl = 2 * math.pi * f * sc.cable.inductance_h
+    if xl > r / d.L_SHORT:
+        out.append(f"the cable's inductive reactance {xl:.3g} ohm at {f:.4g} Hz is more than a third of "
+                   f"its {r:.3g} ohm resistance: the sampled current lags the command and the "
+                   "estimate is biased; lower the perturbation frequency (and fit a larger capacitor "
+                   "so it stays an AC short)")
+    bw = sc.supply.loop_bandwidth_hz
+    if bw > 0 and f > bw / BW_WARN:
+        out.append(f"the perturbation frequency {f:.4g} Hz is too close to the supply's loop bandwidth "
+                   f"{bw:.4g} Hz: keep it below {bw / d.BW_FACTOR:.4g} Hz")
+    if fig["correction_needed_v"] > fig["headroom_v"]:
+        out.append(f"the correction would need up to {fig['correction_needed_v']:.3g} V but the supply has "
+                   f"only {fig['headroom_v']:.3g} V of headroom (max_v - target_v): the load will sag at "
+                   "high current")
+    if sc.supply.max_v > ELV_LIMIT_V:
+        out.append(f"the supply may output up to max_v = {sc.supply.max_v:g} V, above the {ELV_LIMIT_V:g} V DC "
+                   "extra-low-voltage limit: the supply and load voltages could pass it")
+    if sc.load.kind == "constant_power":
+        share = max(x["drop_v"] / max(x["load_v"], 1e-9) for x in fig["loads"])
+        if share > CP_DROP_SHARE:
+            out.append(f"the constant-power load's cable drop is {100 * share:.0f} % of its voltage: its "
+                       "negative incremental resistance erodes the loop margin and it can collapse if "
+                       "the supply sags; use heavier cable or a higher supply voltage")
+    esr = sc.load_end.esr_ohm
+    if esr > ESR_SHARE * r:
+        out.append(f"the capacitor's ESR {esr:.3g} ohm is {100 * esr / r:.0f} % of the cable resistance: "
+                   "the estimate includes it, so set esr_allowance_ohm from the capacitor's data")
+    i_min = min(x["current_a"] for x in fig["loads"])
+    w = 2 * math.pi * f
+    z = abs(r + esr + 1j * w * sc.cable.inductance_h + 1 / (1j * w * c))
+    if cfg.pert_min_v / z > LIGHT_LOAD_SHARE * i_min:
+        out.append(f"the lightest load ({i_min:.3g} A) is below twice the perturbation floor's current "
+                   f"swing ({cfg.pert_min_v / z:.3g} A): the current swings near zero, the current "
+                   "ADC clips it and the estimate reads high; use a finer current ADC or a heavier "
+                   "minimum load")
+    gm = fig["gain_margin"]
+    if fig["spectral_radius"] >= 1.0:
+        out.append("the correction loop is unstable: the correction will ring and hit its limits; "
+                   "lower compensation or raise smoothing_shift")
+    elif gm < d.GM_TARGET:
+        out.append(f"the correction loop has little margin: a loop-gain error of {100 * (gm - 1):.0f} % "
+                   "(sensing gain, ESR) makes it ring; lower compensation or lengthen the window")
+    return out
+
+
+def design_report(sc):
+    """Everything ``linedrop design`` reports for scenario ``sc`` (see harness.cli.design)."""
+    rec, fs = d.recommend(sc)
+    own = bool(sc.algorithm)
+    cfg = algo_config(sc) if own else algo_config(sc, dict(rec, sample_rate_hz=fs))
+    r_min, r_max = d.resistance_range(sc)
+    le = sc.load_end
+    loads = d.uncompensated(sc, algo_config(replace(sc, algorithm={})), r_max)
+    i_max = max(x["current_a"] for x in loads)
+    f = cfg.perturbation_hz
+    loop = d.loop_summary(sc, cfg)
+    fig = {
+        "configuration": "scenario" if own else "recommended",
+        "r_cable_ohm": sc.cable.resistance_ohm,
+        "r_cable_range_ohm": [r_min, r_max],
+        "temperature_range_c": [sc.cable.temperature_c, sc.cable.temperature_end_c
+                                if sc.cable.temperature_end_c is not None else sc.cable.temperature_c],
+        "loads": loads,
+        "uncompensated_drop_v": max(x["drop_v"] for x in loads),
+        "perturbation_hz": f,
+        "period_samples": cfg.period_samples,
+        "periods_per_window": cfg.periods_per_window,
+        "window_s": cfg.window_samples / cfg.sample_rate_hz,
+        "sample_rate_hz": cfg.sample_rate_hz,
+        "recommended_sample_rate_hz": fs,
+        "rc_corner_hz": 1.0 / (2 * math.pi * (r_max + le.esr_ohm) * le.capacitance_f),
+        "capacitor_reactance_ohm": 1.0 / (2 * math.pi * f * le.capacitance_f),
+        "min_capacitance_f": d.AC_SHORT / (2 * math.pi * f * r_min),
+        "compensation": cfg.compensation,
+        "smoothing_shift": cfg.smoothing_shift,
+        "r_max_ohm": cfg.r_max_ohm,
+        "corr_max_v": min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v)),
+        "headroom_v": max(0.0, sc.supply.max_v - sc.supply.target_v),
+        "correction_needed_v": cfg.compensation * max(r_max + le.esr_ohm - cfg.esr_allowance_ohm, 0) * i_max,
+        "pert_min_v": cfg.pert_min_v,
+        "pert_max_v": cfg.pert_max_v,
+        "word_lengths": {"adc_bits": _adc_bits(sc, cfg), "table_bits": cfg.table_bits,
+                         "acc_bits": cfg.acc_bits, "r_frac_bits": cfg.r_frac_bits,
+                         "corr_frac_bits": cfg.corr_frac_bits},
+        "stability_margin": loop["stability_margin"],
+        "spectral_radius": loop["spectral_radius"],
+        "gain_margin": loop["gain_margin"],
+        "convergence_windows": loop["convergence_windows"],
+        "convergence_s": loop["convergence_s"],
+        "dominant_poles": [[float(p.real), float(p.imag)] for p in loop["poles"]
+                           if abs(p) >= 0.5 * loop["spectral_radius"]],
+    }
+    fig.update(d.predict(sc, cfg))
+    fig["warnings"] = _warnings(sc, cfg, fig)
+    fig["algorithm"] = {k: v for k, v in rec.items() if k not in FROM_PLANT}
+    fig["from_plant"] = {k: (fs if k == "sample_rate_hz" else getattr(getattr(sc, s), n))
+                         for k, (s, n) in FROM_PLANT.items()}
+    return fig
+
+
+def _adc_bits(sc, cfg):
+    """ADC bits so the perturbation floor's current swing spans FLOOR_LSB codes (12 .. 16)."""
+    z = sc.cable.resistance_ohm + sc.load_end.esr_ohm
+    swing = max(cfg.pert_min_v, 1e-9) / z
+    need = math.ceil(math.log2(d.FLOOR_LSB * sc.sensing.i_full_scale_a / swing))
+    return min(16, max(12, need))

@@ -1,0 +1,7 @@
+"""The closed loop: plant, ADC, algorithm or baseline and DAC, stepped in one place.
+
+``closed_loop`` (``drive``, the only place the plant is stepped; ``simulate``, batched runs),
+``lockstep`` (several implementations side by side, bit for bit), ``backends`` (model, C,
+ideal behind one interface), ``baselines``, ``replay`` (recorded codes through a backend;
+``model_trace``), ``adc_csv``, ``metrics``, ``report`` (plots, report.md) and ``cautions``.
+"""

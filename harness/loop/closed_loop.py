@@ -1,0 +1,163 @@
+"""The closed loop: plant, ADC, algorithm (or a baseline) and command DAC, B scenarios at once.
+
+:func:`drive` is the only place the plant is stepped; :func:`simulate` (recorded runs),
+:class:`harness.loop.lockstep.LockstepLoop` (implementations side by side) and the word-length
+tuner (:func:`harness.tune.evaluate.evaluate`) are modes of it.
+"""
+from dataclasses import dataclass
+
+import numpy as np
+
+from harness.loop import backends
+from harness.scenario.algo_setup import algo_config
+from harness.loop.baselines import DifferenceEstimator, FixedCompensation, NoCompensation
+from harness.plant.rig import build_rig
+from harness.scenario.conductors import temperature_scale
+
+COMPENSATIONS = ("linedrop", "none", "fixed", "difference")
+CHANNELS = ("v_supply_v", "i_supply_a", "v_load_v", "command_v", "r_estimate_ohm", "correction_v")
+#: Integer channels recorded only on request (exact in float32): the ADC codes the algorithm
+#: took at each sample and the command code it returned for the next one.
+CODE_CHANNELS = ("adc_v_code", "adc_i_code", "command_code")
+
+
+@dataclass
+class Run:
+    """Recorded closed-loop run: ``t_s`` (T,), each channel (T, B) float32, and the inputs."""
+    t_s: np.ndarray
+    channels: dict
+    scenarios: list
+    cfgs: list
+    r_cable_ohm: np.ndarray   # true loop resistance at the end of the run, (B,)
+    backend: str
+    compensation: str
+
+
+def _units(compensator, cfgs, fixed_point):
+    """Per-instance factors turning state r_est into ohm and corr into volts."""
+    r_unit = np.array([c.v_full_scale_v / c.i_full_scale_a for c in cfgs])
+    corr_unit = np.array([c.dac_full_scale_v / (1 << c.dac_bits) for c in cfgs])
+    if fixed_point:
+        r_unit = r_unit / np.array([1 << c.r_frac_bits for c in cfgs])
+        corr_unit = corr_unit / np.array([1 << c.corr_frac_bits for c in cfgs])
+    return r_unit, corr_unit
+
+
+def _r_at_20c(scenario):
+    """Loop resistance the scenario's cable has at 20 degC (what a fixed setting was tuned to)."""
+    c = scenario.cable
+    return c.resistance_ohm * temperature_scale(c.material, c.temperature_c, 20.0)
+
+
+def make_compensator(compensation, backend, cfgs, scenarios):
+    """The algorithm (on ``backend``) or a baseline, for ``len(cfgs)`` instances."""
+    if compensation == "linedrop":
+        return backends.make(backend, cfgs), backend != "ideal"
+    if compensation == "none":
+        return NoCompensation(cfgs), False
+    if compensation == "fixed":
+        return FixedCompensation(cfgs, [_r_at_20c(s) for s in scenarios]), False
+    if compensation == "difference":
+        return DifferenceEstimator(cfgs), False
+    raise ValueError(f"unknown compensation {compensation!r}; choose from {COMPENSATIONS}")
+
+
+def _value(name, obs, command_v, v_code, i_code, cmd):
+    """One recorded channel's values at this sample."""
+    if name == "v_load_v":
+        return obs.v_load_v
+    if name == "v_supply_v":
+        return obs.v_supply_v
+    if name == "i_supply_a":
+        return obs.i_supply_a
+    if name == "command_v":
+        return command_v
+    if name == "adc_v_code":
+        return v_code
+    if name == "adc_i_code":
+        return i_code
+    return cmd  # command_code
+
+
+def drive(rig, step, cmd, n_t):
+    """Run ``rig`` in closed loop for ``n_t`` samples; yields after each sample.
+
+    Each sample the command codes returned by the previous one, clamped to the DAC's codes,
+    set the supply (held for the whole sample), the plant advances one sample, the ADC converts
+    its supply-side voltage and current, and ``step(v_code, i_code)`` returns the next commands.
+
+    Parameters
+    ----------
+    rig : harness.plant.rig.Rig
+        Reset by the caller.
+    step : callable
+        ``step(v_code, i_code) -> cmd``: int arrays (B,) in, command codes (B,) out.
+    cmd : array_like, shape (B,)
+        Command codes in force at the first sample (the algorithm's state after init).
+    n_t : int
+
+    Yields
+    ------
+    (k, command_v, obs, v_code, i_code, cmd)
+        Sample index from 0, the supply command applied (V, a buffer reused every sample),
+        the plant's Observation at the sample's end, the ADC codes and the next commands.
+    """
+    v_per_code = rig.dac.v_per_code
+    code_max = rig.dac.code_max.astype(np.float64)
+    command_v = np.empty(len(rig.scenarios))
+    cmd = np.array(cmd, dtype=np.float64)
+    for k in range(n_t):
+        np.multiply(np.minimum(np.maximum(cmd, 0.0), code_max), v_per_code, out=command_v)
+        obs = rig.plant.step(command_v)
+        v_code, i_code = rig.sample(obs)
+        cmd = step(v_code, i_code)
+        yield k, command_v, obs, v_code, i_code, cmd
+
+
+def simulate(scenarios, backend="model", compensation="linedrop", overrides=None, progress=False,
+             channels=CHANNELS):
+    """Run scenarios (same sample rate, duration and start) in closed loop.
+
+    Parameters
+    ----------
+    scenarios : list of harness.scenario.specs.Scenario
+    backend : {"model", "c", "ideal"}
+    compensation : {"linedrop", "none", "fixed", "difference"}
+    overrides : dict, optional
+        Algorithm settings that replace the scenario's own.
+    progress : bool
+        Show a progress bar.
+    channels : sequence of str
+        Channels to record: any of CHANNELS (all of them by default) and CODE_CHANNELS.
+    """
+    durations = {s.run.duration_s for s in scenarios}
+    if len(durations) != 1:
+        raise ValueError(f"scenarios in one batch must share run.duration_s, got {sorted(durations)}")
+    cfgs = [algo_config(s, overrides) for s in scenarios]
+    rig = build_rig(scenarios)
+    comp, fixed_point = make_compensator(compensation, backend, cfgs, scenarios)
+    r_unit, corr_unit = _units(comp, cfgs, fixed_point)
+    n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
+    rec = {name: np.empty((n_t, len(scenarios)), dtype=np.float32) for name in channels}
+    obs = rig.reset()
+    samples = drive(rig, comp.step, comp.field("cmd"), n_t)
+    if progress:
+        from tqdm import tqdm
+        samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
+                       leave=False, disable=None, mininterval=0.5)
+    plain = [n for n in channels if n not in ("r_estimate_ohm", "correction_v")]
+    rows = {name: rec[name] for name in plain}
+    r_rec = rec.get("r_estimate_ohm")
+    c_rec = rec.get("correction_v")
+    for t, command_v, obs, v_code, i_code, cmd in samples:
+        for name, dst in rows.items():
+            dst[t] = _value(name, obs, command_v, v_code, i_code, cmd)
+        if r_rec is not None:
+            np.multiply(comp.field("r_est"), r_unit, out=r_rec[t], casting="unsafe")
+        if c_rec is not None:
+            np.multiply(comp.field("corr"), corr_unit, out=c_rec[t], casting="unsafe")
+    rig.adc.close()
+    t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
+    return Run(t_s=t_s, channels=rec, scenarios=list(scenarios), cfgs=cfgs,
+               r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend=backend,
+               compensation=compensation)

@@ -1,0 +1,147 @@
+"""Supply-side ADC (voltage and current to unsigned codes) and the command DAC, batched."""
+
+import concurrent.futures
+
+import numpy as np
+
+#: Noise samples drawn per scenario at a time (the noise sequence does not depend on it).
+_NOISE_BLOCK = 4096
+#: Scenarios whose noise blocks are transposed together (keeps the transpose in cache).
+_TRANSPOSE_CHUNK = 64
+
+
+class Adc:
+    """Two-channel ADC of B scenarios: supply voltage and supply current to unsigned codes.
+
+    ``code = round_half_up(x / full_scale * 2**bits * (1 + gain_error) + offset_lsb + noise)``,
+    clipped to [0, 2**bits - 1], where ``noise`` is white Gaussian with ``noise_lsb_rms`` LSB rms
+    drawn from a per-scenario ``numpy.random.Generator``, so a scenario's codes do not depend on
+    which other scenarios share its batch.
+
+    Parameters
+    ----------
+    sensing : sequence of harness.scenario.specs.SensingSpec
+        One per scenario.
+    seeds : sequence of int
+        One seed per scenario.
+    """
+
+    def __init__(self, sensing, seeds):
+        self.specs = list(sensing)
+
+        def arr(fn):
+            return np.array([fn(s) for s in self.specs], dtype=float)
+
+        self.bits = np.array([s.adc_bits for s in self.specs], dtype=np.int64)
+        self.code_max = (1 << self.bits) - 1
+        self.v_lsb_per_v = 2.0**self.bits / arr(lambda s: s.v_full_scale_v)
+        self.i_lsb_per_a = 2.0**self.bits / arr(lambda s: s.i_full_scale_a)
+        self.gain = 1.0 + arr(lambda s: s.gain_error)
+        self.offset = arr(lambda s: s.offset_lsb)
+        self.sigma = arr(lambda s: s.noise_lsb_rms)
+        self._rngs = [np.random.default_rng(seed) for seed in seeds]
+        n = len(self.specs)
+        self._lsb = np.stack([self.v_lsb_per_v, self.i_lsb_per_a])
+        self._code_max = self.code_max.astype(float)
+        self._raw = np.empty((2, n))
+        self._noise = np.zeros((0, 2, n))
+        self._pos = 0
+        self._next = None
+
+    def _block(self):
+        """The next (block, 2, B) array of scaled noise (LSB).
+
+        Each scenario's generator fills a (2, block) array; those are transposed a few
+        scenarios at a time into sample-major order, so a sample's noise is contiguous."""
+        n = len(self._rngs)
+        noise = np.empty((_NOISE_BLOCK, 2, n))
+        scratch = np.empty((min(n, _TRANSPOSE_CHUNK), 2, _NOISE_BLOCK))
+        for b0 in range(0, n, _TRANSPOSE_CHUNK):
+            rngs = self._rngs[b0:b0 + _TRANSPOSE_CHUNK]
+            for j, rng in enumerate(rngs):
+                rng.standard_normal(out=scratch[j])
+            noise[:, :, b0:b0 + len(rngs)] = scratch[:len(rngs)].transpose(2, 1, 0)
+        noise *= self.sigma
+        return noise
+
+    def _draw(self):
+        """Scaled noise (LSB) of both channels for the next sample, (2, B).
+
+        Blocks are drawn one ahead on a worker thread (numpy's generators release the GIL, so
+        this uses the second core); one worker draws them strictly in order, so the noise
+        sequence is the same as drawing them here."""
+        if self._pos >= self._noise.shape[0]:
+            if self._next is None:
+                self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
+                self._noise = self._block()
+            else:
+                self._noise = self._next.result()
+            self._next = self._pool.submit(self._block)
+            self._pos = 0
+        self._pos += 1
+        return self._noise[self._pos - 1]
+
+    def close(self):
+        """Stop the noise worker (drawing nothing more)."""
+        if self._next is not None:
+            self._next.cancel()
+            self._pool.shutdown(wait=True)
+            self._next = None
+
+    def convert(self, v_supply_v, i_supply_a, stuck_v=None, stuck_i=None):
+        """Convert one sample of each scenario.
+
+        Parameters
+        ----------
+        v_supply_v : ndarray, shape (B,)
+            True supply-terminal voltage, V.
+        i_supply_a : ndarray, shape (B,)
+            True supply current, A (negative currents read as code 0).
+        stuck_v, stuck_i : ndarray of int, shape (B,), optional
+            Forced code per scenario (an ``adc_stuck`` fault), -1 where not stuck.
+
+        Returns
+        -------
+        v_code, i_code : ndarray of int64, shape (B,)
+            Codes in [0, 2**adc_bits - 1].
+        """
+        raw = self._raw
+        raw[0], raw[1] = v_supply_v, i_supply_a
+        np.multiply(raw, self._lsb, out=raw)
+        np.multiply(raw, self.gain, out=raw)
+        np.add(raw, self.offset, out=raw)
+        np.add(raw, self._draw(), out=raw)
+        np.add(raw, 0.5, out=raw)
+        np.floor(raw, out=raw)
+        np.maximum(raw, 0.0, out=raw)
+        np.minimum(raw, self._code_max, out=raw)
+        v_code, i_code = raw.astype(np.int64)
+        if stuck_v is not None:
+            v_code = np.where(stuck_v >= 0, stuck_v, v_code)
+        if stuck_i is not None:
+            i_code = np.where(stuck_i >= 0, stuck_i, i_code)
+        return v_code, i_code
+
+
+class Dac:
+    """Command DAC of B scenarios: ``volts = code * dac_full_scale_v / 2**dac_bits``.
+
+    Parameters
+    ----------
+    supplies : sequence of harness.scenario.specs.SupplySpec
+        One per scenario (``dac_bits``, ``dac_full_scale_v``).
+    """
+
+    def __init__(self, supplies):
+        self.bits = np.array([s.dac_bits for s in supplies], dtype=np.int64)
+        self.code_max = (1 << self.bits) - 1
+        self.v_per_code = np.array([s.dac_full_scale_v for s in supplies], dtype=float) / 2.0**self.bits
+
+    def to_volts(self, code):
+        """Output voltage (V) for integer ``code`` (B,), clipped to [0, 2**dac_bits - 1]."""
+        return np.clip(np.asarray(code, dtype=np.int64), 0, self.code_max) * self.v_per_code
+
+    def to_code(self, volts):
+        """Nearest code (int64, (B,)) for ``volts`` (V), clipped to the code range."""
+        raw = np.floor(np.asarray(volts, dtype=float) / self.v_per_code + 0.5)
+        return np.clip(raw, 0, self.code_max).astype(np.int64)

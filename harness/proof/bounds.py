@@ -1,0 +1,169 @@
+"""Every bound the proof suite states, in one place, with what it guarantees and which test proves it.
+
+The numbers are promises about the algorithm run with the settings the design calculator
+recommends (harness.design.calculator.recommend) on any plant the sizing rules admit
+(harness.proof.strategies.plants). harness/proof/PROOFS.md lists them with the tests; a test may only use
+a bound through this module. Units are in the names; "window" is one measurement window of the
+configuration under test.
+"""
+import math
+
+#: Windows from a steady start (supply at target, estimate and correction zero) within which the
+#: estimate and the load voltage settle. Guarantees: after this many windows R_SETTLE_REL and
+#: the load tolerance hold. Proved by tests/test_proof_props.py::test_converges_*.
+SETTLE_WINDOWS = 48
+
+#: A lamp's filament follows the supply with its own thermal time constant; for a lamp load the
+#: settle bound is SETTLE_WINDOWS windows or this many thermal time constants, whichever is longer.
+LAMP_SETTLE_TAUS = 5.0
+
+#: Windows after SETTLE_WINDOWS over which the settled figures are averaged and checked.
+CHECK_WINDOWS = 8
+
+#: Settle tolerance of the estimate: |R_hat - Re Z| <= this share of Re Z (plus R_LSB_SLACK
+#: estimate LSBs and the cable's drift over R_TRACK_WINDOWS), where Re Z = R_cable + ESR + the
+#: load's small share (measured_r_ohm). The correction uses R_hat - esr_allowance, so the same
+#: tolerance holds against R_cable + ESR - allowance. Proved by test_converges_*.
+R_SETTLE_REL = 0.05
+
+#: Estimate LSBs allowed on top of R_SETTLE_REL (quantisation of the Q r_frac estimate).
+R_LSB_SLACK = 2
+
+#: Windows of cable drift the estimate may lag by (the estimate filter's memory).
+R_TRACK_WINDOWS = 16
+
+#: Load tolerance: |mean V_load - expected| <= this share of (R_cable + ESR) * I, where expected
+#: is target - (1 - k) * drop (k: compensation, the share of the drop the design corrects) less
+#: the residual a load-shunted ESR leaves (expected_load_v, measured_r_ohm) and the ADC's gain
+#: and offset errors are added as the correction they bias (load_tolerance_v).
+#: Proved by test_converges_*.
+LOAD_TOL_REL = 0.05
+
+#: DAC LSBs allowed on top of the load tolerance (command quantisation).
+DAC_LSB_SLACK = 2
+
+#: No sustained oscillation: over CHECK_WINDOWS the correction's peak-to-peak stays below this
+#: share of its mean (plus DAC_LSB_SLACK codes). Proved by test_converges_*.
+OSCILLATION_REL = 0.05
+
+#: Windows after a cable-open or capacitor-open fault starts by which the correction is exactly
+#: zero: the configured fault_windows plus this many (the window the fault lands in and one
+#: more). It then stays zero for as long as the fault lasts. Proved by
+#: tests/test_proof_fallback_props.py.
+FAULT_EXTRA_WINDOWS = 2
+
+#: Windows after the load is disconnected by which the correction has decayed to the residue the
+#: current ADC's offset leaves (k * R_hat * offset current) plus DAC_LSB_SLACK codes. Proved by
+#: tests/test_proof_fallback_props.py.
+LOAD_OFF_WINDOWS = 24
+
+#: Overshoot margin: the load never exceeds target (or the settled voltage, where a load-shunted
+#: ESR leaves it above target) + the correction in force before the event +
+#: this share of target (perturbation ripple, at most harness.design.calculator.RIPPLE_FRACTION, and
+#: settling) + the passive LC ring of a load step, |dI| * sqrt(L / C). Proved by
+#: test_proof_fallback_props.py and test_proof_transient_props.py.
+OVERSHOOT_REL = 0.01
+
+#: Windows after a fault clears or a load step within which the loop re-converges (same
+#: tolerances as SETTLE_WINDOWS). Proved by test_proof_fallback_props.py.
+RECOVER_WINDOWS = SETTLE_WINDOWS
+
+#: Transient estimate move: a load step landing anywhere in a window moves the settled estimate
+#: by at most this share of R_cable + ESR (plus R_LSB_SLACK LSBs). Proved by
+#: tests/test_proof_transient_props.py.
+TRANSIENT_R_REL = 0.10
+
+
+def settle_s(scenario, window_s):
+    """Time (s) by which the settle bound applies to ``scenario`` (SETTLE_WINDOWS, LAMP_SETTLE_TAUS)."""
+    t = SETTLE_WINDOWS * window_s
+    if scenario.load.kind == "lamp":
+        t = max(t, LAMP_SETTLE_TAUS * scenario.load.thermal_tau_s)
+    return t
+
+
+def r_lsb_ohm(cfg):
+    """One estimate LSB, ohm, for AlgoConfig ``cfg``."""
+    return cfg.v_full_scale_v / cfg.i_full_scale_a / (1 << cfg.r_frac_bits)
+
+
+def dac_lsb_v(cfg):
+    """One command LSB, V."""
+    return cfg.dac_full_scale_v / (1 << cfg.dac_bits)
+
+
+def r_tolerance_ohm(cfg, r_true_ohm, drift_ohm=0.0):
+    """Allowed |R_hat - r_true| after settling (R_SETTLE_REL), ohm; ``drift_ohm``: cable change to allow for."""
+    return R_SETTLE_REL * r_true_ohm + R_LSB_SLACK * r_lsb_ohm(cfg) + abs(drift_ohm)
+
+
+def measured_r_ohm(scenario, r_ohm, f_hz, g_s):
+    """Real part of V/I the supply sees at ``f_hz`` (what the estimate converges to), ohm.
+
+    Z = R + j w L + (ESR + 1/(j w C)) || (1/G), with G (S) the load's incremental conductance
+    plus leakage. For ESR << 1/G it is R + ESR + the load's small share (DESIGN.md section 2);
+    a large ESR is partly shunted by the load, which is the residual the ESR allowance leaves.
+    """
+    le = scenario.load_end
+    w = 2 * math.pi * f_hz
+    g = g_s + (1.0 / le.leakage_ohm if le.leakage_ohm else 0.0)
+    y = 1.0 / complex(le.esr_ohm, -1.0 / (w * le.capacitance_f)) + g
+    return float((r_ohm + 1j * w * scenario.cable.inductance_h + 1.0 / y).real)
+
+
+def expected_load_v(cfg, r_cable_ohm, r_measured_ohm, i_a):
+    """Settled load voltage, V: target + k (R_measured - allowance) I - R_cable I.
+
+    With R_measured = R_cable + ESR = R_cable + allowance this is target - (1 - k) * drop. The
+    correction is capped only by the supply's headroom max_v - target_v: a corr_max_v below what
+    the headroom allows is a sizing error, not an excuse.
+    """
+    corr = cfg.compensation * max(r_measured_ohm - cfg.esr_allowance_ohm, 0.0) * i_a
+    return cfg.target_v + min(corr, cfg.max_v - cfg.target_v) - r_cable_ohm * i_a
+
+
+def load_tolerance_v(cfg, sensing, r_ohm, i_a):
+    """Allowed |mean V_load - expected_load_v| after settling, V.
+
+    Parameters
+    ----------
+    cfg : AlgoConfig
+    sensing : harness.scenario.specs.SensingSpec
+        Gain error and offset (LSB) of the current channel bias the window-mean current.
+    r_ohm : float
+        Loop resistance the correction compensates (R_cable + ESR - allowance), ohm.
+    i_a : float
+        Load current, A.
+    """
+    return LOAD_TOL_REL * r_ohm * i_a + sensing_bias_v(cfg, sensing, r_ohm, i_a) + DAC_LSB_SLACK * dac_lsb_v(cfg)
+
+
+def sensing_bias_v(cfg, sensing, r_ohm, i_a):
+    """Largest correction error (V) the current ADC's gain error and offset cause at ``i_a`` (A).
+
+    The estimate is a ratio of two channels and does not see them; the window-mean current
+    does, and the correction is k * R * I.
+    """
+    i_lsb = sensing.i_full_scale_a / (1 << sensing.adc_bits)
+    return cfg.compensation * r_ohm * (abs(sensing.gain_error) * i_a + abs(sensing.offset_lsb) * i_lsb)
+
+
+def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, c_f=1.0, settled_v=0.0):
+    """Highest load voltage allowed around an event, V (OVERSHOOT_REL, module docstring).
+
+    The base is target_v, or the settled load voltage ``settled_v`` (expected_load_v) where the
+    residual of a load-shunted ESR puts it above target.
+
+    Parameters
+    ----------
+    cfg : AlgoConfig
+    corr_before_v : float
+        Correction in force before the event (0 for a steady run), V.
+    bias_v : float
+        sensing_bias_v at the operating point, V.
+    d_current_a, l_h, c_f : float
+        Load step (A), loop inductance (H) and load capacitance (F) for the passive LC ring.
+    """
+    ring = abs(d_current_a) * math.sqrt(l_h / c_f) if l_h > 0 else 0.0
+    return (max(cfg.target_v, settled_v) + max(corr_before_v, 0.0) + bias_v + OVERSHOOT_REL * cfg.target_v + ring
+            + DAC_LSB_SLACK * dac_lsb_v(cfg))

@@ -1,0 +1,96 @@
+"""Parsing and checking of a scenario file's [load] table."""
+
+from pathlib import Path
+
+from harness.scenario.profile import read_profile
+from harness.scenario.specs import LOAD_KINDS, LoadSpec
+from harness.scenario.validate import Section, interval, show
+
+#: Main key of each load kind and its allowed range (lo, hi, lo_open).
+MAIN_KEY = {
+    "constant_current": ("current_a", 0.0, 1000.0, False),
+    "resistive": ("resistance_ohm", 0.0, 1e6, True),
+    "constant_power": ("power_w", 0.0, 1e5, False),
+    "lamp": ("rated_w", 0.0, 1e5, True),
+}
+#: Fraction of supply.target_v used as the default load.cutoff_v (constant current / power).
+CUTOFF_FRACTION = 0.25
+DEFAULT_LAMP_TAU_S = 0.05
+
+
+def _steps(sec, lo, hi, lo_open, duration_s):
+    raw = sec.table.get("steps", [])
+    sec.used.add("steps")
+    if not isinstance(raw, list):
+        sec.fail("steps", "must be a list of [time_s, value] pairs", raw)
+    out, prev = [], None
+    for n, pair in enumerate(raw):
+        key = f"steps[{n}]"
+        if not isinstance(pair, list) or len(pair) != 2:
+            sec.fail(key, "must be a [time_s, value] pair", pair)
+        t, v = pair
+        ok_t = (not isinstance(t, bool) and isinstance(t, (int, float)) and 0.0 <= t <= duration_s
+                and (prev is None or t > prev))
+        if not ok_t:
+            after = "[0" if prev is None else f"({prev:g}"
+            sec.fail(f"{key}[0]", f"time must be in {after}, {duration_s:g}] (after the previous step, "
+                     "within run.duration_s)", t)
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not (lo < v <= hi if lo_open else lo <= v <= hi):
+            sec.fail(f"{key}[1]", f"must be in {interval(lo, hi, lo_open)}", v)
+        out.append((float(t), float(v)))
+        prev = t
+    return tuple(out)
+
+
+def parse_load(source, table, target_v, r_loop_ohm, duration_s):
+    """Build the LoadSpec of a ``[load]`` table.
+
+    Parameters
+    ----------
+    source : str or pathlib.Path
+        Scenario file (messages; ``profile_csv`` is relative to its folder).
+    table : dict
+        The parsed table.
+    target_v : float
+        supply.target_v, V (default cut-off and the deliverable-power check).
+    r_loop_ohm : float
+        Cable loop resistance at the start, ohm.
+    duration_s : float
+        run.duration_s, s (step times must lie within it).
+    """
+    sec = Section(str(source), "load", table)
+    kind = sec.choice("kind", LOAD_KINDS)
+    key, lo, hi, lo_open = MAIN_KEY[kind]
+    allowed = {"kind", key, "steps"}
+    profile, profile_csv = (), None
+    if kind == "constant_current" and sec.has("profile_csv"):
+        allowed |= {"profile_csv"}
+        if sec.has(key):
+            sec.fail("profile_csv", f"give either load.{key} or load.profile_csv, not both", table["profile_csv"])
+        if sec.has("steps"):
+            sec.fail("steps", "cannot be combined with load.profile_csv")
+        profile_csv = sec.string("profile_csv")
+        path = Path(source).parent / profile_csv
+        profile = read_profile(path, shown=str(path))
+        value = profile[0][1]
+    else:
+        value = sec.number(key, lo, hi, lo_open=lo_open)
+    steps = () if kind == "lamp" else _steps(sec, lo, hi, lo_open, duration_s)
+    rated_v, tau, cutoff = None, DEFAULT_LAMP_TAU_S, 0.0
+    if kind == "lamp":
+        allowed = (allowed - {"steps"}) | {"rated_v", "thermal_tau_s"}
+        rated_v = sec.number("rated_v", 0.0, 1000.0, lo_open=True)
+        tau = sec.number("thermal_tau_s", 0.0, 100.0, lo_open=True, default=DEFAULT_LAMP_TAU_S)
+    if kind in ("constant_current", "constant_power"):
+        allowed |= {"cutoff_v"}
+        cutoff = sec.number("cutoff_v", 0.0, target_v, lo_open=True, hi_open=True,
+                            default=CUTOFF_FRACTION * target_v)
+    if kind == "constant_power":
+        p_max = target_v**2 / (4.0 * r_loop_ohm)
+        for where, p in [(key, value)] + [(f"steps[{n}][1]", v) for n, (_, v) in enumerate(steps)]:
+            if p >= p_max:
+                sec.fail(where, f"must be below supply.target_v**2 / (4 * loop resistance) = {p_max:.4g} W, "
+                         "the most the cable can deliver", p)
+    sec.finish(allowed, why=f' for load.kind = {show(kind)}')
+    return LoadSpec(kind=kind, value=value, rated_v=rated_v, thermal_tau_s=tau, cutoff_v=cutoff,
+                    steps=steps, profile=profile, profile_csv=profile_csv)

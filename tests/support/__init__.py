@@ -1,0 +1,1 @@
+"""Test helpers: builders, tool probes, the model-and-C pair, proof-suite support."""
