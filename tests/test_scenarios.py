@@ -30,7 +30,7 @@ def test_load_is_held_within_one_percent_of_target_after_settling(results):
     assert abs(m["load_error_v"]) <= 0.01 * sc.supply.target_v
 
 
-def test_linedrop_beats_every_baseline_on_steady_load_error(results):
+def test_linedrop_beats_every_baseline_but_sense_wires_on_steady_load_error(results):
     name, _, out = results
     mine = abs(out["linedrop"]["load_error_v"])
     for comp in ("none", "fixed", "difference"):

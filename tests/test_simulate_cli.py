@@ -41,7 +41,7 @@ def test_json_has_the_documented_keys_and_baselines(scenario, tmp_path, capsys):
     doc = json.loads(capsys.readouterr().out)
     for key in KEYS:
         assert key in doc
-    assert set(doc["baselines"]) == {"none", "fixed", "difference"}
+    assert set(doc["baselines"]) == {"none", "fixed", "difference", "sense"}
     assert doc["r_cable_ohm"] == pytest.approx(1.0)
     assert doc["uncompensated_drop_v"] == pytest.approx(1.5, rel=0.05)
     for name in ("waveforms.png", "comparison.png", "report.md", "metrics.json"):

@@ -1,5 +1,6 @@
 """``linedrop bench``: throughput of the C batch, the Python model and the closed loop, side by side."""
 import json
+import os
 import time
 
 import numpy as np
@@ -16,6 +17,18 @@ def add_parser(sub):
                                    "with machine load; compare ratios, not absolutes.")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--instances", type=int, default=1024, help="batch size (default 1024)")
+    p.add_argument("--regulation", action="store_true",
+                   help="instead, regulation over scenarios with design's own settings: steady "
+                        "improvement, dip and settling after a load step, overshoot and convergence "
+                        "of linedrop and every baseline, side by side (a table; --out adds a plot)")
+    p.add_argument("--scenarios", nargs="+", metavar="FILE.toml",
+                   help="with --regulation: scenario files (default: the shipped scenarios)")
+    p.add_argument("--backend", choices=("model", "c"), default="c",
+                   help="with --regulation: linedrop's implementation (default: c, bit-exact with the model)")
+    p.add_argument("--windows", type=int, default=32,
+                   help="with --regulation: measurement windows from the start to the load step; the run "
+                        "lasts twice that, or the scenario's own duration if longer (default 32)")
+    p.add_argument("--out", metavar="DIR", help="with --regulation: write regulation.json and regulation.png")
     p.add_argument("--firmware", action="store_true",
                    help="instead, the firmware cost on Cortex-M4 and M0+: instructions per "
                         "ld_step (emulated), code, state and stack bytes (needs arm-none-eabi-gcc)")
@@ -76,7 +89,36 @@ def measure(n=1024):
     return out
 
 
+def _regulation(args):
+    import sys
+    from pathlib import Path
+
+    from harness.design import regulation, regulation_report
+    from harness.scenario.read import DEMO, load_scenario
+    from harness.errors import InputError
+    if not 2 <= args.windows <= 1024:
+        raise InputError(f"--windows = {args.windows}: must be in [2, 1024]")
+    if args.out and os.path.exists(args.out) and not os.path.isdir(args.out):
+        raise InputError(f"--out {args.out}: exists and is not a folder")
+    paths = args.scenarios or sorted(str(p) for p in Path(DEMO).parent.glob("*.toml"))
+    scenarios = {Path(p).stem: load_scenario(p) for p in paths}
+    if len(scenarios) < len(paths):
+        raise InputError("--scenarios: two files share a name; give each scenario its own file name")
+    results = regulation.regulation(scenarios, backend=args.backend, windows=args.windows,
+                                    progress=lambda n, c: print(f"  {n}: {c}", file=sys.stderr))
+    written = regulation_report.write(args.out, results) if args.out else []
+    if args.json:
+        print(json.dumps(regulation_report.as_json(results)))
+    else:
+        print(regulation_report.table(results))
+        for path in written:
+            print(f"wrote {path}")
+    return 0
+
+
 def run(args):
+    if args.regulation:
+        return _regulation(args)
     if args.firmware:
         from c_ref.cortexm.build import toolchain_missing
         reason = toolchain_missing()

@@ -4,7 +4,9 @@
 that was right at 20 degC, times the filtered measured current.
 ``difference``: a square-wave perturbation and a single-step difference
 estimate, sampling voltage and current once at the end of each half period
-(R = dV/dI). Each has the interface of algo.batch.BatchModel (step, state)
+(R = dV/dI). ``sense``: remote sense wires, a PI loop on the load voltage
+read by the same voltage ADC (the yardstick: what running wires would give).
+Each has the interface of algo.batch.BatchModel (step, state)
 with ``r_est`` in V-code per I-code and ``corr`` in DAC codes.
 """
 import numpy as np
@@ -89,4 +91,54 @@ class DifferenceEstimator(_Base):
         self.corr = np.where(end_lo, self.corr + (tgt - self.corr) * self.corr_g, self.corr)
         square = np.where(self.phase < half, self.pert_max, -self.pert_max)
         self.cmd = np.clip(self.target + self.corr + square, self.cmd_min, self.cmd_max)
+        return self.cmd
+
+
+#: Remote sense: the closed-loop time constant is at least this many samples (sampling and
+#: ADC noise), and at least SENSE_TAU_BW supply time constants 1/(2*pi*bandwidth). Common
+#: practice for a digital PI loop around a slower analog stage; no source.
+SENSE_TAU_SAMPLES = 20.0
+SENSE_TAU_BW = 3.0
+#: Largest proportional gain of the remote-sense PI, volts of command per volt of error: it
+#: multiplies the voltage ADC's noise into the command (common practice; no source).
+SENSE_GAIN_MAX = 10.0
+
+
+class RemoteSense(_Base):
+    """Sense wires: the voltage ADC reads the load end and a PI loop holds it at target.
+
+    What a user would build if they could run wires: the same supply (bandwidth, limits), the
+    same DAC and the same voltage ADC (bits, full scale, noise), only wired to the load end
+    (the closed loop converts ``v_load_v`` for it). The PI's zero cancels the cable-capacitor
+    pole at 1/(R*C) of the scenario's cable and capacitor; its gain gives a closed-loop time
+    constant of R*C / K, K = min(SENSE_GAIN_MAX, R*C / tau_min) with tau_min from
+    SENSE_TAU_SAMPLES and SENSE_TAU_BW. The integral is clamped to [0, corr_max] (no windup).
+
+    Parameters
+    ----------
+    cfgs : list of AlgoConfig
+    scenarios : list of harness.scenario.specs.Scenario
+    """
+
+    def __init__(self, cfgs, scenarios):
+        super().__init__(cfgs)
+        fs = np.array([c.sample_rate_hz for c in cfgs])
+        rc = np.array([(s.cable.resistance_ohm + s.load_end.esr_ohm) * s.load_end.capacitance_f
+                       for s in scenarios])
+        bw = np.array([s.supply.loop_bandwidth_hz for s in scenarios])
+        tau_min = np.maximum(SENSE_TAU_SAMPLES / fs,
+                             np.where(bw > 0, SENSE_TAU_BW / (2 * np.pi * np.where(bw > 0, bw, 1.0)), 0.0))
+        self.k_p = np.minimum(SENSE_GAIN_MAX, rc / tau_min)
+        self.k_i = self.k_p / (rc * fs)           # per sample: K * Ts / T_i with T_i = R*C
+        v_lsb = np.array([c.v_full_scale_v / (1 << c.adc_bits) for c in cfgs])
+        dac_lsb = np.array([c.dac_full_scale_v / (1 << c.dac_bits) for c in cfgs])
+        self.v_to_dac = v_lsb / dac_lsb
+        self.target_v_code = np.array([c.target_v for c in cfgs]) / v_lsb
+        self.integ = np.zeros(self.n)
+
+    def step(self, adc_v, adc_i):
+        e = (self.target_v_code - np.asarray(adc_v, dtype=float)) * self.v_to_dac   # DAC codes
+        self.integ = np.clip(self.integ + self.k_i * e, 0.0, self.corr_max)
+        self.corr = np.clip(self.k_p * e + self.integ, -self.target, self.corr_max)
+        self.cmd = np.clip(self.target + self.corr, self.cmd_min, self.cmd_max)
         return self.cmd

@@ -10,11 +10,11 @@ import numpy as np
 
 from harness.loop import backends
 from harness.scenario.algo_setup import algo_config
-from harness.loop.baselines import DifferenceEstimator, FixedCompensation, NoCompensation
+from harness.loop.baselines import DifferenceEstimator, FixedCompensation, NoCompensation, RemoteSense
 from harness.plant.rig import build_rig
 from harness.scenario.conductors import temperature_scale
 
-COMPENSATIONS = ("linedrop", "none", "fixed", "difference")
+COMPENSATIONS = ("linedrop", "none", "fixed", "difference", "sense")
 CHANNELS = ("v_supply_v", "i_supply_a", "v_load_v", "command_v", "r_estimate_ohm", "correction_v")
 #: Integer channels recorded only on request (exact in float32): the ADC codes the algorithm
 #: took at each sample and the command code it returned for the next one.
@@ -59,6 +59,8 @@ def make_compensator(compensation, backend, cfgs, scenarios):
         return FixedCompensation(cfgs, [_r_at_20c(s) for s in scenarios]), False
     if compensation == "difference":
         return DifferenceEstimator(cfgs), False
+    if compensation == "sense":
+        return RemoteSense(cfgs, scenarios), False
     raise ValueError(f"unknown compensation {compensation!r}; choose from {COMPENSATIONS}")
 
 
@@ -79,7 +81,7 @@ def _value(name, obs, command_v, v_code, i_code, cmd):
     return cmd  # command_code
 
 
-def drive(rig, step, cmd, n_t):
+def drive(rig, step, cmd, n_t, v_at_load=False):
     """Run ``rig`` in closed loop for ``n_t`` samples; yields after each sample.
 
     Each sample the command codes returned by the previous one, clamped to the DAC's codes,
@@ -95,6 +97,8 @@ def drive(rig, step, cmd, n_t):
     cmd : array_like, shape (B,)
         Command codes in force at the first sample (the algorithm's state after init).
     n_t : int
+    v_at_load : bool
+        The voltage ADC reads the load end (the ``sense`` baseline's wires).
 
     Yields
     ------
@@ -109,7 +113,7 @@ def drive(rig, step, cmd, n_t):
     for k in range(n_t):
         np.multiply(np.minimum(np.maximum(cmd, 0.0), code_max), v_per_code, out=command_v)
         obs = rig.plant.step(command_v)
-        v_code, i_code = rig.sample(obs)
+        v_code, i_code = rig.sample(obs, v_at_load)
         cmd = step(v_code, i_code)
         yield k, command_v, obs, v_code, i_code, cmd
 
@@ -122,7 +126,7 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     ----------
     scenarios : list of harness.scenario.specs.Scenario
     backend : {"model", "c", "ideal"}
-    compensation : {"linedrop", "none", "fixed", "difference"}
+    compensation : {"linedrop", "none", "fixed", "difference", "sense"}
     overrides : dict, optional
         Algorithm settings that replace the scenario's own.
     progress : bool
@@ -140,7 +144,7 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
     rec = {name: np.empty((n_t, len(scenarios)), dtype=np.float32) for name in channels}
     obs = rig.reset()
-    samples = drive(rig, comp.step, comp.field("cmd"), n_t)
+    samples = drive(rig, comp.step, comp.field("cmd"), n_t, v_at_load=compensation == "sense")
     if progress:
         from tqdm import tqdm
         samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,

@@ -26,10 +26,15 @@ class Rig:
             raise ValueError(f"scenarios in one batch must share run.start, got {sorted(starts)}")
         return self.plant.reset_steady() if starts.pop() == "steady" else self.plant.reset_cold()
 
-    def sample(self, obs):
-        """ADC codes (v_code, i_code), int64 arrays (B,), for Observation ``obs``, with stuck-ADC faults."""
+    def sample(self, obs, v_at_load=False):
+        """ADC codes (v_code, i_code), int64 arrays (B,), for Observation ``obs``, with stuck-ADC faults.
+
+        ``v_at_load``: the voltage channel reads the load end (sense wires) instead of the
+        supply terminals; same converter, same noise.
+        """
         stuck_v, stuck_i = self.plant.faults.stuck_codes(obs.t_s)
-        return self.adc.convert(obs.v_supply_v, obs.i_supply_a, stuck_v, stuck_i)
+        v = obs.v_load_v if v_at_load else obs.v_supply_v
+        return self.adc.convert(v, obs.i_supply_a, stuck_v, stuck_i)
 
 
 def build_rig(scenarios):

@@ -17,14 +17,11 @@ from harness.scenario.algo_setup import algo_config
 from harness.loop.closed_loop import simulate
 from harness.loop.replay import model_trace
 from harness.scenario.specs import FAULT_KINDS, FaultSpec
+from harness.scenario.variants import with_load_step
 
 #: Part of the run a derived fault is active, as fractions of the duration: the vector shows
 #: normal operation, the fault, and the recovery after it.
 FAULT_SPAN = (0.4, 0.7)
-#: A derived load step happens at this fraction of the run.
-STEP_AT = 0.5
-#: Factor of a derived load step on the load's current (resistive loads: divided).
-STEP_FACTOR = 1.5
 #: Windows in the long run when no length is given (slow drift: cable warming, estimate creep).
 LONG_WINDOWS = 250
 #: Windows in each segment of the open-loop extreme-code vector.
@@ -50,29 +47,6 @@ class Vector:
     recorded_cmd: Optional[np.ndarray] = None
 
 
-def _without_steps(load):
-    return replace(load, steps=())
-
-
-def _with_step(scenario, duration_s):
-    """The scenario's own load steps, or a derived one when none falls in the run; also says which."""
-    load = scenario.load
-    if any(at < duration_s for at, _ in load.steps):
-        return scenario, "the scenario's own load steps"
-    if load.kind == "lamp":
-        run = replace(scenario.run, start="cold")
-        return replace(scenario, run=run), "lamp switched on cold (inrush)"
-    if load.kind == "resistive":
-        value, how = load.value / STEP_FACTOR, f"load resistance / {STEP_FACTOR:g}"
-    else:
-        value, how = load.value * STEP_FACTOR, f"load {load.kind} x {STEP_FACTOR:g}"
-    if load.kind == "constant_power":
-        p_max = scenario.supply.target_v ** 2 / (4.0 * scenario.cable.resistance_ohm)
-        value = min(value, 0.5 * p_max)
-    step = ((round(STEP_AT * duration_s, 9), value),)
-    return replace(scenario, load=replace(load, steps=step)), f"{how} at {STEP_AT * duration_s:g} s"
-
-
 def _fault(scenario, duration_s, kind, channel=None):
     at, until = (round(f * duration_s, 9) for f in FAULT_SPAN)
     code = None
@@ -91,8 +65,8 @@ def closed_loop_variants(scenario, duration_s):
     per channel).
     """
     base = replace(scenario, run=replace(scenario.run, duration_s=duration_s), faults=())
-    normal = replace(base, load=_without_steps(base.load))
-    stepped, how = _with_step(base, duration_s)
+    normal = replace(base, load=replace(base.load, steps=()))
+    stepped, how = with_load_step(base, duration_s)
     out = [("normal", "steady load, no faults", normal), ("load_step", how, stepped)]
     for kind in FAULT_KINDS:
         for channel in (("i", "v") if kind == "adc_stuck" else (None,)):
