@@ -5,7 +5,7 @@ import os
 import numpy as np
 import pytest
 
-from algo.state import STATE_FIELDS
+from algo.state import STATE_FIELDS, STATUS_NAMES
 from harness.cli.main import main
 
 
@@ -41,7 +41,10 @@ def test_model_and_c_backends_write_identical_files_with_state(adc_file, tmp_pat
         outs[backend] = out.read_bytes()
     assert outs["model"] == outs["c"]
     rows = _read(tmp_path / "model.csv")
-    assert rows[0] == ["cmd"] + STATE_FIELDS
+    assert rows[0] == ["cmd"] + STATE_FIELDS + ["outcome"]
+    status = rows[0].index("status")
+    assert all(r[-1] == STATUS_NAMES[int(r[status])] for r in rows[1:])
+    assert "valid" in {r[-1] for r in rows[1:]}
     assert len(rows) == 12001
 
 

@@ -1,7 +1,7 @@
 """``linedrop replay``: run recorded ADC codes through a backend and write the commands."""
 import csv
 
-from algo.state import STATE_FIELDS
+from algo.state import STATE_FIELDS, STATUS_NAMES
 from harness.loop.adc_csv import read_adc_csv
 from harness.scenario.algo_toml import load_algo_config
 from harness.atomic import atomic_write
@@ -18,7 +18,8 @@ def add_parser(sub):
                    help="input CSV with header adc_v,adc_i (integer codes)")
     p.add_argument("--out", required=True, metavar="CMD.csv", help="output CSV (written atomically)")
     p.add_argument("--config", metavar="ALGO.toml", help="TOML file with an [algorithm] table")
-    p.add_argument("--state", action="store_true", help="also write every state field per sample")
+    p.add_argument("--state", action="store_true",
+                   help="also write every state field per sample, and the last window's outcome by name")
     p.set_defaults(func=run)
 
 
@@ -29,10 +30,11 @@ def run(args):
     fmt = (lambda x: f"{x:.6f}") if args.backend == "ideal" else (lambda x: str(int(x)))
     with atomic_write(args.out, newline="") as f:
         w = csv.writer(f)
-        w.writerow(["cmd"] + (STATE_FIELDS if trace else []))
+        w.writerow(["cmd"] + (STATE_FIELDS + ["outcome"] if trace else []))
         for t, c in enumerate(cmds):
             row = [fmt(c)]
             if trace:
                 row += [fmt(trace[name][t]) for name in STATE_FIELDS]
+                row.append(STATUS_NAMES[int(trace["status"][t])])
             w.writerow(row)
     return 0
