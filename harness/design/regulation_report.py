@@ -64,16 +64,19 @@ def plot(results, path):
         for j, comp in enumerate(comps):
             vals = [results[n][comp][key] for n in names]
             shown = [0.0 if v is None or (isinstance(v, float) and math.isinf(v)) else v for v in vals]
-            ax.bar([i + (j - (len(comps) - 1) / 2) * width for i in range(len(names))], shown, width,
-                   label=comp)
+            xs = [i + (j - (len(comps) - 1) / 2) * width for i in range(len(names))]
+            ax.bar(xs, shown, width, label=comp)
+            for x, v in zip(xs, vals):
+                if v is None or (isinstance(v, float) and math.isinf(v)):
+                    ax.text(x, 0.02, "never" if v is None else "inf", transform=ax.get_xaxis_transform(),
+                            rotation=90, ha="center", va="bottom", fontsize=7)
         ax.set_ylabel(label, fontsize=9)
         ax.set_xticks(range(len(names)), names, fontsize=8)
         if key == "improvement":
             ax.set_yscale("log")
         ax.grid(True, axis="y", alpha=0.3)
     axes[0].legend(ncol=len(comps), fontsize=8)
-    fig.suptitle("Regulation with design's own settings, per scenario and compensation "
-                 "(bars at 0: never, or infinite)")
+    fig.suptitle("Regulation with design's own settings, per scenario and compensation")
     fig.tight_layout()
     with atomic_write(path, "wb") as f:
         fig.savefig(f, format="png", dpi=100)

@@ -112,7 +112,8 @@ class RemoteSense(_Base):
     (the closed loop converts ``v_load_v`` for it). The PI's zero cancels the cable-capacitor
     pole at 1/(R*C) of the scenario's cable and capacitor; its gain gives a closed-loop time
     constant of R*C / K, K = min(SENSE_GAIN_MAX, R*C / tau_min) with tau_min from
-    SENSE_TAU_SAMPLES and SENSE_TAU_BW. The integral is clamped to [0, corr_max] (no windup).
+    SENSE_TAU_SAMPLES and SENSE_TAU_BW. The integral is clamped to [0, corr_max] and holds while the command is
+    pinned at a limit (no windup).
 
     Parameters
     ----------
@@ -138,7 +139,11 @@ class RemoteSense(_Base):
 
     def step(self, adc_v, adc_i):
         e = (self.target_v_code - np.asarray(adc_v, dtype=float)) * self.v_to_dac   # DAC codes
-        self.integ = np.clip(self.integ + self.k_i * e, 0.0, self.corr_max)
+        # Conditional integration: no integrating while the command is pinned at a limit in
+        # the direction the error pushes (the P term alone saturates it at a large error).
+        unsat = self.target + self.k_p * e + self.integ
+        pinned = ((unsat >= self.cmd_max) & (e > 0)) | ((unsat <= self.cmd_min) & (e < 0))
+        self.integ = np.clip(np.where(pinned, self.integ, self.integ + self.k_i * e), 0.0, self.corr_max)
         self.corr = np.clip(self.k_p * e + self.integ, -self.target, self.corr_max)
         self.cmd = np.clip(self.target + self.corr, self.cmd_min, self.cmd_max)
         return self.cmd
