@@ -1,6 +1,5 @@
 """``linedrop bench``: throughput of the C batch, the Python model and the closed loop, side by side."""
 import json
-import os
 import time
 
 import numpy as np
@@ -93,13 +92,14 @@ def _regulation(args):
     import sys
     from pathlib import Path
 
+    from harness.atomic import check_folder_target
     from harness.design import regulation, regulation_report
     from harness.scenario.read import DEMO, load_scenario
     from harness.errors import InputError
     if not 2 <= args.windows <= 1024:
         raise InputError(f"--windows = {args.windows}: must be in [2, 1024]")
-    if args.out and os.path.exists(args.out) and not os.path.isdir(args.out):
-        raise InputError(f"--out {args.out}: exists and is not a folder")
+    if args.out:
+        check_folder_target(args.out, "--out")
     paths = args.scenarios or sorted(str(p) for p in Path(DEMO).parent.glob("*.toml"))
     scenarios = {Path(p).stem: load_scenario(p) for p in paths}
     if len(scenarios) < len(paths):

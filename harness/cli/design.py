@@ -26,7 +26,7 @@ import math
 
 from algo.params import derive
 from harness.scenario.algo_setup import algo_config
-from harness.atomic import atomic_write
+from harness.atomic import atomic_write, check_file_target
 from harness.design.report import design_report
 from harness.port.params_header import params_header
 from harness.scenario.read import load_scenario
@@ -108,6 +108,9 @@ def report_text(rep):
 
 
 def run(args):
+    for option, target in (("--algorithm-out", args.algorithm_out), ("--header", args.header)):
+        if target:
+            check_file_target(target, option)
     sc = load_scenario(args.scenario)
     rep = design_report(sc)
     if args.algorithm_out:

@@ -1,5 +1,6 @@
 """The ``linedrop`` command: a thin dispatcher over the harness's subcommands."""
 import argparse
+import os
 import sys
 
 from algo.config import ConfigError
@@ -9,10 +10,23 @@ from harness.cli import bench, check_port, design, replay, simulate, tune, vecto
 COMMANDS = [simulate, replay, bench, design, tune, vectors, check_port]
 
 
+def _version():
+    """Package and algorithm versions (the algorithm's is the one the C reference checks)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    from algo import VERSION
+    try:
+        pkg = version("linedrop")
+    except PackageNotFoundError:
+        pkg = "not installed"
+    return f"linedrop {pkg} (algorithm {VERSION})"
+
+
 def build_parser():
     parser = argparse.ArgumentParser(
         prog="linedrop",
         description="Sense-wire-free line-drop compensation: model, C reference and harness.")
+    parser.add_argument("--version", action="version", version=_version())
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for mod in COMMANDS:
         mod.add_parser(sub)
@@ -27,6 +41,14 @@ def main(argv=None):
     except (InputError, ConfigError) as exc:
         print(f"linedrop {args.command}: error: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # The reader went away (``linedrop design ... | head``): stop quietly, as Unix tools do.
+        # Point stdout at /dev/null so the interpreter's final flush cannot raise again.
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):
+            pass
+        return 141
     except KeyboardInterrupt:
         print(f"linedrop {args.command}: interrupted; no output was replaced", file=sys.stderr)
         return 130

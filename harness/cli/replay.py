@@ -4,7 +4,7 @@ import csv
 from algo.state import STATE_FIELDS, STATUS_NAMES
 from harness.loop.adc_csv import read_adc_csv
 from harness.scenario.algo_toml import load_algo_config
-from harness.atomic import atomic_write
+from harness.atomic import atomic_write, check_file_target
 from harness.loop.backends import BACKENDS
 from harness.loop.replay import replay
 
@@ -24,6 +24,7 @@ def add_parser(sub):
 
 
 def run(args):
+    check_file_target(args.out, "--out")
     cfg = load_algo_config(args.config)
     adc_v, adc_i = read_adc_csv(args.inp, cfg.adc_bits)
     cmds, trace = replay(args.backend, cfg, adc_v, adc_i, with_state=args.state)

@@ -3,7 +3,7 @@ import csv
 import json
 import os
 
-from harness.atomic import atomic_write
+from harness.atomic import atomic_write, check_file_target, check_folder_target
 from harness.loop.backends import BACKENDS
 from harness.loop.cautions import voltage_cautions
 from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, simulate
@@ -57,6 +57,10 @@ def _print_summary(name, m, warn):
 
 def run(args):
     path = args.scenario or DEMO
+    if args.out:
+        check_folder_target(args.out, "--out")
+    if args.waveform:
+        check_file_target(args.waveform, "--waveform")
     sc = load_scenario(path)
     samples = sc.run.duration_s * sc.sensing.sample_rate_hz
     progress = samples > PROGRESS_SAMPLES and not args.json

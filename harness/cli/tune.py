@@ -24,6 +24,7 @@ import json
 import math
 import os
 
+from harness.atomic import check_folder_target
 from harness.design.calculator import GM_TARGET
 from harness.errors import InputError
 from harness.scenario.read import load_scenario
@@ -105,6 +106,7 @@ def _json_value(v):
 
 def run(args):
     scenarios, spec, knobs, duration = parse(args)
+    check_folder_target(args.out, "--out")
     cache = Cache(os.path.join(args.cache or args.out, CACHE_FILE))
     runner = Runner(cache, duration, scheduler=args.scheduler, workers=args.workers, progress=not args.json)
     try:

@@ -2,6 +2,7 @@
 import os
 
 from algo.params import derive
+from harness.atomic import check_folder_target
 from harness.port import vectors
 from harness.errors import InputError
 from harness.scenario.read import DEMO, load_scenario
@@ -33,6 +34,7 @@ def _positive(name, value):
 
 def run(args):
     path = args.scenario or DEMO
+    check_folder_target(args.out, "--out")
     _positive("duration-s", args.duration_s)
     _positive("long-s", args.long_s)
     if args.seed is not None and not 0 <= args.seed < 2**63:

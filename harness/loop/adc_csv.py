@@ -37,6 +37,9 @@ def read_adc_csv(path, adc_bits):
         for row_no, row in enumerate(reader, start=2):
             if not row or all(not c.strip() for c in row):
                 continue
+            if len(row) != len(header):
+                raise InputError(f"{path}: row {row_no}: {len(row)} fields, the header has "
+                                 f"{len(header)} ({','.join(header)})")
             pair = []
             for col, name in zip(cols, COLUMNS):
                 cell = row[col].strip() if col < len(row) else ""

@@ -10,6 +10,7 @@ import numpy as np
 MATERIALS = {
     "copper": (1.0 / 58.0, 0.00393),
     "aluminium": (0.028264, 0.00403),
+    "aluminum": (0.028264, 0.00403),    # the same metal, US spelling
 }
 
 #: Reference temperature of the resistivity values, degC.

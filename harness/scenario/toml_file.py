@@ -11,5 +11,7 @@ def read_toml(path, what="file"):
             return tomllib.load(f)
     except OSError as exc:
         raise InputError(f"{path}: cannot read {what}: {exc.strerror or exc.__class__.__name__}") from None
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{path}: not UTF-8 text (byte {exc.start}); save it as UTF-8") from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML: {str(exc).splitlines()[0]}") from None
