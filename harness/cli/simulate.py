@@ -4,6 +4,7 @@ import json
 import os
 
 from harness.atomic import atomic_write, check_file_target, check_folder_target
+from harness.design.settings import with_settings
 from harness.loop.backends import BACKENDS
 from harness.loop.cautions import voltage_cautions
 from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, simulate
@@ -12,6 +13,8 @@ from harness.scenario.read import DEMO, load_scenario
 
 #: Runs with more scenario-samples than this show a progress bar.
 PROGRESS_SAMPLES = 50_000
+#: Warn when the steady load error exceeds this share of target.
+WARN_ERROR_SHARE = 0.05
 
 
 def add_parser(sub):
@@ -26,6 +29,9 @@ def add_parser(sub):
                    help="linedrop's algorithm or a baseline (default: linedrop)")
     p.add_argument("--out", metavar="DIR", help="write a report folder (plots, metrics, baselines)")
     p.add_argument("--waveform", metavar="FILE.csv", help="write every sample's true plant values")
+    p.add_argument("--algorithm", metavar="ALGO.toml",
+                   help="[algorithm] settings from this file (as design --algorithm-out writes it); "
+                        "default: the scenario's own table, or design's recommendation without one")
     p.add_argument("--json", action="store_true", help="print the metrics as one JSON object")
     p.set_defaults(func=run)
 
@@ -37,6 +43,16 @@ def _write_waveform(path, run):
         cols = [run.channels[c][:, 0] for c in CHANNELS]
         for k, t in enumerate(run.t_s):
             w.writerow([f"{t:.7f}"] + [f"{c[k]:.6g}" for c in cols])
+
+
+def _warnings(sc, m):
+    """Plain-words warnings about the run itself (the safety cautions come separately)."""
+    out = []
+    err, target = m["load_error_v"], sc.supply.target_v
+    if abs(err) > WARN_ERROR_SHARE * target:
+        out.append(f"warning: the load ends {abs(err):.3g} V {'below' if err > 0 else 'above'} target "
+                   f"({100 * abs(err) / target:.1f} % of {target:g} V): the compensation is not doing its job here")
+    return out
 
 
 def _print_summary(name, m, warn):
@@ -61,7 +77,7 @@ def run(args):
         check_folder_target(args.out, "--out")
     if args.waveform:
         check_file_target(args.waveform, "--waveform")
-    sc = load_scenario(path)
+    sc, settings = with_settings(load_scenario(path), args.algorithm)
     samples = sc.run.duration_s * sc.sensing.sample_rate_hz
     progress = samples > PROGRESS_SAMPLES and not args.json
     main = simulate([sc], args.backend, args.compensation, progress=progress)
@@ -76,15 +92,17 @@ def run(args):
         write_report(args.out, runs, all_m)
     if args.waveform:
         _write_waveform(args.waveform, main)
+    warnings = _warnings(sc, m)
     warn = voltage_cautions(m["max_load_v"], m["max_supply_v"])
     if args.json:
         out = dict(m, scenario=path, backend=args.backend, compensation=args.compensation,
-                   cautions=warn)
+                   settings=settings, warnings=warnings, cautions=warn)
         if len(all_m) > 1:
             out["baselines"] = {k: v for k, v in all_m.items() if k != args.compensation}
         print(json.dumps(out, indent=2))
     else:
-        _print_summary(os.path.basename(path), m, warn)
+        print(settings)
+        _print_summary(os.path.basename(path), m, warnings + warn)
         if args.out:
             print(f"report: {os.path.join(args.out, 'report.md')}")
     return 0

@@ -21,7 +21,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from harness.design.calculator import recommend
+from harness.design.settings import recommended
 from harness.loop.closed_loop import COMPENSATIONS, simulate
 from harness.loop.metrics import SETTLE_BAND, TAIL, settling_s
 from harness.scenario.algo_setup import algo_config
@@ -37,16 +37,15 @@ FIGURES = (("improvement", "x"), ("dip_v", "V"), ("settle_ms", "ms"), ("overshoo
 
 def bench_scenario(scenario, windows=STEP_WINDOWS):
     """The scenario as the benchmark runs it (module docstring), and the recommended settings."""
-    rec, fs = recommend(scenario)
-    sc = replace(scenario, faults=(), algorithm=dict(rec), run=replace(scenario.run, start="steady"),
-                 sensing=replace(scenario.sensing, sample_rate_hz=fs))
+    sc = recommended(scenario)
+    sc = replace(sc, faults=(), run=replace(sc.run, start="steady"))
     cfg = algo_config(sc)
-    step_s = round(windows * cfg.window_samples / fs, 9)
+    step_s = round(windows * cfg.window_samples / cfg.sample_rate_hz, 9)
     sc = replace(sc, run=replace(sc.run, duration_s=max(2 * step_s, scenario.run.duration_s)))
     if scenario.load.steps:
-        return replace(sc, load=replace(sc.load, steps=((step_s, scenario.load.steps[0][1]),))), rec
+        return replace(sc, load=replace(sc.load, steps=((step_s, scenario.load.steps[0][1]),))), sc.algorithm
     sc, _ = with_load_step(replace(sc, load=replace(sc.load, steps=())), sc.run.duration_s)
-    return sc, rec
+    return sc, sc.algorithm
 
 
 def _converge_s(t_s, v_load, target, until_s):

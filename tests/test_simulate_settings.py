@@ -1,0 +1,54 @@
+"""simulate says which [algorithm] settings it ran, takes design's file, and warns on a failed job."""
+import json
+from pathlib import Path
+
+import pytest
+
+from harness.cli.main import main
+from harness.scenario.read import DEMO
+
+
+@pytest.fixture
+def short_demo(tmp_path):
+    path = tmp_path / "demo_short.toml"
+    path.write_text(Path(DEMO).read_text().replace("duration_s = 1.0", "duration_s = 0.3")
+                    .replace("steps = [[0.5, 2.2]]", "steps = [[0.2, 2.2]]"))
+    return path
+
+
+def _json(capsys, argv):
+    assert main(argv) == 0
+    return json.loads(capsys.readouterr().out)
+
+
+def test_without_an_algorithm_table_simulate_says_it_runs_the_defaults(capsys, short_demo):
+    doc = _json(capsys, ["simulate", str(short_demo), "--json"])
+    assert "defaults" in doc["settings"] and "design --algorithm-out" in doc["settings"]
+    assert doc["warnings"] == []                                            # the demo is compensated
+
+
+def test_design_file_runs_through_simulate_and_changes_the_run(capsys, short_demo, tmp_path):
+    algo = tmp_path / "algo.toml"
+    assert main(["design", str(short_demo), "--algorithm-out", str(algo)]) == 0
+    capsys.readouterr()
+    with_file = _json(capsys, ["simulate", str(short_demo), "--algorithm", str(algo), "--json"])
+    defaults = _json(capsys, ["simulate", str(short_demo), "--json"])
+    assert with_file["settings"] == f"settings: {algo}"
+    assert with_file["r_estimate_ohm"] != defaults["r_estimate_ohm"]     # other settings, other run
+
+
+def test_an_algorithm_file_may_not_set_what_the_plant_fixes(capsys, short_demo, tmp_path):
+    algo = tmp_path / "algo.toml"
+    algo.write_text("[algorithm]\ntarget_v = 30.0\n")
+    assert main(["simulate", str(short_demo), "--algorithm", str(algo)]) == 2
+    err = capsys.readouterr().err
+    assert str(algo) in err and "algorithm.target_v" in err and len(err.strip().splitlines()) == 1
+
+
+def test_a_load_left_far_from_target_is_a_warning(capsys, short_demo, tmp_path):
+    # An estimate ceiling below the cable's 3.2 ohm rejects every window: no correction at all.
+    algo = tmp_path / "algo.toml"
+    algo.write_text("[algorithm]\nr_max_ohm = 1.0\n")
+    doc = _json(capsys, ["simulate", str(short_demo), "--algorithm", str(algo), "--json"])
+    assert doc["load_error_v"] > 0.05 * 24.0                               # 7 V uncompensated
+    assert any("below target" in w for w in doc["warnings"])
