@@ -6,7 +6,8 @@ import pytest
 
 from harness.plant.rig import build_rig
 from harness.errors import InputError
-from harness.scenario.read import load_scenario
+from algo.config import SETTINGS
+from harness.scenario.read import load_scenario, parse_scenario
 
 SCENARIOS = Path(__file__).resolve().parents[1] / "harness" / "scenario" / "scenarios"
 
@@ -65,7 +66,7 @@ def test_defaults_are_filled_in(tmp_path):
     ("current_a = 1.0", "current_a = 1.0\npower_w = 5.0", ["load.power_w", "unknown key"]),
     ('kind = "constant_current"', 'kind = "motor"', ["load.kind = \"motor\"", "constant_power"]),
     ("current_a = 1.0", "current_a = 1.0\nsteps = [[0.5, 2.0], [0.2, 1.0]]", ["load.steps[1][0] = 0.2", "(0.5, 1]"]),
-    ("current_a = 1.0", "current_a = 1.0\n[sensing]\nadc_bits = 12.5", ["sensing.adc_bits = 12.5", "[6, 24]"]),
+    ("current_a = 1.0", "current_a = 1.0\n[sensing]\nadc_bits = 12.5", ["sensing.adc_bits = 12.5", "[8, 16]"]),
     ("current_a = 1.0", "current_a = 1.0\n[run]\nstart = \"warm\"", ["run.start = \"warm\"", "\"cold\""]),
     ("current_a = 1.0", "current_a = 1.0\n[[fault]]\nkind = \"cap_open\"\nat_s = 0.5\nuntil_s = 0.2",
      ["fault[0].until_s = 0.2", "> fault[0].at_s = 0.5"]),
@@ -116,3 +117,25 @@ def test_invalid_toml_is_an_input_error(tmp_path):
     path = _write(tmp_path, "[supply\n")
     with pytest.raises(InputError, match="not valid TOML"):
         load_scenario(path)
+
+
+PLANT_TABLES = {"supply": {"target_v": 24.0}, "cable": {"resistance_ohm": 2.0}, "load_end": {"capacitance_f": 1e-3},
+        "load": {"kind": "constant_current", "current_a": 1.0}, "sensing": {}}
+
+
+@pytest.mark.parametrize("section, key", [("supply", "dac_bits"), ("sensing", "adc_bits"),
+                                          ("sensing", "sample_rate_hz")])
+def test_converter_ranges_agree_between_the_keys_doc_the_scenario_reader_and_the_algorithm(section, key):
+    """SCENARIO_KEYS.md, the scenario reader and algo.config.SETTINGS state one range."""
+    s = SETTINGS[key]
+    doc = (Path(__file__).resolve().parents[1] / "harness" / "scenario" / "SCENARIO_KEYS.md").read_text()
+    row = next(line for line in doc.splitlines() if line.startswith(f"| {key} |"))
+    lo, hi = (float(x) for x in row.split("[", 1)[1].split("]", 1)[0].split(","))
+    assert (lo, hi) == (s.lo, s.hi)
+    top = s.kind(s.hi)
+    data = {k: dict(v) for k, v in PLANT_TABLES.items()}
+    data[section][key] = top
+    parse_scenario(data, Path("x.toml"))
+    data[section][key] = s.kind(2 * top)
+    with pytest.raises(InputError, match=rf"x.toml: {section}\.{key} = "):
+        parse_scenario(data, Path("x.toml"))

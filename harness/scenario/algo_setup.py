@@ -25,4 +25,10 @@ def algo_config(scenario, overrides=None):
     try:
         return from_mapping(table)
     except ConfigError as exc:
+        if exc.key in FROM_PLANT and exc.key not in (overrides or {}):
+            # Name the key the user wrote: the plant section's, with the algorithm's range.
+            section, name = FROM_PLANT[exc.key]
+            rule = str(exc).split(": ", 1)[1]
+            rule = " " + rule if rule.startswith("= ") else ": " + rule
+            raise InputError(f"{scenario.source}: {section}.{name}{rule} (the algorithm's range)") from None
         raise InputError(f"{scenario.source}: algorithm.{exc}") from None

@@ -2,6 +2,7 @@
 
 from pathlib import Path
 
+from algo.config import SETTINGS
 from harness.scenario import conductors
 from harness.scenario.toml_file import read_toml
 from harness.errors import InputError
@@ -25,6 +26,12 @@ ADC_I_FS_FACTOR = 1.25
 DEFAULT_I_FS_A = 10.0
 
 
+def _algo_range(key):
+    """The algorithm's range for a converter setting the plant sections fix (one range, one place)."""
+    s = SETTINGS[key]
+    return (int(s.lo), int(s.hi)) if s.kind is int else (s.lo, s.hi)
+
+
 def _supply(src, t):
     s = Section(src, "supply", t)
     target = s.number("target_v", 0.0, 1000.0, lo_open=True)
@@ -36,7 +43,7 @@ def _supply(src, t):
         s.fail("target_v", f"must be in [supply.min_v, supply.max_v] = [{min_v:g}, {max_v:g}]", target)
     bw = s.number("loop_bandwidth_hz", 0.0, 1e6, default=0.0)
     limit = s.number("current_limit_a", 0.0, 1000.0, lo_open=True, default=None)
-    bits = s.integer("dac_bits", 4, 24, default=12)
+    bits = s.integer("dac_bits", *_algo_range("dac_bits"), default=12)
     dac_fs = s.number("dac_full_scale_v", max_v, 2000.0, default=DAC_FS_FACTOR * max_v)
     s.finish()
     return SupplySpec(target_v=target, max_v=max_v, min_v=min_v, loop_bandwidth_hz=bw, current_limit_a=limit,
@@ -81,7 +88,7 @@ def _load_end(src, t):
 
 def _sensing(src, t, supply):
     s = Section(src, "sensing", t)
-    bits = s.integer("adc_bits", 6, 24, default=12)
+    bits = s.integer("adc_bits", *_algo_range("adc_bits"), default=12)
     v_fs = s.number("v_full_scale_v", supply.target_v, 2000.0, lo_open=True,
                     default=ADC_V_FS_FACTOR * supply.max_v)
     i_default = DEFAULT_I_FS_A if supply.current_limit_a is None else ADC_I_FS_FACTOR * supply.current_limit_a
@@ -89,7 +96,7 @@ def _sensing(src, t, supply):
     noise = s.number("noise_lsb_rms", 0.0, 100.0, default=0.5)
     offset = s.number("offset_lsb", -1000.0, 1000.0, default=0.0)
     gain = s.number("gain_error", -0.5, 0.5, default=0.0)
-    rate = s.number("sample_rate_hz", 1000.0, 1e7, default=32000.0)
+    rate = s.number("sample_rate_hz", *_algo_range("sample_rate_hz"), default=32000.0)
     s.finish()
     return SensingSpec(v_full_scale_v=v_fs, i_full_scale_a=i_fs, adc_bits=bits, noise_lsb_rms=noise,
                        offset_lsb=offset, gain_error=gain, sample_rate_hz=rate)
