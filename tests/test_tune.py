@@ -160,9 +160,21 @@ def test_dask_local_cluster_gives_the_same_recommendation_as_local_processes(tmp
     ([DEMO, "--max-ideal-ratio", "nan"], "--max-ideal-ratio"),
     ([DEMO, "--knobs", "adc_bits,gain"], "--knobs"),
     ([DEMO, "--duration-s", "-1"], "--duration-s"),
+    ([DEMO, "--min-gain-margin", "0.5"], "--min-gain-margin"),
+    ([DEMO, "--knobs", ""], "--knobs"),
 ])
 def test_bad_input_exits_2_with_one_line(argv, needle, tmp_path, capsys):
     assert main(["tune", *argv, "--out", str(tmp_path / "o")]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and needle in err and err.startswith("linedrop tune: error:")
     assert not (tmp_path / "o").exists()
+
+
+def test_a_cache_line_torn_by_an_interrupted_run_loses_no_later_record(tmp_path):
+    path = tmp_path / "cache.jsonl"
+    path.write_text('{"key": "a", "v": 1}\n{"key": "b", "v"')     # the run died mid-write
+    cache = Cache(str(path))
+    assert "a" in cache and "b" not in cache
+    cache.put_many([{"key": "c", "v": 3}])
+    again = Cache(str(path))
+    assert again.get("c") == {"key": "c", "v": 3} and again.get("a") == {"key": "a", "v": 1}

@@ -79,12 +79,13 @@ def parse(args):
             "min_gain_margin": args.min_gain_margin, "max_ideal_ratio": args.max_ideal_ratio}
     if not math.isfinite(args.max_ideal_ratio) or args.max_ideal_ratio < 0:
         raise InputError(f"--max-ideal-ratio: must be a number >= 0, got {args.max_ideal_ratio:g}")
-    if not math.isfinite(args.min_gain_margin) or args.min_gain_margin < 0:
-        raise InputError(f"--min-gain-margin: must be a number >= 0, got {args.min_gain_margin:g}")
+    if not math.isfinite(args.min_gain_margin) or args.min_gain_margin < 1:
+        raise InputError(f"--min-gain-margin: must be a number >= 1 (below 1 the small-signal loop is "
+                         f"unstable), got {args.min_gain_margin:g}")
     if args.workers < 1:
         raise InputError(f"--workers: must be at least 1, got {args.workers}")
     knobs = list(KNOBS)
-    if args.knobs:
+    if args.knobs is not None:
         knobs = [k.strip() for k in args.knobs.split(",") if k.strip()]
         unknown = [k for k in knobs if k not in KNOBS]
         if unknown or not knobs:

@@ -43,9 +43,17 @@ class Cache:
 
     def put_many(self, rows):
         os.makedirs(os.path.dirname(os.path.abspath(self.path)), exist_ok=True)
-        with open(self.path, "a", encoding="utf-8") as f:
+        with open(self.path, "a+b") as f:
+            # A line torn by an interrupted run gets its own end, so the next record starts clean.
+            if f.tell() > 0:
+                f.seek(-1, os.SEEK_END)
+                torn = f.read(1) != b"\n"
+            else:
+                torn = False
+            if torn:
+                f.write(b"\n")
             for row in rows:
-                f.write(json.dumps(row) + "\n")
+                f.write((json.dumps(row) + "\n").encode("utf-8"))
             f.flush()
             os.fsync(f.fileno())
         for row in rows:
