@@ -52,3 +52,17 @@ def test_a_load_left_far_from_target_is_a_warning(capsys, short_demo, tmp_path):
     doc = _json(capsys, ["simulate", str(short_demo), "--algorithm", str(algo), "--json"])
     assert doc["load_error_v"] > 0.05 * 24.0                               # 7 V uncompensated
     assert any("below target" in w for w in doc["warnings"])
+    assert doc["window_outcomes"]["valid"] == 0 and doc["window_outcomes"]["r_high"] > 0
+    assert any("windows gave no valid estimate (r_high" in w for w in doc["warnings"])
+
+
+def test_window_outcomes_count_every_window_of_the_run(capsys, short_demo):
+    from harness.scenario.algo_setup import algo_config
+    from harness.scenario.read import load_scenario
+    doc = _json(capsys, ["simulate", str(short_demo), "--json"])
+    cfg = algo_config(load_scenario(short_demo))
+    n_windows = int(0.3 * cfg.sample_rate_hz) // cfg.window_samples
+    assert sum(doc["window_outcomes"].values()) == n_windows
+    assert doc["window_outcomes"]["valid"] >= n_windows - 3    # a steady demo: all but the first few
+    baseline = _json(capsys, ["simulate", str(short_demo), "--compensation", "fixed", "--json"])
+    assert baseline["window_outcomes"] is None

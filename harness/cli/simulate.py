@@ -15,6 +15,8 @@ from harness.scenario.read import DEMO, load_scenario
 PROGRESS_SAMPLES = 50_000
 #: Warn when the steady load error exceeds this share of target.
 WARN_ERROR_SHARE = 0.05
+#: Warn when more than this share of the run's windows gave no valid estimate.
+WARN_REJECTED_SHARE = 0.5
 
 
 def add_parser(sub):
@@ -52,6 +54,12 @@ def _warnings(sc, m):
     if abs(err) > WARN_ERROR_SHARE * target:
         out.append(f"warning: the load ends {abs(err):.3g} V {'below' if err > 0 else 'above'} target "
                    f"({100 * abs(err) / target:.1f} % of {target:g} V): the compensation is not doing its job here")
+    counts = m["window_outcomes"]
+    total = sum(counts.values()) if counts else 0
+    rejected = total - counts.get("valid", 0) if counts else 0
+    if total and rejected > WARN_REJECTED_SHARE * total:
+        parts = ", ".join(f"{n} {c}" for n, c in counts.items() if c and n != "valid")
+        out.append(f"warning: {rejected} of {total} windows gave no valid estimate ({parts})")
     return out
 
 
@@ -62,6 +70,8 @@ def _print_summary(name, m, warn):
         v = m[key]
         print(f"  {key:22s} {'n/a' if v is None else format(v, '.4g')}")
     print(f"  {'converged':22s} {m['converged']}")
+    if m["window_outcomes"]:
+        print(f"  {'window_outcomes':22s} " + ", ".join(f"{n} {c}" for n, c in m["window_outcomes"].items()))
     for f in m["faults"]:
         fall = "never" if f["fall_time_s"] is None else f"{f['fall_time_s'] * 1e3:.1f} ms"
         print(f"  fault {f['kind']} [{f['at_s']}, {f['until_s']}) s: correction "

@@ -19,6 +19,9 @@ CHANNELS = ("v_supply_v", "i_supply_a", "v_load_v", "command_v", "r_estimate_ohm
 #: Integer channels recorded only on request (exact in float32): the ADC codes the algorithm
 #: took at each sample and the command code it returned for the next one.
 CODE_CHANNELS = ("adc_v_code", "adc_i_code", "command_code")
+#: The algorithm's window counter and last window's outcome (algo.state STATUS_*), recorded by
+#: default for linedrop's algorithm (the baselines have no windows): metrics counts outcomes.
+OUTCOME_CHANNELS = ("windows", "status")
 
 
 @dataclass
@@ -119,7 +122,7 @@ def drive(rig, step, cmd, n_t, v_at_load=False):
 
 
 def simulate(scenarios, backend="model", compensation="linedrop", overrides=None, progress=False,
-             channels=CHANNELS):
+             channels=CHANNELS + OUTCOME_CHANNELS):
     """Run scenarios (same sample rate, duration and start) in closed loop.
 
     Parameters
@@ -132,7 +135,8 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     progress : bool
         Show a progress bar.
     channels : sequence of str
-        Channels to record: any of CHANNELS (all of them by default) and CODE_CHANNELS.
+        Channels to record: any of CHANNELS and CODE_CHANNELS, and OUTCOME_CHANNELS (kept
+        only for linedrop's algorithm). By default CHANNELS and OUTCOME_CHANNELS.
     """
     durations = {s.run.duration_s for s in scenarios}
     if len(durations) != 1:
@@ -142,6 +146,8 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     comp, fixed_point = make_compensator(compensation, backend, cfgs, scenarios)
     r_unit, corr_unit = _units(comp, cfgs, fixed_point)
     n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
+    if compensation != "linedrop":
+        channels = [n for n in channels if n not in OUTCOME_CHANNELS]
     rec = {name: np.empty((n_t, len(scenarios)), dtype=np.float32) for name in channels}
     obs = rig.reset()
     samples = drive(rig, comp.step, comp.field("cmd"), n_t, v_at_load=compensation == "sense")
@@ -149,7 +155,8 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
         from tqdm import tqdm
         samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
                        leave=False, disable=None, mininterval=0.5)
-    plain = [n for n in channels if n not in ("r_estimate_ohm", "correction_v")]
+    plain = [n for n in channels if n not in ("r_estimate_ohm", "correction_v") + OUTCOME_CHANNELS]
+    outcome = {name: rec[name] for name in channels if name in OUTCOME_CHANNELS}
     rows = {name: rec[name] for name in plain}
     r_rec = rec.get("r_estimate_ohm")
     c_rec = rec.get("correction_v")
@@ -160,6 +167,8 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
             np.multiply(comp.field("r_est"), r_unit, out=r_rec[t], casting="unsafe")
         if c_rec is not None:
             np.multiply(comp.field("corr"), corr_unit, out=c_rec[t], casting="unsafe")
+        for name, dst in outcome.items():
+            dst[t] = comp.field(name)
     rig.adc.close()
     t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
     return Run(t_s=t_s, channels=rec, scenarios=list(scenarios), cfgs=cfgs,

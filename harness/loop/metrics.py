@@ -3,6 +3,8 @@ import math
 
 import numpy as np
 
+from algo.state import STATUS_NAMES, STATUS_NONE
+
 #: Share of the run at its end over which steady figures are averaged.
 TAIL = 0.2
 #: Settling band around the target, as a fraction of target_v.
@@ -44,6 +46,21 @@ def fault_figures(t_s, corr_v, fault):
             "correction_before_v": pre, "correction_at_end_v": at_end, "fall_time_s": fall_s}
 
 
+def window_outcomes(run, b=0):
+    """Windows finished in the run per outcome name ({name: count}), or None for a baseline.
+
+    A window ends at the sample where the algorithm's window counter moves; the status it
+    leaves there is that window's outcome.
+    """
+    if "windows" not in run.channels:
+        return None
+    w = run.channels["windows"][:, b].astype(np.int64)
+    status = run.channels["status"][:, b].astype(np.int64)
+    ends = np.flatnonzero(np.diff(np.concatenate([[0], w])) != 0)
+    counts = np.bincount(status[ends], minlength=len(STATUS_NAMES))
+    return {STATUS_NAMES[k]: int(counts[k]) for k in sorted(STATUS_NAMES) if k != STATUS_NONE}
+
+
 def metrics(run, b=0):
     """The metrics dict of scenario ``b`` of a harness.loop.closed_loop.Run (JSON-ready)."""
     sc = run.scenarios[b]
@@ -68,4 +85,5 @@ def metrics(run, b=0):
         "settling_s": settle,
         "converged": bool(settle is not None and abs(err) <= SETTLE_BAND * target),
         "faults": [fault_figures(t, ch["correction_v"], f) for f in sc.faults],
+        "window_outcomes": window_outcomes(run, b),
     }

@@ -105,7 +105,11 @@ def write_report(out_dir, runs, all_metrics, b=0):
     text = [f"# linedrop simulation: {os.path.basename(sc.source)}", "",
             f"True loop resistance at the end of the run: {m['r_cable_ohm']:.4f} ohm; "
             f"ESR {sc.load_end.esr_ohm:.4f} ohm; uncompensated drop {m['uncompensated_drop_v']:.3f} V.",
-            "", metrics_table(all_metrics), "", "![waveforms](waveforms.png)", ""]
+            "", metrics_table(all_metrics), ""]
+    if m.get("window_outcomes"):
+        text += ["Windows by outcome (linedrop's algorithm): "
+                 + ", ".join(f"{n} {c}" for n, c in m["window_outcomes"].items()) + ".", ""]
+    text += ["![waveforms](waveforms.png)", ""]
     if len(runs) > 1:
         text += ["![comparison](comparison.png)", ""]
     text += warn + ([""] if warn else []) + ["## Cautions", ""] + [f"- {c}" for c in CAUTIONS]
