@@ -4,6 +4,7 @@
 """
 import contextlib
 import os
+import shutil
 import tempfile
 
 from harness.errors import InputError
@@ -21,9 +22,7 @@ def atomic_write(path, mode="w", **kw):
         with os.fdopen(fd, mode, **kw) as f:
             yield f
         # mkstemp creates 0600; give the file the mode a plain open() would have.
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
+        os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
@@ -45,12 +44,26 @@ def check_file_target(path, option):
     _writable_folder(os.path.dirname(os.path.abspath(path)), option, path)
 
 
-def check_folder_target(path, option):
-    """Before a run: ``path`` is a writable folder or can be created as one."""
+def _refuse_foreign(path, ours, option):
+    if ours is None or not os.path.isdir(path):
+        return
+    other = sorted(set(os.listdir(path)) - set(ours))
+    if other:
+        raise InputError(f"{option} {path}: holds files this command did not write ({', '.join(other[:3])}"
+                         f"{', ...' if len(other) > 3 else ''}); give a new or empty folder")
+
+
+def check_folder_target(path, option, ours=None):
+    """Before a run: ``path`` is a writable folder or can be created as one.
+
+    With ``ours`` (the names a command writes there, the whole folder swapped in by
+    :func:`atomic_folder`), an existing folder holding anything else is refused.
+    """
     if os.path.exists(path):
         if not os.path.isdir(path):
             raise InputError(f"{option} {path}: exists and is not a folder")
         _writable_folder(path, option, path)
+        _refuse_foreign(path, ours, option)
         return
     parent = os.path.dirname(os.path.abspath(path))
     while not os.path.exists(parent):      # makedirs will create the missing levels
@@ -58,3 +71,41 @@ def check_folder_target(path, option):
     if not os.path.isdir(parent):
         raise InputError(f"{option} {path}: {parent} is not a folder")
     _writable_folder(parent, option, path)
+
+
+@contextlib.contextmanager
+def atomic_folder(path, ours, option="--out"):
+    """Fill a new folder beside ``path``; on success swap it in for ``path`` whole.
+
+    ``ours`` names the files the caller writes; an existing ``path`` holding anything else is
+    refused (one-line InputError) rather than replaced. On any exception, Ctrl-C included, the
+    new folder is removed and ``path`` is left exactly as it was. Yields the folder to fill.
+    """
+    _refuse_foreign(path, ours, option)
+    parent = os.path.dirname(os.path.abspath(path))
+    os.makedirs(parent, exist_ok=True)
+    tmp = tempfile.mkdtemp(dir=parent, prefix=".tmp-" + os.path.basename(os.path.abspath(path)) + "-")
+    old = None
+    try:
+        yield tmp
+        os.chmod(tmp, 0o777 & ~_umask())
+        if os.path.isdir(path):
+            old = tempfile.mkdtemp(dir=parent, prefix=".old-")
+            os.rmdir(old)
+            os.rename(path, old)
+        os.rename(tmp, path)
+    except BaseException:
+        if old is not None and not os.path.exists(path):
+            os.rename(old, path)
+            old = None
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    finally:
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+
+
+def _umask():
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask

@@ -85,3 +85,32 @@ def test_python_m_harness_cli_runs_the_command():
     res = subprocess.run([sys.executable, "-m", "harness.cli", "--version"], cwd=ROOT, capture_output=True,
                          text=True, timeout=120)
     assert res.returncode == 0 and res.stdout.startswith("linedrop ") and res.stderr == ""
+
+
+def _short_demo(tmp_path):
+    path = tmp_path / "demo_short.toml"
+    path.write_text(open(DEMO).read().replace("duration_s = 1.0", "duration_s = 0.1")
+                    .replace("steps = [[0.5, 2.2]]", "steps = [[0.05, 2.2]]"))
+    return str(path)
+
+
+def test_a_report_folder_holding_other_files_is_refused_before_the_run(capsys, tmp_path):
+    out = tmp_path / "mine"
+    out.mkdir()
+    (out / "notes.txt").write_text("keep")
+    _fails_with(capsys, ["simulate", _short_demo(tmp_path), "--out", str(out)], "notes.txt", "did not write")
+    assert sorted(os.listdir(out)) == ["notes.txt"]
+
+
+def test_an_interrupted_report_leaves_the_previous_one_exactly_as_it_was(capsys, tmp_path, monkeypatch):
+    demo, out = _short_demo(tmp_path), tmp_path / "report"
+    assert main(["simulate", demo, "--out", str(out)]) == 0
+    before = {p: (out / p).read_bytes() for p in os.listdir(out)}
+    import harness.loop.report as report
+
+    def interrupted(*args, **kw):
+        raise KeyboardInterrupt
+    monkeypatch.setattr(report, "plot_comparison", interrupted)
+    assert main(["simulate", demo, "--out", str(out)]) == 130
+    assert {p: (out / p).read_bytes() for p in os.listdir(out)} == before
+    assert sorted(os.listdir(tmp_path)) == ["demo_short.toml", "report"]      # no temporary folder left

@@ -99,7 +99,7 @@ def _regulation(args):
     if not 2 <= args.windows <= 1024:
         raise InputError(f"--windows = {args.windows}: must be in [2, 1024]")
     if args.out:
-        check_folder_target(args.out, "--out")
+        check_folder_target(args.out, "--out", regulation_report.FILES)
     paths = args.scenarios or sorted(str(p) for p in Path(DEMO).parent.glob("*.toml"))
     scenarios = {Path(p).stem: load_scenario(p) for p in paths}
     if len(scenarios) < len(paths):

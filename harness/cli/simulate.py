@@ -3,7 +3,7 @@ import csv
 import json
 import os
 
-from harness.atomic import atomic_write, check_file_target, check_folder_target
+from harness.atomic import atomic_folder, atomic_write, check_file_target, check_folder_target
 from harness.design.settings import with_settings
 from harness.loop.backends import BACKENDS
 from harness.loop.cautions import voltage_cautions
@@ -84,7 +84,8 @@ def _print_summary(name, m, warn):
 def run(args):
     path = args.scenario or DEMO
     if args.out:
-        check_folder_target(args.out, "--out")
+        from harness.loop.report import REPORT_FILES
+        check_folder_target(args.out, "--out", REPORT_FILES)
     if args.waveform:
         check_file_target(args.waveform, "--waveform")
     sc, settings = with_settings(load_scenario(path), args.algorithm)
@@ -98,8 +99,9 @@ def run(args):
             if comp != args.compensation:
                 runs[comp] = simulate([sc], args.backend, comp, progress=progress)
                 all_m[comp] = metrics(runs[comp])
-        from harness.loop.report import write_report
-        write_report(args.out, runs, all_m)
+        from harness.loop.report import REPORT_FILES, write_report
+        with atomic_folder(args.out, REPORT_FILES) as folder:
+            write_report(folder, runs, all_m)
     if args.waveform:
         _write_waveform(args.waveform, main)
     warnings = _warnings(sc, m)

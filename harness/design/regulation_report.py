@@ -8,7 +8,7 @@ import matplotlib
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 
-from harness.atomic import atomic_write  # noqa: E402
+from harness.atomic import atomic_folder, atomic_write  # noqa: E402
 from harness.design.regulation import FIGURES  # noqa: E402
 
 HEAD = {"improvement": "improvement", "dip_v": "dip V", "settle_ms": "settle ms",
@@ -41,15 +41,22 @@ def as_json(results):
                 for c, fig in per.items()} for n, per in results.items()}
 
 
+#: The files :func:`write` puts in its folder.
+FILES = ("regulation.json", "regulation.png")
+
+
 def write(out_dir, results):
-    """Write ``regulation.json`` and ``regulation.png`` into ``out_dir``; returns their paths."""
-    os.makedirs(out_dir, exist_ok=True)
+    """Write ``regulation.json`` and ``regulation.png`` into ``out_dir`` (swapped in whole)."""
+    with atomic_folder(out_dir, FILES) as folder:
+        _write_files(folder, results)
+    return [os.path.join(out_dir, name) for name in FILES]
+
+
+def _write_files(out_dir, results):
     js = os.path.join(out_dir, "regulation.json")
     with atomic_write(js) as f:
         json.dump(as_json(results), f, indent=2)
-    png = os.path.join(out_dir, "regulation.png")
-    plot(results, png)
-    return [js, png]
+    plot(results, os.path.join(out_dir, "regulation.png"))
 
 
 def plot(results, path):

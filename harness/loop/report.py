@@ -88,6 +88,10 @@ def metrics_table(all_metrics):
     return "\n".join(lines) + "\n"
 
 
+#: Every file write_report puts in its folder.
+REPORT_FILES = ("waveforms.png", "comparison.png", "report.md", "metrics.json")
+
+
 def write_report(out_dir, runs, all_metrics, b=0):
     """Write plots, metrics.md, metrics.json into ``out_dir`` (created if needed).
 
