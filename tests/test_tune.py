@@ -178,3 +178,35 @@ def test_a_cache_line_torn_by_an_interrupted_run_loses_no_later_record(tmp_path)
     cache.put_many([{"key": "c", "v": 3}])
     again = Cache(str(path))
     assert again.get("c") == {"key": "c", "v": 3} and again.get("a") == {"key": "a", "v": 1}
+
+
+class _RuleRunner:
+    """Stands in for the closed loop: a configuration meets the spec iff dac_bits <= 14."""
+
+    def __init__(self):
+        self.new = self.cached = 0
+
+    def run(self, jobs):
+        out = []
+        for job in jobs:
+            s = dict(job.settings)
+            err = 10.0 if job.backend == "ideal" or s["dac_bits"] <= 14 else 500.0
+            out.append({"key": job.key, "status": "ok", "reason": "", "error_mv": err, "ripple_mv": 1.0,
+                        "settle_ms": 50.0, "converge_ms": 20.0, "r_est_ohm": 2.0, "r_true_ohm": 2.0,
+                        "toggle_share": 0.0, "off_target_lsb": 0.0, "limit_cycle": False,
+                        "dac_lsb_mv": 1.0, "acc_peak": 1, "acc_bound": 2, "acc_headroom_bits": 8,
+                        "isum_peak": 1, "within_bounds": True})
+        return out
+
+
+def test_a_failing_start_with_passing_variants_still_gives_a_recommendation(monkeypatch):
+    """tune's summary, rows and recommendation agree: passing rows are never reported as none."""
+    monkeypatch.setattr(Tuner, "_margin", lambda self, settings: 2.0)
+    spec = {"max_error_mv": 100.0, "max_settle_ms": 300.0, "min_gain_margin": 1.25, "max_ideal_ratio": 2.0}
+    tuner = Tuner([load_scenario(DEMO)], _RuleRunner(), spec, knobs=["dac_bits", "table_bits"])
+    result = tuner.run()
+    assert not result["start"]["meets_spec"]
+    assert any(r["meets_spec"] for r in tuner.rows.values())
+    rec = result["recommended"]
+    assert rec is not None and rec["meets_spec"] and rec["dac_bits"] <= 14
+    assert rec["cost"] == min(r["cost"] for r in tuner.rows.values() if r["meets_spec"])

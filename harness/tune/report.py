@@ -125,6 +125,10 @@ def summary(result, knobs, spec, paths, counts):
         why = st["reason"] or f"error {_fmt(st.get('error_mv'), ' mV')}, settling {_fmt(st.get('settle_ms'), ' ms')}"
         lines.append(f"No configuration meets the spec: even the generous start fails ({why}).")
     else:
+        if not st["meets_spec"]:
+            why = st["reason"] or st["fails"]
+            lines.append(f"The generous start fails ({why}); the search went on from the cheapest "
+                         f"sweep variant that meets the spec.")
         lines.append("Recommended (cost " + f"{rec['cost']}): " + ", ".join(f"{k}={rec[k]}" for k in knobs))
         lines.append(f"  load error {_fmt(rec['error_mv'], ' mV')} (float ideal {_fmt(rec['ideal_error_mv'], ' mV')}, "
                      f"x{rec['error_ratio']:.2f}), settling {_fmt(rec['settle_ms'], ' ms')}, ripple "
