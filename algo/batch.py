@@ -101,6 +101,7 @@ class BatchModel:
         s, p = self.s, self.p
         v = np.minimum(np.maximum(np.asarray(adc_v, dtype=np.int64), 0), p.adc_max)
         i = np.minimum(np.maximum(np.asarray(adc_i, dtype=np.int64), 0), p.adc_max)
+        s.clipped[(v == p.adc_max) | (i == p.adc_max) | (i == 0)] = 1
         ph = s.phase
         sn = self._flat.take(self._base + ph)
         cs = self._flat.take(self._base + ((ph + self._quarter) & self._pmask))
@@ -152,9 +153,10 @@ class BatchModel:
         r_raw = np.clip(_div_trunc(num << p.r_frac[k], den), -(1 << 31), (1 << 31) - 1)
         r_raw = np.where(low, 0, r_raw)
         status = np.select(
-            [low, s.transient[k] != 0, r_raw > p.r_max_q[k],
+            [low, s.clipped[k] != 0, s.transient[k] != 0, r_raw > p.r_max_q[k], r_raw < 0,
              np.abs(xnum) << p.r_frac[k] > p.x_max_q[k] * den],
-            [st.STATUS_LOW_SWING, st.STATUS_TRANSIENT, st.STATUS_R_HIGH, st.STATUS_REACTIVE],
+            [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_TRANSIENT, st.STATUS_R_HIGH,
+             st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
         return status, r_raw
 
@@ -172,7 +174,8 @@ class BatchModel:
         d = _step_toward(r_est, np.maximum(r_raw, 0), p.r_shift[k]) - r_est
         d = np.clip(d, -p.r_step_max_q[k], p.r_step_max_q[k])
         r_est = np.where(valid, np.clip(r_est + d, 0, p.r_max_q[k]), r_est)
-        bad = np.where(valid, 0, np.where(status == st.STATUS_TRANSIENT, s.bad_windows[k],
+        held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
+        bad = np.where(valid, 0, np.where(held, s.bad_windows[k],
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]
         r_est = np.where(forced, 0, r_est)
@@ -180,10 +183,10 @@ class BatchModel:
         drop_comp = self._drop_vq(np.maximum(r_est - p.esr_q[k], 0), k)
         tgt = _rsr(drop_comp * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k])
         tgt = np.clip(tgt, 0, p.corr_max_q[k])
-        holds = valid | (status == st.STATUS_TRANSIENT)
-        s.corr_target[k] = np.where(holds, tgt, 0)
+        s.corr_target[k] = np.where(valid | held, tgt, 0)
         amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC),
                          s.pert_amp[k] >> 1)
+        amp = np.where(status == st.STATUS_CLIPPED, s.pert_amp[k] >> 1, amp)
         amp = np.where(status == st.STATUS_LOW_SWING, s.pert_amp[k] << 1, amp)
         s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
         s.corr[k] = np.where(forced, 0, _step_toward(s.corr[k], s.corr_target[k], p.corr_shift[k]))
@@ -192,7 +195,8 @@ class BatchModel:
         s.bad_windows[k] = bad
         s.status[k] = status
         s.windows[k] = (s.windows[k] + 1) & 0xFFFFFFFF
-        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient"):
+        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient",
+                     "clipped"):
             getattr(s, name)[k] = 0
 
     def field(self, name):

@@ -13,6 +13,10 @@ from algo import state as st
 def classify(p, s):
     """Return ``(status, r_raw)`` for the finished window.
 
+    Order: too little current swing first (a cable open with the current near
+    code 0 stays a fault), then a code at a rail, a load step, and the
+    real-part and quadrature limits.
+
     Scaling and overflow: the current pair is shifted right by ``sh`` so its
     larger magnitude has at most NORM_BITS+1 bits; the voltage pair (int32)
     takes the same shift, so ``num`` and ``xnum`` are below 2**46 and
@@ -29,10 +33,14 @@ def classify(p, s):
     num = vi * ii + vq * iq
     xnum = vq * ii - vi * iq
     r_raw = sat_s32(div_trunc(num << p.r_frac, den))
+    if s.clipped:
+        return st.STATUS_CLIPPED, r_raw
     if s.transient:
         return st.STATUS_TRANSIENT, r_raw
     if r_raw > p.r_max_q:
         return st.STATUS_R_HIGH, r_raw
+    if r_raw < 0:
+        return st.STATUS_R_LOW, r_raw
     if abs(xnum) << p.r_frac > p.x_max_q * den:
         return st.STATUS_REACTIVE, r_raw
     return st.STATUS_VALID, r_raw
@@ -52,14 +60,18 @@ def next_pert_amp(p, s, status, drop_total):
     """Perturbation amplitude for the next window (DAC codes, before the clamp).
 
     A window without enough current swing doubles the amplitude, so a cable
-    longer than the floor was sized for still starts; otherwise the amplitude
+    longer than the floor was sized for still starts; a window with a code at
+    a rail halves it, so the swing backs off the rail; otherwise the amplitude
     is pert_fraction of the estimated drop, falling at most by half a window.
 
-    Scaling and overflow: pert_amp <= 32767, so doubling fits int32; drop
+    Scaling and overflow: pert_amp <= 32767, so doubling fits int32 and
+    halving is a shift of a non-negative value; drop
     (Q DROP_FRAC, int32) times pert_gain_q (Q GAIN_FRAC, int32) is below 2**62.
     """
     if status == st.STATUS_LOW_SWING:
         return s.pert_amp << 1
+    if status == st.STATUS_CLIPPED:
+        return s.pert_amp >> 1
     return max(rshift_round(drop_total * p.pert_gain_q, GAIN_FRAC + DROP_FRAC), s.pert_amp >> 1)
 
 
@@ -76,7 +88,7 @@ def window_end(p, s):
     """Finish a window: classify, update estimate and correction, clear the sums.
 
     Scaling and overflow: estimate arithmetic stays in [-2**31, 2**31) as
-    r_raw and r_est are both in [0, r_max_q]; drop (Q DROP_FRAC, int32) times
+    a valid window's r_raw and r_est are both in [0, r_max_q]; drop (Q DROP_FRAC, int32) times
     a gain (Q GAIN_FRAC, int32) is below 2**62 before its shift.
     """
     status, s.r_raw = classify(p, s)
@@ -85,15 +97,16 @@ def window_end(p, s):
         d = step_toward(s.r_est, target, p.r_shift) - s.r_est
         s.r_est = sat(s.r_est + sat(d, -p.r_step_max_q, p.r_step_max_q), 0, p.r_max_q)
         s.bad_windows = 0
-    elif status != st.STATUS_TRANSIENT:
-        # A load step only holds the estimate; counting it as a fault window would let a step
-        # spread over several windows by the load capacitor force the correction to zero.
+    elif status not in (st.STATUS_TRANSIENT, st.STATUS_CLIPPED):
+        # A load step or a code at a rail only holds the estimate; counting it as a fault window
+        # would let a step spread over several windows by the load capacitor force the
+        # correction to zero.
         s.bad_windows = min(s.bad_windows + 1, 0xFFFF)
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0
     drop_total = drop_vq(s.r_est, s.isum, p)
     drop_comp = drop_vq(max(s.r_est - p.esr_q, 0), s.isum, p)
-    if status in (st.STATUS_VALID, st.STATUS_TRANSIENT):
+    if status in (st.STATUS_VALID, st.STATUS_TRANSIENT, st.STATUS_CLIPPED):
         s.corr_target = sat(rshift_round(drop_comp * p.corr_gain_q,
                                          GAIN_FRAC + DROP_FRAC - p.corr_frac), 0, p.corr_max_q)
     else:
@@ -110,3 +123,4 @@ def window_end(p, s):
     s.isum = 0
     s.count = 0
     s.transient = 0
+    s.clipped = 0

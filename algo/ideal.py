@@ -95,6 +95,7 @@ class IdealBatch:
         """One sample for every instance; returns the (unrounded) command in DAC codes."""
         v = np.clip(np.asarray(adc_v, dtype=np.float64), 0, self.adc_max)
         i = np.clip(np.asarray(adc_i, dtype=np.float64), 0, self.adc_max)
+        self.clipped[(v == self.adc_max) | (i == self.adc_max) | (i == 0)] = 1
         ph = self.phase.astype(np.int64)
         sn = self.sin[self._idx, ph]
         cs = self.sin[self._idx, (ph + self.period // 4) % self.period]
@@ -134,23 +135,27 @@ class IdealBatch:
         r_raw = np.where(low, 0.0, (vi * ii + vq * iq) / den)
         x_raw = (vq * ii - vi * iq) / den
         status = np.select(
-            [low, self.transient[k] != 0, r_raw > self.r_max[k], np.abs(x_raw) > self.x_max[k]],
-            [st.STATUS_LOW_SWING, st.STATUS_TRANSIENT, st.STATUS_R_HIGH, st.STATUS_REACTIVE],
+            [low, self.clipped[k] != 0, self.transient[k] != 0, r_raw > self.r_max[k],
+             r_raw < 0, np.abs(x_raw) > self.x_max[k]],
+            [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_TRANSIENT, st.STATUS_R_HIGH,
+             st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
         valid = status == st.STATUS_VALID
         r_est = self.r_est[k]
         d = np.clip((np.maximum(r_raw, 0) - r_est) * self.r_g[k], -self.r_step_max[k],
                     self.r_step_max[k])
         r_est = np.where(valid, np.clip(r_est + d, 0, self.r_max[k]), r_est)
-        bad = np.where(valid, 0, np.where(status == st.STATUS_TRANSIENT, self.bad_windows[k],
+        held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
+        bad = np.where(valid, 0, np.where(held, self.bad_windows[k],
                                           np.minimum(self.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= self.fault_windows[k]
         r_est = np.where(forced, 0.0, r_est)
         i_mean = self.isum[k] / self.window[k]
         tgt = np.clip(np.maximum(r_est - self.esr[k], 0) * i_mean * self.corr_gain[k], 0,
                       self.corr_max[k])
-        self.corr_target[k] = np.where(valid | (status == st.STATUS_TRANSIENT), tgt, 0.0)
+        self.corr_target[k] = np.where(valid | held, tgt, 0.0)
         amp = np.maximum(r_est * i_mean * self.pert_gain[k], self.pert_amp[k] / 2)
+        amp = np.where(status == st.STATUS_CLIPPED, self.pert_amp[k] / 2, amp)
         amp = np.where(status == st.STATUS_LOW_SWING, self.pert_amp[k] * 2, amp)
         self.pert_amp[k] = np.clip(amp, self.pert_min[k], self.pert_max[k])
         corr = self.corr[k]
@@ -161,7 +166,8 @@ class IdealBatch:
         self.bad_windows[k] = bad
         self.status[k] = status
         self.windows[k] += 1
-        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient"):
+        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient",
+                     "clipped"):
             getattr(self, name)[k] = 0.0
 
     def field(self, name):

@@ -20,7 +20,7 @@ STATE_TYPES = {
     "psum_prev": S32, "r_est": S32, "r_raw": S32, "corr": S32, "corr_target": S32,
     "pert_amp": S32, "cmd_base": S32, "windows": (0, (1 << 32) - 1), "phase": (0, 0xFFFF), "count": (0, 0xFFFF),
     "bad_windows": (0, 0xFFFF), "cmd": (0, 0xFFFF), "have_prev": (0, 0xFF),
-    "transient": (0, 0xFF), "status": (0, 0xFF),
+    "transient": (0, 0xFF), "status": (0, 0xFF), "clipped": (0, 0xFF),
 }
 
 
@@ -70,7 +70,7 @@ def state_bounds(p: Params):
         "phase": (0, per - 1), "count": (0, win - 1),
         "bad_windows": (0, 0xFFFF),
         "cmd": (p.cmd_min, p.cmd_max),
-        "have_prev": (0, 1), "transient": (0, 1), "status": (0, 5),
+        "have_prev": (0, 1), "transient": (0, 1), "status": (0, 7), "clipped": (0, 1),
         "cmd_base": (p.target_code, p.target_code + rshift_round(p.corr_max_q, p.corr_frac)),
     }
     return {name: bounds[name] for name in STATE_FIELDS}

@@ -8,9 +8,11 @@ STATUS_LOW_SWING = 2   # current swing too small: cable open or capacitor missin
 STATUS_TRANSIENT = 3   # load step inside the window: estimate discarded, correction held
 STATUS_R_HIGH = 4      # real part above r_max: capacitor missing or no cable fits
 STATUS_REACTIVE = 5    # quadrature part above x_max: capacitor too small or missing
+STATUS_CLIPPED = 6     # a code at adc_max (either channel) or current at 0: estimate discarded, held
+STATUS_R_LOW = 7       # real part negative: no passive cable and capacitor fits
 STATUS_NAMES = {STATUS_NONE: "none", STATUS_VALID: "valid", STATUS_LOW_SWING: "low_swing",
                 STATUS_TRANSIENT: "transient", STATUS_R_HIGH: "r_high",
-                STATUS_REACTIVE: "reactive"}
+                STATUS_REACTIVE: "reactive", STATUS_CLIPPED: "clipped", STATUS_R_LOW: "r_low"}
 
 
 @dataclass
@@ -37,6 +39,7 @@ class State:
     have_prev: int = 0    # uint8: psum_prev holds a whole period
     transient: int = 0    # uint8: a load step was seen in this window
     status: int = 0       # uint8: outcome of the last window (STATUS_*)
+    clipped: int = 0      # uint8: a code sat at a rail in this window (v or i at adc_max, i at 0)
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

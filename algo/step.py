@@ -65,10 +65,12 @@ def step(p, s, adc_v, adc_i):
     table entry is below 2**15 in magnitude, so each product fits int32; the
     demodulation shift was chosen offline (algo.params.demod_shift_for) so a
     window of shifted products fits acc_bits <= 32. isum is below
-    2**14 * 2**16 = 2**30.
+    2**14 * 2**16 = 2**30. The rail test compares clamped codes only.
     """
     v = sat(adc_v, 0, p.adc_max)
     i = sat(adc_i, 0, p.adc_max)
+    if v == p.adc_max or i == p.adc_max or i == 0:
+        s.clipped = 1
     n = p.period - 1
     sn = p.ref_tab[s.phase]
     cs = p.ref_tab[(s.phase + (p.period >> 2)) & n]

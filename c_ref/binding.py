@@ -19,7 +19,7 @@ if lib.ld_version() != (_major << 16) | (_minor << 8) | _patch:
     raise ImportError(f"C reference version {lib.ld_version():#x} does not match algo {VERSION}")
 if lib.LD_TAB_MAX != TAB_MAX:
     raise ImportError("LD_TAB_MAX differs between c_ref and algo")
-if [f[0] for f in ffi.typeof("ld_state_t").fields] != STATE_FIELDS + ["reserved"]:
+if [f[0] for f in ffi.typeof("ld_state_t").fields] != STATE_FIELDS:
     raise ImportError("ld_state_t fields differ from algo.state.State")
 if [f[0] for f in ffi.typeof("ld_params_t").fields] != PARAM_FIELDS:
     raise ImportError("ld_params_t fields differ from algo.params.Params")

@@ -15,6 +15,9 @@
  * the same shift, so num and xnum are below 2**46 and den below 2**30.
  * num << r_frac (r_frac <= 16) stays below 2**62, x_max_q * den below 2**61.
  * den > 0 because the larger current magnitude is at least swing_min >= 1.
+ * Order: too little current swing first (a cable open with the current near
+ * code 0 stays a fault), then a code at a rail, a load step, and the
+ * real-part and quadrature limits.
  */
 static uint8_t ld_classify(const ld_params_t *p, const ld_state_t *s, int32_t *r_raw)
 {
@@ -39,11 +42,17 @@ static uint8_t ld_classify(const ld_params_t *p, const ld_state_t *s, int32_t *r
     num = (int64_t)vi * ii + (int64_t)vq * iq;
     xnum = (int64_t)vq * ii - (int64_t)vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
+    if (s->clipped != 0u) {
+        return LD_STATUS_CLIPPED;
+    }
     if (s->transient != 0u) {
         return LD_STATUS_TRANSIENT;
     }
     if (*r_raw > p->r_max_q) {
         return LD_STATUS_R_HIGH;
+    }
+    if (*r_raw < 0) {
+        return LD_STATUS_R_LOW;
     }
     axnum = xnum < 0 ? -xnum : xnum;
     if (axnum * ((int64_t)1 << p->r_frac) > (int64_t)p->x_max_q * den) {
@@ -67,9 +76,11 @@ static int32_t ld_drop_vq(int32_t r_q, int32_t isum, const ld_params_t *p)
 /*
  * Perturbation amplitude for the next window (DAC codes, before the clamp).
  * A window without enough current swing doubles it, so a cable longer than
- * the floor was sized for still starts; otherwise it is pert_fraction of the
+ * the floor was sized for still starts; a window with a code at a rail halves
+ * it, so the swing backs off the rail; otherwise it is pert_fraction of the
  * estimated drop, falling at most by half a window.
- * Scaling and overflow: pert_amp <= 32767, so doubling fits int32; a drop
+ * Scaling and overflow: pert_amp <= 32767, so doubling fits int32 and halving
+ * is a shift of a non-negative value; a drop
  * (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is below
  * 2**62 before its shift.
  */
@@ -79,6 +90,9 @@ static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8
     int64_t a, half;
     if (status == LD_STATUS_LOW_SWING) {
         return (int64_t)s->pert_amp * 2;
+    }
+    if (status == LD_STATUS_CLIPPED) {
+        return (int64_t)(s->pert_amp >> 1);
     }
     a = ld_rshift_round64((int64_t)drop_total * p->pert_gain_q, LD_GAIN_FRAC + LD_DROP_FRAC);
     half = s->pert_amp >> 1;
@@ -97,8 +111,8 @@ int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
 }
 
 /*
- * Scaling and overflow: estimate arithmetic stays in int32 because r_raw is
- * clamped to [0, r_max_q] before it moves r_est in [0, r_max_q]; a drop
+ * Scaling and overflow: estimate arithmetic stays in int32 because a valid
+ * window's r_raw is clamped to [0, r_max_q] before it moves r_est in [0, r_max_q]; a drop
  * (Q LD_DROP_FRAC, int32) times a gain (Q LD_GAIN_FRAC, int32) is below 2**62
  * before its shift; results are clamped to int32 ranges given in params.
  */
@@ -115,9 +129,11 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
         d = ld_sat(d, -p->r_step_max_q, p->r_step_max_q);
         s->r_est = ld_sat(s->r_est + d, 0, p->r_max_q);
         s->bad_windows = 0u;
-    } else if (status != LD_STATUS_TRANSIENT && s->bad_windows < UINT16_MAX) {
-        /* A load step only holds the estimate; counting it as a fault window would let a
-         * step spread over several windows by the load capacitor force the correction off. */
+    } else if (status != LD_STATUS_TRANSIENT && status != LD_STATUS_CLIPPED &&
+               s->bad_windows < UINT16_MAX) {
+        /* A load step or a code at a rail only holds the estimate; counting it as a fault
+         * window would let a step spread over several windows by the load capacitor force
+         * the correction off. */
         s->bad_windows++;
     }
     if (s->bad_windows >= p->fault_windows) {
@@ -126,7 +142,8 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
     drop_total = ld_drop_vq(s->r_est, s->isum, p);
     r_comp = s->r_est > p->esr_q ? s->r_est - p->esr_q : 0;
     drop_comp = ld_drop_vq(r_comp, s->isum, p);
-    if (status == LD_STATUS_VALID || status == LD_STATUS_TRANSIENT) {
+    if (status == LD_STATUS_VALID || status == LD_STATUS_TRANSIENT ||
+        status == LD_STATUS_CLIPPED) {
         unsigned sh = LD_GAIN_FRAC + LD_DROP_FRAC - (unsigned)p->corr_frac;
         int64_t t = ld_rshift_round64((int64_t)drop_comp * p->corr_gain_q, sh);
         s->corr_target = (int32_t)ld_sat64(t, 0, p->corr_max_q);
@@ -150,4 +167,5 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
     s->isum = 0;
     s->count = 0u;
     s->transient = 0u;
+    s->clipped = 0u;
 }

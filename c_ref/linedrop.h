@@ -12,7 +12,7 @@
 #include <stddef.h>
 
 #define LD_VERSION_MAJOR 0
-#define LD_VERSION_MINOR 2
+#define LD_VERSION_MINOR 3
 #define LD_VERSION_PATCH 0
 
 #define LD_TAB_MAX 256   /* longest perturbation period, samples */
@@ -27,6 +27,8 @@
 #define LD_STATUS_TRANSIENT 3
 #define LD_STATUS_R_HIGH 4
 #define LD_STATUS_REACTIVE 5
+#define LD_STATUS_CLIPPED 6
+#define LD_STATUS_R_LOW 7
 
 /* Read-only parameters, computed offline (algo/params.py); may live in flash. */
 typedef struct {
@@ -82,7 +84,7 @@ typedef struct {
     uint8_t have_prev;     /* psum_prev holds a whole period */
     uint8_t transient;     /* a load step was seen in this window */
     uint8_t status;        /* outcome of the last window, LD_STATUS_* */
-    uint8_t reserved;      /* keeps the layout explicit; always 0 */
+    uint8_t clipped;       /* a code sat at a rail in this window (v or i at adc_max, i at 0) */
 } ld_state_t;
 
 void ld_init(const ld_params_t *p, ld_state_t *s);

@@ -69,6 +69,7 @@ static void ld_period_end(const ld_params_t *p, ld_state_t *s)
  * table entry is below 2**15 in magnitude, so each product plus its rounding
  * half fits int32 (checked offline); demod_shift was chosen offline so a
  * window of shifted products fits acc_bits <= 32. isum < 2**14 * 2**16.
+ * The rail test compares clamped codes only.
  * A window ends on a period end, so its check sits inside the period's.
  */
 uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
@@ -81,6 +82,9 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
     int32_t sn = p->ref_tab[s->phase];
     int32_t cs = p->ref_tab[(s->phase + (1u << p->period_log2 >> 2)) & n];
 
+    if (v == p->adc_max || i == p->adc_max || i == 0) {
+        s->clipped = 1u;
+    }
     s->acc_vi += (v * sn + half) >> ds;
     s->acc_vq += (v * cs + half) >> ds;
     s->acc_ii += (i * sn + half) >> ds;

@@ -20,7 +20,7 @@ from algo.state import STATE_FIELDS
 HEADER = "LDTV 1"
 SCALAR_PARAMS = PARAM_FIELDS[:-1]
 TAB_PER_LINE = 16
-OUTPUT_FIELDS = ["command"] + STATE_FIELDS + ["reserved"]
+OUTPUT_FIELDS = ["command"] + STATE_FIELDS
 
 if PARAM_FIELDS[-1] != "ref_tab" or len(SCALAR_PARAMS) != 26:
     raise ImportError("ld_params_t layout changed: update c_ref/tools/replay_main.c and textvec")
@@ -83,7 +83,7 @@ def loads(text):
 
 
 def parse_output(text):
-    """The driver's output as a list of ``(command, state dict incl. 'reserved')``."""
+    """The driver's output as a list of ``(command, state dict)``."""
     rows = []
     for n, line in enumerate(text.splitlines(), 1):
         vals = [int(w) for w in line.split()]
@@ -108,7 +108,7 @@ def model_output(cases):
                     model.reset(p, s)
                 cmd = s.cmd
             state = {name: getattr(s, name) for name in STATE_FIELDS}
-            rows.append((cmd, dict(state, reserved=0)))
+            rows.append((cmd, state))
     return rows
 
 

@@ -21,7 +21,7 @@ from harness.port.vector_files import COLUMNS, params_from_note, parse_vector_cs
 from support.tools import require_tool
 
 ARGS = ["--duration-s", "0.1", "--long-s", "0.15", "--seed", "5"]
-OUTPUT_FIELDS = textvec.OUTPUT_FIELDS[:-1]   # command and the model's state fields, no 'reserved'
+OUTPUT_FIELDS = textvec.OUTPUT_FIELDS   # command and the model's state fields
 
 # One-line changes a port could plausibly get wrong: (file, original text, broken text).
 ROUNDING = {

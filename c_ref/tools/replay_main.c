@@ -138,7 +138,7 @@ static void ld_tv_print(uint16_t cmd)
            (unsigned long)s->windows,
            (unsigned)s->phase, (unsigned)s->count, (unsigned)s->bad_windows, (unsigned)s->cmd,
            (unsigned)s->have_prev, (unsigned)s->transient, (unsigned)s->status,
-           (unsigned)s->reserved);
+           (unsigned)s->clipped);
 }
 
 int main(int argc, char **argv)

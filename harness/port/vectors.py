@@ -114,14 +114,15 @@ def extreme_codes(cfg, seed):
 
     Segments: all zero; full scale; 65535 (clamped to adc_max); one channel
     high and the other low, both ways; samples alternating 0 / 65535; a
-    full-scale current sine with the voltage in phase (estimate above r_max)
-    and in quadrature (reactive); a small in-phase sine whose current level
+    current sine one code inside full scale (a code at a rail makes the window
+    clipped) with the voltage in phase (estimate above r_max), in quadrature
+    (reactive) and in antiphase (negative real part); a small in-phase sine whose current level
     jumps inside a window (load-step detector); seeded uniform codes over the
     whole uint16 range.
     """
     n = SEGMENT_WINDOWS * cfg.window_samples
     top = (1 << cfg.adc_bits) - 1
-    mid, amp = top // 2, top // 2
+    mid, amp = top // 2, top // 2 - 1
     t = np.arange(n)
     phase = 2 * np.pi * t / cfg.period_samples
     sine = np.rint(mid + amp * np.sin(phase)).astype(np.int64)
@@ -133,12 +134,13 @@ def extreme_codes(cfg, seed):
     full = lambda c: np.full(n, c, dtype=np.int64)  # noqa: E731
     segments = [(full(0), full(0)), (full(top), full(top)), (full(U16_MAX), full(U16_MAX)),
                 (full(U16_MAX), full(0)), (full(0), full(U16_MAX)), (alternate, alternate[::-1].copy()),
-                (sine, sine), (cosine, sine), (mid + small, jump),
+                (sine, sine), (cosine, sine), (2 * mid - sine, sine), (mid + small, jump),
                 (rng.integers(0, U16_MAX + 1, n), rng.integers(0, U16_MAX + 1, n))]
     adc_v = np.concatenate([v for v, _ in segments])
     adc_i = np.concatenate([i for _, i in segments])
     return Vector("extreme_codes", "open loop: zero, full scale, 65535 (clamped), crossed extremes, "
-                  "alternating, in-phase and quadrature full-scale sines, a current jump, seeded uniform codes",
+                  "alternating, in-phase, quadrature and antiphase near-full-scale sines, a current jump, "
+                  "seeded uniform codes",
                   adc_v, adc_i)
 
 
