@@ -10,7 +10,8 @@ compensation on the same plant and the same ADC noise. The figures per run:
 - ``improvement``: the uncompensated (``none``) steady load error over this run's, both
   measured over the last TAIL share of the run (``inf`` when the error is zero);
 - ``dip_v``: how far the load falls below target after the step, V;
-- ``settle_ms``: time after the step from which the load stays within SETTLE_BAND of target;
+- ``settle_ms``: time after the step from which the load stays within the 1 % band of target
+  (harness.loop.metrics.SETTLE_BAND);
 - ``overshoot_v``: the highest load voltage above target over the whole run, start included, V;
 - ``converge_ms``, ``converge_windows``: from the steady start, time until the load stays
   within SETTLE_BAND of target up to the step (windows of the recommended setting).
@@ -23,7 +24,7 @@ import numpy as np
 
 from harness.design.settings import recommended
 from harness.loop.closed_loop import COMPENSATIONS, simulate
-from harness.loop.metrics import SETTLE_BAND, TAIL, settling_s
+from harness.loop.metrics import TAIL, settling_s
 from harness.scenario.algo_setup import algo_config
 from harness.scenario.variants import with_load_step
 
@@ -48,16 +49,6 @@ def bench_scenario(scenario, windows=STEP_WINDOWS):
     return sc, sc.algorithm
 
 
-def _converge_s(t_s, v_load, target, until_s):
-    """Time from 0 after which v_load stays within the band up to ``until_s``; None if never."""
-    before = t_s < until_s
-    out = np.abs(v_load[before] - target) > SETTLE_BAND * target
-    if not out.any():
-        return 0.0
-    last = np.flatnonzero(out)[-1]
-    return None if last == out.size - 1 else float(t_s[before][last + 1])
-
-
 def figures(run, err_none_v):
     """The FIGURES of a one-scenario Run, given the uncompensated steady error (V)."""
     sc, cfg = run.scenarios[0], run.cfgs[0]
@@ -68,7 +59,8 @@ def figures(run, err_none_v):
     err = abs(target - float(v[tail].mean()))
     after = t > step_s
     settle = settling_s(t, v, target, step_s) if after.any() else None
-    conv = _converge_s(t, v, target, step_s)
+    before = t < step_s           # from the steady start up to the step
+    conv = settling_s(t[before], v[before], target, 0.0) if before.any() else None
     window_s = cfg.window_samples / cfg.sample_rate_hz
     return {"improvement": abs(err_none_v) / err if err > 0 else float("inf"),
             "steady_error_v": err,
