@@ -45,16 +45,22 @@ SETTINGS = {
     "r_frac_bits": Setting(16, 8, 16, int, "fraction bits of the resistance estimate (V-code per I-code)"),
     "r_max_ohm": Setting(10.0, 0.001, 1000.0, float, "largest plausible loop resistance + ESR, ohm"),
     "x_max_ohm": Setting(10.0, 0.001, 1000.0, float, "largest plausible reactance at the perturbation, ohm"),
+    "adc_phase_samples": Setting(0.0, -2.0, 2.0, float,
+                                 "lead of the sampled voltage over the voltage driving the cable, samples"),
     "esr_allowance_ohm": Setting(0.0, 0.0, 100.0, float, "load capacitor ESR subtracted from the estimate, ohm"),
-    "r_filter_shift": Setting(2, 0, 8, int, "estimate filter: each valid window moves it 2**-shift of the way"),
+    "r_filter_shift": Setting(2, 0, 8, int, "estimate filter, steady: each valid window moves it 2**-shift of the way"),
     "r_step_max_ohm": Setting(2.5, 0.0, 1000.0, float, "largest estimate change in one window, ohm"),
     "swing_min_a": Setting(0.01, 0.0, 100.0, float, "smallest current swing amplitude accepted, A peak"),
-    "step_rel_shift": Setting(3, 1, 8, int, "load-step detector: period-mean change above 2**-shift of the current"),
+    "step_rel_shift": Setting(1, 0, 8, int, "load-step detector: period-mean change above 2**-shift of the current swing"),
     "step_min_a": Setting(0.05, 0.0, 100.0, float, "load-step detector: absolute floor of that change, A"),
     "fault_windows": Setting(6, 1, 1000, int, "windows without a valid estimate before the correction is forced to zero"),
     # Correction.
-    "compensation": Setting(0.98, 0.0, 1.0, float, "fraction k of the estimated drop that is added"),
-    "smoothing_shift": Setting(2, 0, 12, int, "correction smoothing: each window moves it 2**-shift of the way"),
+    "compensation": Setting(1.0, 0.0, 1.0, float, "fraction k of the estimated drop that is added"),
+    "loop_tau_ms": Setting(4.0, 0.001, 10000.0, float,
+                           "closed-loop time constant of the correction, ms (at least one period)"),
+    "capacitance_f": Setting(1e-3, 0.0, 10.0, float,
+                             "load capacitance the proportional gain assumes (kp = R-hat * C / tau), F"),
+    "kp_max": Setting(32.0, 0.0, 256.0, float, "ceiling of the proportional gain"),
     "corr_frac_bits": Setting(4, 0, 8, int, "fraction bits of the correction state (DAC codes)"),
     "corr_max_v": Setting(1000.0, 0.0, 1000.0, float,
                           "largest correction, V (never more than max_v - target_v)"),
@@ -96,6 +102,7 @@ class AlgoConfig:
     r_frac_bits: int = _default("r_frac_bits")
     r_max_ohm: float = _default("r_max_ohm")
     x_max_ohm: float = _default("x_max_ohm")
+    adc_phase_samples: float = _default("adc_phase_samples")
     esr_allowance_ohm: float = _default("esr_allowance_ohm")
     r_filter_shift: int = _default("r_filter_shift")
     r_step_max_ohm: float = _default("r_step_max_ohm")
@@ -104,7 +111,9 @@ class AlgoConfig:
     step_min_a: float = _default("step_min_a")
     fault_windows: int = _default("fault_windows")
     compensation: float = _default("compensation")
-    smoothing_shift: int = _default("smoothing_shift")
+    loop_tau_ms: float = _default("loop_tau_ms")
+    capacitance_f: float = _default("capacitance_f")
+    kp_max: float = _default("kp_max")
     corr_frac_bits: int = _default("corr_frac_bits")
     corr_max_v: float = _default("corr_max_v")
 
@@ -120,6 +129,10 @@ class AlgoConfig:
         if self.pert_min_v > self.pert_max_v:
             raise ConfigError("pert_min_v", f"= {self.pert_min_v}: must not exceed pert_max_v = "
                                             f"{self.pert_max_v}")
+        period_ms = 1e3 * self.period_samples / self.sample_rate_hz
+        if self.loop_tau_ms < period_ms:
+            raise ConfigError("loop_tau_ms", f"= {self.loop_tau_ms}: must be at least one perturbation "
+                                             f"period, {period_ms:.4g} ms, here")
         if self.period_samples * self.periods_per_window > 16384:
             raise ConfigError("periods_per_window", "period_samples * periods_per_window must be "
                                                     "in [4, 16384]")

@@ -1,13 +1,37 @@
 """Window-end estimate and correction update (mirrors c_ref/estimator.c).
 
-Runs once per measurement window: turns the demodulation sums into the real
-and quadrature parts of V/I, classifies the window, updates the resistance
-estimate, the correction target and the perturbation amplitude, and moves the
-held correction one smoothing step. This is the only place with a division.
+Runs once per measurement window: removes the DC and a linear trend from the
+demodulation sums, turns them into the real and quadrature parts of V/I,
+classifies the window, and updates the resistance estimate and the
+perturbation amplitude. The correction itself moves
+every period (algo.step.correct). The only divisions are here.
 """
 from algo.fixed import sat, sat_s32, rshift_round, div_trunc, bit_length, step_toward
-from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS
+from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, KT_FRAC, ROT_FRAC
 from algo import state as st
+
+
+def detrend(acc, diff, kt_q):
+    """A demodulation sum less the share a linear trend left in it.
+
+    ``diff`` is the second half-window's code sum less the first's; the trend's slope is
+    diff / (W**2 / 4) and it adds slope * sum(tab * t) to the sum, which kt_q holds per unit diff
+    (algo.params.trend_constants). DC needs no removal: whole periods of the table sum to zero.
+
+    Scaling and overflow: |diff| < 2**31 and |kt_q| < 2**31, so the product is below 2**62; the
+    result is within 2**31 of an int32 sum and is kept in int64.
+    """
+    return acc - rshift_round(diff * kt_q, KT_FRAC)
+
+
+def rotate(vi, vq, p):
+    """The voltage pair turned back by the sampling phase (adc_phase_samples): (vi', vq').
+
+    Scaling and overflow: |vi|, |vq| < 2**33 and |rot_*_q| <= 2**ROT_FRAC, so each product is below
+    2**48 and their sum below 2**49 (int64).
+    """
+    return (rshift_round(vi * p.rot_c_q + vq * p.rot_s_q, ROT_FRAC),
+            rshift_round(vq * p.rot_c_q - vi * p.rot_s_q, ROT_FRAC))
 
 
 def classify(p, s):
@@ -17,18 +41,25 @@ def classify(p, s):
     code 0 stays a fault), then a code at a rail, a load step, and the
     real-part and quadrature limits.
 
-    Scaling and overflow: the current pair is shifted right by ``sh`` so its
-    larger magnitude has at most NORM_BITS+1 bits; the voltage pair (int32)
-    takes the same shift, so ``num`` and ``xnum`` are below 2**46 and
-    ``den`` below 2**30. ``num << r_frac`` (r_frac <= 16) stays below 2**62
-    and ``x_max_q * den`` below 2**61: int64 suffices.
+    Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
+    within 2**33 in magnitude. The current pair is shifted right by ``sh`` so its larger
+    magnitude has at most NORM_BITS+1 bits; the voltage pair takes the same shift, so it stays
+    below 2**33 and ``num`` and ``xnum`` below 2**49, ``den`` below 2**31. ``num << r_frac``
+    (r_frac <= 16) is below 2**65 only in theory: the voltage pair is then clamped to +-2**31
+    after the shift (its ratio to the current pair is at most 2**31 / 2**14 V-codes per I-code
+    before saturating r_raw anyway), which keeps ``num << r_frac`` below 2**62 and
+    ``x_max_q * den`` below 2**62: int64 suffices.
     """
-    m = max(abs(s.acc_ii), abs(s.acc_iq))
+    di, dv = s.isum - 2 * s.isum_h, s.vsum - 2 * s.vsum_h
+    ii0, iq0 = detrend(s.acc_ii, di, p.kt_s_q), detrend(s.acc_iq, di, p.kt_c_q)
+    m = max(abs(ii0), abs(iq0))
+    s.swing = sat_s32(max(abs(s.acc_ii), abs(s.acc_iq)))
     if m < p.swing_min:
         return st.STATUS_LOW_SWING, 0
+    vi0, vq0 = rotate(detrend(s.acc_vi, dv, p.kt_s_q), detrend(s.acc_vq, dv, p.kt_c_q), p)
     sh = max(0, bit_length(m) - NORM_BITS)
-    vi, vq = rshift_round(s.acc_vi, sh), rshift_round(s.acc_vq, sh)
-    ii, iq = rshift_round(s.acc_ii, sh), rshift_round(s.acc_iq, sh)
+    vi, vq = sat_s32(rshift_round(vi0, sh)), sat_s32(rshift_round(vq0, sh))
+    ii, iq = rshift_round(ii0, sh), rshift_round(iq0, sh)
     den = ii * ii + iq * iq
     num = vi * ii + vq * iq
     xnum = vq * ii - vi * iq
@@ -84,18 +115,33 @@ def command_base(p, s):
     return p.target_code + rshift_round(s.corr, p.corr_frac)
 
 
-def window_end(p, s):
-    """Finish a window: classify, update estimate and correction, clear the sums.
+def update_estimate(p, s, r_raw):
+    """Fold a valid window into the estimate.
 
-    Scaling and overflow: estimate arithmetic stays in [-2**31, 2**31) as
-    a valid window's r_raw and r_est are both in [0, r_max_q]; drop (Q DROP_FRAC, int32) times
-    a gain (Q GAIN_FRAC, int32) is below 2**62 before its shift.
+    The first valid window after init, a reset or a forced zero is taken as it is (valid_run 0:
+    shift 0); then the gain falls as 1, 1/2, 1/4 ... with the count of valid windows, down to the
+    steady 2**-r_shift, and from the second window on a step is at most r_step_max.
+
+    Scaling and overflow: r_raw and r_est are in [0, r_max_q], so every difference fits int32.
+    """
+    shift = min(bit_length(s.valid_run), p.r_shift)
+    if s.valid_run == 0:
+        s.r_est = r_raw
+    else:
+        d = step_toward(s.r_est, r_raw, shift) - s.r_est
+        s.r_est = sat(s.r_est + sat(d, -p.r_step_max_q, p.r_step_max_q), 0, p.r_max_q)
+    s.valid_run = min(s.valid_run + 1, 0xFF)
+
+
+def window_end(p, s):
+    """Finish a window: classify, update estimate, gain, fault counter and amplitude, clear the sums.
+
+    Scaling and overflow: drop (Q DROP_FRAC, int32) times pert_gain_q (Q GAIN_FRAC, int32) is
+    below 2**62 before its shift (next_pert_amp).
     """
     status, s.r_raw = classify(p, s)
     if status == st.STATUS_VALID:
-        target = max(s.r_raw, 0)
-        d = step_toward(s.r_est, target, p.r_shift) - s.r_est
-        s.r_est = sat(s.r_est + sat(d, -p.r_step_max_q, p.r_step_max_q), 0, p.r_max_q)
+        update_estimate(p, s, s.r_raw)
         s.bad_windows = 0
     elif status not in (st.STATUS_TRANSIENT, st.STATUS_CLIPPED):
         # A load step or a code at a rail only holds the estimate; counting it as a fault window
@@ -104,23 +150,14 @@ def window_end(p, s):
         s.bad_windows = min(s.bad_windows + 1, 0xFFFF)
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0
+        s.valid_run = 0
+        s.corr = s.corr_target = s.integ = 0
     drop_total = drop_vq(s.r_est, s.isum, p)
-    drop_comp = drop_vq(max(s.r_est - p.esr_q, 0), s.isum, p)
-    if status in (st.STATUS_VALID, st.STATUS_TRANSIENT, st.STATUS_CLIPPED):
-        s.corr_target = sat(rshift_round(drop_comp * p.corr_gain_q,
-                                         GAIN_FRAC + DROP_FRAC - p.corr_frac), 0, p.corr_max_q)
-    else:
-        s.corr_target = 0
     s.pert_amp = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
-    if s.bad_windows >= p.fault_windows:
-        s.corr = 0
-    else:
-        s.corr = step_toward(s.corr, s.corr_target, p.corr_shift)
-    s.cmd_base = command_base(p, s)
     s.status = status
     s.windows = (s.windows + 1) & 0xFFFFFFFF
     s.acc_vi = s.acc_vq = s.acc_ii = s.acc_iq = 0
-    s.isum = 0
+    s.isum = s.vsum = s.isum_h = s.vsum_h = 0
     s.count = 0
     s.transient = 0
     s.clipped = 0

@@ -15,6 +15,10 @@ TAB_MAX = 256      # LD_TAB_MAX: longest perturbation period, samples
 GAIN_FRAC = 16     # LD_GAIN_FRAC: fraction bits of corr_gain_q and pert_gain_q
 DROP_FRAC = 8      # LD_DROP_FRAC: fraction bits of the window's drop in V-ADC codes
 NORM_BITS = 14     # LD_NORM_BITS: current demodulation pair normalised to this many bits
+KT_FRAC = 16       # LD_KT_FRAC: fraction bits of the trend-removal constants kt_s_q, kt_c_q
+ROT_FRAC = 14      # LD_ROT_FRAC: fraction bits of the voltage phase rotation rot_c_q, rot_s_q
+SWING_FRAC = 24    # LD_SWING_FRAC: fraction bits of swing_psum_q
+KP_MAX_Q = 1 << 24  # LD_KP_MAX_Q: ceiling of any proportional gain (256), Q GAIN_FRAC
 S32_MAX = 0x7FFFFFFF
 
 
@@ -33,7 +37,6 @@ class Params:
     r_frac: int           # uint8: fraction bits of resistances
     r_shift: int          # uint8: estimate filter shift
     corr_frac: int        # uint8: fraction bits of the correction
-    corr_shift: int       # uint8: correction smoothing shift
     step_rel_shift: int   # uint8: load-step detector relative threshold shift
     acc_bits: int         # uint8: declared accumulator width (checked offline)
     r_max_q: int          # int32
@@ -47,6 +50,14 @@ class Params:
     pert_max: int         # int32: perturbation amplitude ceiling, DAC codes
     swing_min: int        # int32: smallest accepted current demodulation magnitude
     step_min: int         # int32: load-step detector floor, period-sum ADC codes
+    swing_psum_q: int     # int32: current swing (demodulation units) -> period-sum codes, Q SWING_FRAC
+    ki_q: int             # int32: integral gain per period, T_period / tau, Q GAIN_FRAC (<= 2**16)
+    kc_q: int             # int32: C / tau in (V-code per I-code)^-1, Q GAIN_FRAC: kp = r_est * kc_q
+    kp_max_q: int         # int32: proportional gain ceiling, Q GAIN_FRAC (<= 2**24)
+    kt_s_q: int           # int32: trend leak into the sine sums per unit half-sum difference, Q KT_FRAC
+    kt_c_q: int           # int32: the same for the cosine sums
+    rot_c_q: int          # int32: cos of the voltage phase correction, Q ROT_FRAC
+    rot_s_q: int          # int32: sin of the voltage phase correction, Q ROT_FRAC
     ref_tab: tuple        # int16[TAB_MAX]: one period of sine, Q(tab_bits-1)
 
     @property
@@ -98,6 +109,23 @@ def demod_shift_for(adc_bits, tab_bits, window_log2, acc_bits):
                                   f"widen it or shorten table_bits")
 
 
+def trend_constants(tab, period, window, ds):
+    """(kt_s, kt_c): how much of a half-window sum difference a linear trend leaves in the sums.
+
+    A trend y = slope * (k - (W - 1) / 2) over the window adds slope * sum(tab * t) / 2**ds to the
+    sine sum (likewise cosine) and slope * W**2 / 4 to (second half's sum - first half's). Whole
+    periods in each half carry no sine or cosine into that difference, so dividing the two gives
+    the leak per unit difference. With one period per window the halves are not whole periods and
+    the constants are zero (no trend removal).
+    """
+    if window < 2 * period:
+        return 0.0, 0.0
+    c = (window - 1) / 2
+    ts = sum(tab[k % period] * (k - c) for k in range(window)) / (1 << ds)
+    tc = sum(tab[(k + (period >> 2)) % period] * (k - c) for k in range(window)) / (1 << ds)
+    return ts / (window * window / 4), tc / (window * window / 4)
+
+
 def derive(cfg: AlgoConfig) -> Params:
     """Turn settings into the integer parameter block, rejecting any that could overflow."""
     v_lsb = cfg.v_full_scale_v / (1 << cfg.adc_bits)
@@ -112,6 +140,11 @@ def derive(cfg: AlgoConfig) -> Params:
     tab_amp = (1 << (cfg.table_bits - 1)) - 1
     # Demodulated magnitude of a current sine of amplitude A codes, worst phase: A*L/2*amp/2^ds/sqrt2.
     swing_per_code = (1 << window_log2) / 2 * tab_amp / (1 << ds) / math.sqrt(2)
+    tab = sine_table(cfg.period_samples, cfg.table_bits)
+    kt_s, kt_c = trend_constants(tab, cfg.period_samples, 1 << window_log2, ds)
+    period_s = cfg.period_samples / cfg.sample_rate_hz
+    tau_s = cfg.loop_tau_ms * 1e-3
+    theta = 2 * math.pi * cfg.adc_phase_samples / cfg.period_samples
     corr_max_code = min(cfg.corr_max_v / dac_lsb, max(0, _code(cfg.max_v / dac_lsb) - _code(cfg.target_v / dac_lsb)))
     vals = dict(
         adc_max=(1 << cfg.adc_bits) - 1,
@@ -126,7 +159,6 @@ def derive(cfg: AlgoConfig) -> Params:
         r_frac=cfg.r_frac_bits,
         r_shift=cfg.r_filter_shift,
         corr_frac=cfg.corr_frac_bits,
-        corr_shift=cfg.smoothing_shift,
         step_rel_shift=cfg.step_rel_shift,
         acc_bits=cfg.acc_bits,
         r_max_q=_code(cfg.r_max_ohm * r_scale),
@@ -140,7 +172,16 @@ def derive(cfg: AlgoConfig) -> Params:
         pert_max=_code(cfg.pert_max_v / dac_lsb),
         swing_min=max(1, _code(cfg.swing_min_a / i_lsb * swing_per_code)),
         step_min=_code(cfg.step_min_a / i_lsb * cfg.period_samples),
-        ref_tab=sine_table(cfg.period_samples, cfg.table_bits),
+        swing_psum_q=_code((1 << ds) * 2 * cfg.period_samples / ((1 << window_log2) * tab_amp)
+                           * (1 << SWING_FRAC)),
+        ki_q=_code(period_s / tau_s * (1 << GAIN_FRAC)),
+        kc_q=_code(v_lsb / i_lsb * cfg.capacitance_f / tau_s * (1 << GAIN_FRAC)),
+        kp_max_q=min(KP_MAX_Q, _code(cfg.kp_max * (1 << GAIN_FRAC))),
+        kt_s_q=_code(kt_s * (1 << KT_FRAC)),
+        kt_c_q=_code(kt_c * (1 << KT_FRAC)),
+        rot_c_q=_code(math.cos(theta) * (1 << ROT_FRAC)),
+        rot_s_q=_code(math.sin(theta) * (1 << ROT_FRAC)),
+        ref_tab=tab,
     )
     _check_ranges(vals)
     return Params(**vals)
@@ -150,7 +191,9 @@ def derive(cfg: AlgoConfig) -> Params:
 _INT32_FIELDS = {"r_max_q": "r_max_ohm", "x_max_q": "x_max_ohm", "esr_q": "esr_allowance_ohm",
                  "r_step_max_q": "r_step_max_ohm", "corr_gain_q": "compensation",
                  "pert_gain_q": "pert_fraction", "corr_max_q": "corr_max_v",
-                 "swing_min": "swing_min_a", "step_min": "step_min_a"}
+                 "swing_min": "swing_min_a", "step_min": "step_min_a",
+                 "ki_q": "loop_tau_ms", "kc_q": "capacitance_f", "kp_max_q": "kp_max",
+                 "swing_psum_q": "acc_bits"}
 
 
 def _check_ranges(v):
@@ -160,5 +203,10 @@ def _check_ranges(v):
                                    f"lengths and full scales; lower it or r_frac_bits")
     if v["pert_max"] > 0x7FFF:
         raise ConfigError("pert_max_v", "must be below 32768 DAC codes")
+    if v["ki_q"] > 1 << GAIN_FRAC:
+        raise ConfigError("loop_tau_ms", "must be at least one perturbation period")
+    for name in ("kt_s_q", "kt_c_q"):
+        if not -S32_MAX <= v[name] <= S32_MAX:
+            raise ConfigError("periods_per_window", f"trend constant {v[name]} does not fit int32")
     if v["r_max_q"] < 1:
         raise ConfigError("r_max_ohm", "rounds to zero at these full scales and r_frac_bits")

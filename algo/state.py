@@ -23,14 +23,19 @@ class State:
     acc_ii: int = 0       # int32: current x sine
     acc_iq: int = 0       # int32: current x cosine
     isum: int = 0         # int32: sum of current codes over the window
+    vsum: int = 0         # int32: sum of voltage codes over the window
+    isum_h: int = 0       # int32: isum at the window's half (trend removal)
+    vsum_h: int = 0       # int32: vsum at the window's half
     psum: int = 0         # int32: sum of current codes over the current period
     psum_prev: int = 0    # int32: sum over the previous whole period
     r_est: int = 0        # int32: loop resistance estimate incl. ESR, Q r_frac V-code/I-code
     r_raw: int = 0        # int32: last window's raw real part (saturated), same format
     corr: int = 0         # int32: correction applied, Q corr_frac DAC codes
-    corr_target: int = 0  # int32: correction the smoothing moves toward, same format
+    corr_target: int = 0  # int32: the last period's estimated drop (R-hat - ESR) * I, same format
+    integ: int = 0        # int32: integral part of the correction, same format, in [0, corr_max_q]
     pert_amp: int = 0     # int32: perturbation amplitude, DAC codes
-    cmd_base: int = 0     # int32: target_code + rounded correction, DAC codes (set per window)
+    cmd_base: int = 0     # int32: target_code + rounded correction, DAC codes (set per period)
+    swing: int = 0        # int32: last window's current swing, demodulation units (step detector)
     windows: int = 0      # uint32: windows finished (wraps)
     phase: int = 0        # uint16: sample index within the perturbation period
     count: int = 0        # uint16: sample index within the window
@@ -40,6 +45,7 @@ class State:
     transient: int = 0    # uint8: a load step was seen in this window
     status: int = 0       # uint8: outcome of the last window (STATUS_*)
     clipped: int = 0      # uint8: a code sat at a rail in this window (v or i at adc_max, i at 0)
+    valid_run: int = 0    # uint8: valid windows since init, reset or a forced zero (saturates)
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

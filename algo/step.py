@@ -1,12 +1,14 @@
 """Per-sample step, init and reset (mirrors c_ref/step.c).
 
 One call per ADC sample: demodulate the voltage and current codes against
-the sine and cosine references, watch for load steps at each period end,
-finish the window when it is full, and return the next command code.
+the sine and cosine references; at each period end watch for load steps and
+move the correction one step of its proportional-plus-integral law; finish
+the window when it is full; return the next command code.
 Integer-only; no division.
 """
-from algo.fixed import sat, rshift_round
+from algo.fixed import sat, sat_s32, rshift_round
 from algo.estimator import command_base, window_end
+from algo.params import GAIN_FRAC, DROP_FRAC, SWING_FRAC, S32_MAX
 from algo.state import State
 
 
@@ -32,7 +34,7 @@ def reset(p, s):
     """Restart measurement and drop the correction; keep the resistance estimate.
 
     The estimate is only a starting point: the correction stays at zero until a
-    valid window after the reset recomputes it.
+    valid window after the reset, which replaces the estimate outright (valid_run is 0).
     """
     r_est, windows = s.r_est, s.windows
     s.__init__()
@@ -44,18 +46,62 @@ def reset(p, s):
 
 
 def _period_end(p, s):
-    """Flag a load step when consecutive whole-period current sums differ too much.
+    """Flag a load step when consecutive whole-period current sums differ by more than a share
+    of the current swing.
 
-    Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit
-    codes), so their difference and the shifted threshold fit int32.
+    Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit codes), so their
+    difference fits int32; swing (< 2**31) times swing_psum_q (<= 2**SWING_FRAC) is below 2**55.
     """
     if s.have_prev:
-        thr = max(p.step_min, s.psum_prev >> p.step_rel_shift)
+        thr = max(p.step_min, rshift_round(s.swing * p.swing_psum_q, SWING_FRAC + p.step_rel_shift))
         if abs(s.psum - s.psum_prev) > thr:
             s.transient = 1
     s.psum_prev = s.psum
     s.have_prev = 1
-    s.psum = 0
+
+
+def drop_period(p, s):
+    """The period's estimated drop (R-hat - ESR) * mean current in Q corr_frac DAC codes: what the
+    correction tracks. Not clamped to corr_max_q: with the correction at its ceiling the error
+    must still read the load voltage's shortfall.
+
+    Scaling and overflow: r_est - esr_q is in [0, 2**31) and psum below 2**24, so their product is
+    below 2**55; after the shift the V-code drop (Q DROP_FRAC) is saturated to int32, and times
+    corr_gain_q (int32) it is below 2**62.
+    """
+    r_c = max(s.r_est - p.esr_q, 0)
+    drop = sat_s32(rshift_round(r_c * s.psum, p.r_frac + p.period_log2 - DROP_FRAC))
+    return sat(rshift_round(drop * p.corr_gain_q, GAIN_FRAC + DROP_FRAC - p.corr_frac),
+               0, S32_MAX)
+
+
+def correct(p, s):
+    """One period of the correction law: proportional-plus-integral on the error e = drop - corr.
+
+    With V-hat = (target + corr) - (R-hat - ESR) * I the supply's reading of the load voltage,
+    e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
+    ki = T_period / tau: the zero at R-hat * C cancels the cable-capacitor lag, the loop closes
+    with time constant tau, and no steady error is left. The output is
+    clamped to [0, corr_max_q]; the integral does not move while the clamp holds and the error
+    pushes further into it (conditional integration, the anti-windup). While the fault counter
+    holds the correction at zero, the integral is cleared too.
+
+    Scaling and overflow: r_est (< 2**31) times kc_q (< 2**31) is below 2**62 and kp is clamped
+    to kp_max_q <= 2**24. corr and corr_target are in [0, corr_max_q], so |e| < 2**31; kp <= 2**24 keeps kp * e below 2**55 and ki_q <= 2**16 keeps ki * e below 2**47; the
+    sum of the two parts is below 2**40 after the shift and is clamped before it is stored.
+    """
+    if s.bad_windows >= p.fault_windows:
+        s.corr = s.corr_target = s.integ = 0
+        return
+    s.corr_target = drop_period(p, s)
+    e = s.corr_target - s.corr
+    integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
+    kp = min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
+    u = rshift_round(kp * e, GAIN_FRAC) + integ
+    if (u > p.corr_max_q and e > 0) or (u < 0 and e < 0):
+        integ = s.integ
+    s.integ = sat(integ, 0, p.corr_max_q)
+    s.corr = sat(u, 0, p.corr_max_q)
 
 
 def step(p, s, adc_v, adc_i):
@@ -64,7 +110,7 @@ def step(p, s, adc_v, adc_i):
     Scaling and overflow: codes are clamped to [0, adc_max] (< 2**16) and a
     table entry is below 2**15 in magnitude, so each product fits int32; the
     demodulation shift was chosen offline (algo.params.demod_shift_for) so a
-    window of shifted products fits acc_bits <= 32. isum is below
+    window of shifted products fits acc_bits <= 32. isum and vsum are below
     2**14 * 2**16 = 2**30. The rail test compares clamped codes only.
     """
     v = sat(adc_v, 0, p.adc_max)
@@ -79,12 +125,18 @@ def step(p, s, adc_v, adc_i):
     s.acc_ii += rshift_round(i * sn, p.demod_shift)
     s.acc_iq += rshift_round(i * cs, p.demod_shift)
     s.isum += i
+    s.vsum += v
     s.psum += i
     s.phase = (s.phase + 1) & n
     s.count += 1
     if s.phase == 0:
         _period_end(p, s)
+        correct(p, s)
+        s.psum = 0
+        if s.count == p.window >> 1:
+            s.isum_h, s.vsum_h = s.isum, s.vsum
         if s.count == p.window:
             window_end(p, s)
+        s.cmd_base = command_base(p, s)
     s.cmd = _command(p, s)
     return s.cmd
