@@ -4,13 +4,19 @@ Same arithmetic as algo/step.py and algo/estimator.py, bit for bit, applied
 to int64 arrays of shape (n,): one element per independent instance, each
 with its own parameters. Range analysis keeps every intermediate below 2**63,
 so int64 never wraps. The scalar model stays the readable, line-by-line
-mirror of the C; this one is for speed and is tested equal to it.
+mirror of the C; this one is for speed and is tested equal to it. Per-period
+and per-window work runs only on the instances whose period or window ended.
 """
 import numpy as np
 
-from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, PARAM_FIELDS
+from algo.params import (GAIN_FRAC, DROP_FRAC, NORM_BITS, KT_FRAC, ROT_FRAC, SWING_FRAC, S32_MAX,
+                         PARAM_FIELDS)
 from algo.state import STATE_FIELDS
 from algo import state as st
+
+_S32 = (-(1 << 31), S32_MAX)
+_CLEARED = ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "vsum", "isum_h", "vsum_h", "count",
+            "transient", "clipped")
 
 
 class _Fields:
@@ -24,6 +30,10 @@ class _Fields:
 def _rsr(x, s):
     """Vectorised algo.fixed.rshift_round: shift right by s >= 0, rounding half up."""
     return (x + ((np.int64(1) << s) >> 1)) >> s
+
+
+def _sat32(x):
+    return np.minimum(np.maximum(x, _S32[0]), _S32[1])
 
 
 def _step_toward(x, target, s):
@@ -70,6 +80,7 @@ class BatchModel:
         self._half_ds = (np.int64(1) << self.p.demod_shift) >> 1
         self._half_tab = (np.int64(1) << (self.p.tab_bits - 1)) >> 1
         self._tab_shift = self.p.tab_bits - 1
+        self._half_window = self.window >> 1
         self.init(np.ones(self.n, dtype=bool))
 
     def init(self, mask):
@@ -111,15 +122,13 @@ class BatchModel:
         s.acc_ii += (i * sn + h) >> ds
         s.acc_iq += (i * cs + h) >> ds
         s.isum += i
+        s.vsum += v
         s.psum += i
         s.phase = ph = (ph + 1) & self._pmask
         s.count += 1
         ends = ph == 0
         if ends.any():
-            self._period_end(np.flatnonzero(ends))
-            ends = s.count == self.window
-            if ends.any():
-                self._window_end(np.flatnonzero(ends))
+            self._period_ends(np.flatnonzero(ends))
         s.cmd = self._command()
         return s.cmd
 
@@ -131,72 +140,125 @@ class BatchModel:
             out[:, t] = self.step(adc_v[:, t], adc_i[:, t])
         return out
 
-    def _period_end(self, k):
-        s, p = self.s, self.p
-        thr = np.maximum(p.step_min[k], s.psum_prev[k] >> p.step_rel_shift[k])
-        jump = (s.have_prev[k] != 0) & (np.abs(s.psum[k] - s.psum_prev[k]) > thr)
-        s.transient[k[jump]] = 1
-        s.psum_prev[k] = s.psum[k]
-        s.have_prev[k] = 1
+    def _period_ends(self, k):
+        """algo.step.step's period-end block, in its order, for instances ``k``."""
+        s = self.s
+        self._period_end(k)
+        self._correct(k)
         s.psum[k] = 0
+        count = s.count[k]
+        h = k[count == self._half_window[k]]
+        if h.size:
+            s.isum_h[h], s.vsum_h[h] = s.isum[h], s.vsum[h]
+        w = k[count == self.window[k]]
+        if w.size:
+            self._window_end(w)
+        s.cmd_base[k] = self.p.target_code[k] + _rsr(s.corr[k], self.p.corr_frac[k])
+
+    def _period_end(self, k):
+        """algo.step._period_end: the swing-relative load-step detector."""
+        s, p = self.s, self.p
+        psum, prev = s.psum[k], s.psum_prev[k]
+        thr = np.maximum(p.step_min[k], _rsr(s.swing[k] * p.swing_psum_q[k],
+                                             SWING_FRAC + p.step_rel_shift[k]))
+        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > thr)
+        s.transient[k[jump]] = 1
+        s.psum_prev[k] = psum
+        s.have_prev[k] = 1
+
+    def _correct(self, k):
+        """algo.step.correct (with drop_period): one period of the PI correction law and its
+        ring guard."""
+        s, p = self.s, self.p
+        r_est, corr0, integ0, du_prev = s.r_est[k], s.corr[k], s.integ[k], s.du_prev[k]
+        cmax = p.corr_max_q[k]
+        r_c = np.maximum(r_est - p.esr_q[k], 0)
+        drop = _sat32(_rsr(r_c * s.psum[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
+        tgt = np.clip(_rsr(drop * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k]),
+                      0, S32_MAX)
+        e = tgt - corr0
+        integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
+        kp = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
+        kp = np.where(s.kp_off[k] != 0, 0, kp)
+        u = _rsr(kp * e, GAIN_FRAC) + integ
+        hold = ((u > cmax) & (e > 0)) | ((u < 0) & (e < 0))
+        integ = np.where(hold, integ0, integ)
+        corr = np.clip(u, 0, cmax)
+        du = corr - corr0
+        rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
+                & (np.abs(du) > np.abs(du_prev) + (cmax >> 3)))
+        forced = s.bad_windows[k] >= p.fault_windows[k]
+        s.kp_off[k[rang & ~forced]] = 1
+        s.corr_target[k] = np.where(forced, 0, tgt)
+        s.integ[k] = np.where(forced, 0, np.clip(integ, 0, cmax))
+        s.corr[k] = np.where(forced, 0, corr)
+        s.du_prev[k] = np.where(forced, 0, du)
 
     def _classify(self, k):
+        """algo.estimator.classify for instances ``k``; sets swing where valid, returns (status, r_raw)."""
         s, p = self.s, self.p
-        m = np.maximum(np.abs(s.acc_ii[k]), np.abs(s.acc_iq[k]))
+        kt_s, kt_c = p.kt_s_q[k], p.kt_c_q[k]
+        di = s.isum[k] - 2 * s.isum_h[k]
+        dv = s.vsum[k] - 2 * s.vsum_h[k]
+        ii0 = s.acc_ii[k] - _rsr(di * kt_s, KT_FRAC)
+        iq0 = s.acc_iq[k] - _rsr(di * kt_c, KT_FRAC)
+        m = np.maximum(np.abs(ii0), np.abs(iq0))
         low = m < p.swing_min[k]
+        vd = s.acc_vi[k] - _rsr(dv * kt_s, KT_FRAC)
+        vqd = s.acc_vq[k] - _rsr(dv * kt_c, KT_FRAC)
+        rc, rs = p.rot_c_q[k], p.rot_s_q[k]
+        vi0 = _rsr(vd * rc + vqd * rs, ROT_FRAC)
+        vq0 = _rsr(vqd * rc - vd * rs, ROT_FRAC)
         sh = np.maximum(0, _bit_length(m) - NORM_BITS)
-        vi, vq = _rsr(s.acc_vi[k], sh), _rsr(s.acc_vq[k], sh)
-        ii, iq = _rsr(s.acc_ii[k], sh), _rsr(s.acc_iq[k], sh)
+        vi, vq = _sat32(_rsr(vi0, sh)), _sat32(_rsr(vq0, sh))
+        ii, iq = _rsr(ii0, sh), _rsr(iq0, sh)
         den = np.where(low, 1, ii * ii + iq * iq)
         num = vi * ii + vq * iq
         xnum = vq * ii - vi * iq
-        r_raw = np.clip(_div_trunc(num << p.r_frac[k], den), -(1 << 31), (1 << 31) - 1)
-        r_raw = np.where(low, 0, r_raw)
+        r_raw = np.where(low, 0, _sat32(_div_trunc(num << p.r_frac[k], den)))
         status = np.select(
             [low, s.clipped[k] != 0, s.transient[k] != 0, r_raw > p.r_max_q[k], r_raw < 0,
              np.abs(xnum) << p.r_frac[k] > p.x_max_q[k] * den],
             [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_TRANSIENT, st.STATUS_R_HIGH,
              st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
+        valid = status == st.STATUS_VALID
+        s.swing[k] = np.where(valid, _sat32(m), s.swing[k])
         return status, r_raw
 
-    def _drop_vq(self, r_q, k):
-        p = self.p
-        d = _rsr(r_q * self.s.isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC)
-        return np.clip(d, -(1 << 31), (1 << 31) - 1)
-
     def _window_end(self, k):
+        """algo.estimator.window_end for instances ``k``."""
         s, p = self.s, self.p
         status, r_raw = self._classify(k)
         s.r_raw[k] = r_raw
         valid = status == st.STATUS_VALID
-        r_est = s.r_est[k]
-        d = _step_toward(r_est, np.maximum(r_raw, 0), p.r_shift[k]) - r_est
-        d = np.clip(d, -p.r_step_max_q[k], p.r_step_max_q[k])
-        r_est = np.where(valid, np.clip(r_est + d, 0, p.r_max_q[k]), r_est)
+        # update_estimate: the first valid window is taken as it is, then gains 1/2 ... 2**-r_shift.
+        r_est, run, dmax = s.r_est[k], s.valid_run[k], p.r_step_max_q[k]
+        shift = np.minimum(_bit_length(run), p.r_shift[k])
+        d = np.clip(_step_toward(r_est, r_raw, shift) - r_est, -dmax, dmax)
+        folded = np.where(run == 0, r_raw, np.clip(r_est + d, 0, p.r_max_q[k]))
+        r_est = np.where(valid, folded, r_est)
+        run = np.where(valid, np.minimum(run + 1, 0xFF), run)
         held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
         bad = np.where(valid, 0, np.where(held, s.bad_windows[k],
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]
         r_est = np.where(forced, 0, r_est)
-        drop_total = self._drop_vq(r_est, k)
-        drop_comp = self._drop_vq(np.maximum(r_est - p.esr_q[k], 0), k)
-        tgt = _rsr(drop_comp * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k])
-        tgt = np.clip(tgt, 0, p.corr_max_q[k])
-        s.corr_target[k] = np.where(valid | held, tgt, 0)
-        amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC),
-                         s.pert_amp[k] >> 1)
-        amp = np.where(status == st.STATUS_CLIPPED, s.pert_amp[k] >> 1, amp)
-        amp = np.where(status == st.STATUS_LOW_SWING, s.pert_amp[k] << 1, amp)
+        s.valid_run[k] = np.where(forced, 0, run)
+        for name in ("corr", "corr_target", "integ", "du_prev"):
+            getattr(s, name)[k[forced]] = 0
+        drop_total = _sat32(_rsr(r_est * s.isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))
+        amp0 = s.pert_amp[k]
+        amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC), amp0 >> 1)
+        amp = np.where(status == st.STATUS_CLIPPED, amp0 >> 1, amp)
+        amp = np.where(status == st.STATUS_LOW_SWING, amp0 << 1, amp)
         s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
-        s.corr[k] = np.where(forced, 0, _step_toward(s.corr[k], s.corr_target[k], p.corr_shift[k]))
-        s.cmd_base[k] = p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k])
+        s.kp_off[k[valid]] = 0
         s.r_est[k] = r_est
         s.bad_windows[k] = bad
         s.status[k] = status
         s.windows[k] = (s.windows[k] + 1) & 0xFFFFFFFF
-        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "count", "transient",
-                     "clipped"):
+        for name in _CLEARED:
             getattr(s, name)[k] = 0
 
     def field(self, name):

@@ -56,8 +56,9 @@ SETTINGS = {
     "fault_windows": Setting(6, 1, 1000, int, "windows without a valid estimate before the correction is forced to zero"),
     # Correction.
     "compensation": Setting(1.0, 0.0, 1.0, float, "fraction k of the estimated drop that is added"),
-    "loop_tau_ms": Setting(4.0, 0.001, 10000.0, float,
-                           "closed-loop time constant of the correction, ms (at least one period)"),
+    "loop_tau_ms": Setting(0.0, 0.0, 10000.0, float,
+                           "closed-loop time constant of the correction, ms (at least one period; "
+                           "0: four periods)"),
     "capacitance_f": Setting(1e-3, 0.0, 10.0, float,
                              "load capacitance the proportional gain assumes (kp = R-hat * C / tau), F"),
     "kp_max": Setting(32.0, 0.0, 256.0, float, "ceiling of the proportional gain"),
@@ -130,7 +131,7 @@ class AlgoConfig:
             raise ConfigError("pert_min_v", f"= {self.pert_min_v}: must not exceed pert_max_v = "
                                             f"{self.pert_max_v}")
         period_ms = 1e3 * self.period_samples / self.sample_rate_hz
-        if self.loop_tau_ms < period_ms:
+        if 0 < self.loop_tau_ms < period_ms:
             raise ConfigError("loop_tau_ms", f"= {self.loop_tau_ms}: must be at least one perturbation "
                                              f"period, {period_ms:.4g} ms, here")
         if self.period_samples * self.periods_per_window > 16384:
@@ -141,6 +142,13 @@ class AlgoConfig:
     def window_samples(self):
         """Samples in one measurement window."""
         return self.period_samples * self.periods_per_window
+
+    @property
+    def loop_tau_s(self):
+        """The correction's closed-loop time constant in force, s (loop_tau_ms, 0: four periods)."""
+        if self.loop_tau_ms > 0:
+            return self.loop_tau_ms * 1e-3
+        return 4.0 * self.period_samples / self.sample_rate_hz
 
     @property
     def perturbation_hz(self):

@@ -39,7 +39,8 @@ def classify(p, s):
 
     Order: too little current swing first (a cable open with the current near
     code 0 stays a fault), then a code at a rail, a load step, and the
-    real-part and quadrature limits.
+    real-part and quadrature limits. A valid window also leaves its (detrended) current swing for
+    the load-step detector.
 
     Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
     within 2**33 in magnitude. The current pair is shifted right by ``sh`` so its larger
@@ -53,7 +54,6 @@ def classify(p, s):
     di, dv = s.isum - 2 * s.isum_h, s.vsum - 2 * s.vsum_h
     ii0, iq0 = detrend(s.acc_ii, di, p.kt_s_q), detrend(s.acc_iq, di, p.kt_c_q)
     m = max(abs(ii0), abs(iq0))
-    s.swing = sat_s32(max(abs(s.acc_ii), abs(s.acc_iq)))
     if m < p.swing_min:
         return st.STATUS_LOW_SWING, 0
     vi0, vq0 = rotate(detrend(s.acc_vi, dv, p.kt_s_q), detrend(s.acc_vq, dv, p.kt_c_q), p)
@@ -74,6 +74,7 @@ def classify(p, s):
         return st.STATUS_R_LOW, r_raw
     if abs(xnum) << p.r_frac > p.x_max_q * den:
         return st.STATUS_REACTIVE, r_raw
+    s.swing = sat_s32(m)
     return st.STATUS_VALID, r_raw
 
 
@@ -143,6 +144,7 @@ def window_end(p, s):
     if status == st.STATUS_VALID:
         update_estimate(p, s, s.r_raw)
         s.bad_windows = 0
+        s.kp_off = 0
     elif status not in (st.STATUS_TRANSIENT, st.STATUS_CLIPPED):
         # A load step or a code at a rail only holds the estimate; counting it as a fault window
         # would let a step spread over several windows by the load capacitor force the
@@ -151,7 +153,7 @@ def window_end(p, s):
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0
         s.valid_run = 0
-        s.corr = s.corr_target = s.integ = 0
+        s.corr = s.corr_target = s.integ = s.du_prev = 0
     drop_total = drop_vq(s.r_est, s.isum, p)
     s.pert_amp = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
     s.status = status

@@ -143,7 +143,7 @@ def derive(cfg: AlgoConfig) -> Params:
     tab = sine_table(cfg.period_samples, cfg.table_bits)
     kt_s, kt_c = trend_constants(tab, cfg.period_samples, 1 << window_log2, ds)
     period_s = cfg.period_samples / cfg.sample_rate_hz
-    tau_s = cfg.loop_tau_ms * 1e-3
+    tau_s = cfg.loop_tau_s
     theta = 2 * math.pi * cfg.adc_phase_samples / cfg.period_samples
     corr_max_code = min(cfg.corr_max_v / dac_lsb, max(0, _code(cfg.max_v / dac_lsb) - _code(cfg.target_v / dac_lsb)))
     vals = dict(

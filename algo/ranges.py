@@ -16,11 +16,13 @@ S32 = (-(1 << 31), (1 << 31) - 1)
 
 #: C type of each ``ld_state_t`` field, as (lo, hi) of the type.
 STATE_TYPES = {
-    "acc_vi": S32, "acc_vq": S32, "acc_ii": S32, "acc_iq": S32, "isum": S32, "psum": S32,
-    "psum_prev": S32, "r_est": S32, "r_raw": S32, "corr": S32, "corr_target": S32,
-    "pert_amp": S32, "cmd_base": S32, "windows": (0, (1 << 32) - 1), "phase": (0, 0xFFFF), "count": (0, 0xFFFF),
-    "bad_windows": (0, 0xFFFF), "cmd": (0, 0xFFFF), "have_prev": (0, 0xFF),
-    "transient": (0, 0xFF), "status": (0, 0xFF), "clipped": (0, 0xFF),
+    "acc_vi": S32, "acc_vq": S32, "acc_ii": S32, "acc_iq": S32, "isum": S32, "vsum": S32,
+    "isum_h": S32, "vsum_h": S32, "psum": S32, "psum_prev": S32, "r_est": S32, "r_raw": S32,
+    "corr": S32, "corr_target": S32, "integ": S32, "du_prev": S32, "pert_amp": S32,
+    "cmd_base": S32, "swing": S32, "windows": (0, (1 << 32) - 1), "phase": (0, 0xFFFF),
+    "count": (0, 0xFFFF), "bad_windows": (0, 0xFFFF), "cmd": (0, 0xFFFF), "have_prev": (0, 0xFF),
+    "transient": (0, 0xFF), "status": (0, 0xFF), "clipped": (0, 0xFF), "valid_run": (0, 0xFF),
+    "kp_off": (0, 0xFF),
 }
 
 
@@ -46,25 +48,35 @@ def state_bounds(p: Params):
     -----
     * ``acc_*``: at most one window of products (step.py: "a window of shifted
       products fits acc_bits"); the bound is ``window`` products of the extreme sign.
-    * ``isum``: ``window`` codes of at most adc_max ("isum is below 2**30").
+    * ``isum``, ``vsum``: ``window`` codes of at most adc_max ("isum and vsum are below
+      2**30"); ``isum_h``, ``vsum_h`` are snapshots of them at the window's half, same bound.
     * ``psum``, ``psum_prev``: one period of codes ("period sums are below 2**24").
-    * ``r_est``: clamped to [0, r_max_q] (estimator.window_end); ``r_raw`` is only
-      saturated to int32.
-    * ``corr``, ``corr_target``: the target is clamped to [0, corr_max_q] and the
-      correction steps toward it or is forced to 0, so it never leaves that interval.
+    * ``r_est``: clamped to [0, r_max_q] (estimator.update_estimate, or 0 when forced);
+      ``r_raw`` is only saturated to int32.
+    * ``corr``, ``integ``: clamped to [0, corr_max_q] in step.correct, or forced to 0.
+    * ``du_prev``: the last period's change of corr, a difference of two values in
+      [0, corr_max_q] (or 0 when forced), so within +-corr_max_q; ``kp_off`` is a 0/1 flag.
+    * ``corr_target``: step.drop_period, saturated to [0, 2**31 - 1] and deliberately not
+      clamped to corr_max_q (the error must still read the shortfall at the ceiling).
+    * ``swing``: int32-saturated magnitude of the current pair (estimator.classify), >= 0.
+    * ``valid_run``: saturating uint8 count of valid windows (estimator.update_estimate).
     * ``pert_amp``: clamped to [pert_min, pert_max] at every window end; init sets pert_min.
-    * ``cmd``: clamped to [cmd_min, cmd_max] in step._command; ``cmd_base`` (where the
-      model has it) is target_code plus the rounded correction.
+    * ``cmd``: clamped to [cmd_min, cmd_max] in step._command; ``cmd_base`` is target_code
+      plus the rounded correction (estimator.command_base), set at init, reset and every
+      period end.
     """
     lo, hi = _product_range(p)
     win, per = p.window, p.period
     bounds = {
         "acc_vi": (win * lo, win * hi), "acc_vq": (win * lo, win * hi),
         "acc_ii": (win * lo, win * hi), "acc_iq": (win * lo, win * hi),
-        "isum": (0, win * p.adc_max),
+        "isum": (0, win * p.adc_max), "vsum": (0, win * p.adc_max),
+        "isum_h": (0, win * p.adc_max), "vsum_h": (0, win * p.adc_max),
         "psum": (0, per * p.adc_max), "psum_prev": (0, per * p.adc_max),
         "r_est": (0, p.r_max_q), "r_raw": S32,
-        "corr": (0, p.corr_max_q), "corr_target": (0, p.corr_max_q),
+        "corr": (0, p.corr_max_q), "integ": (0, p.corr_max_q), "corr_target": (0, S32[1]),
+        "du_prev": (-p.corr_max_q, p.corr_max_q),
+        "swing": (0, S32[1]), "valid_run": (0, 0xFF), "kp_off": (0, 1),
         "pert_amp": (p.pert_min, p.pert_max),
         "windows": (0, (1 << 32) - 1),
         "phase": (0, per - 1), "count": (0, win - 1),

@@ -33,6 +33,7 @@ class State:
     corr: int = 0         # int32: correction applied, Q corr_frac DAC codes
     corr_target: int = 0  # int32: the last period's estimated drop (R-hat - ESR) * I, same format
     integ: int = 0        # int32: integral part of the correction, same format, in [0, corr_max_q]
+    du_prev: int = 0      # int32: the last period's change of corr, same format
     pert_amp: int = 0     # int32: perturbation amplitude, DAC codes
     cmd_base: int = 0     # int32: target_code + rounded correction, DAC codes (set per period)
     swing: int = 0        # int32: last window's current swing, demodulation units (step detector)
@@ -46,6 +47,7 @@ class State:
     status: int = 0       # uint8: outcome of the last window (STATUS_*)
     clipped: int = 0      # uint8: a code sat at a rail in this window (v or i at adc_max, i at 0)
     valid_run: int = 0    # uint8: valid windows since init, reset or a forced zero (saturates)
+    kp_off: int = 0       # uint8: proportional part off (the correction rang) until a valid window
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

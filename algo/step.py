@@ -33,8 +33,8 @@ def init(p):
 def reset(p, s):
     """Restart measurement and drop the correction; keep the resistance estimate.
 
-    The estimate is only a starting point: the correction stays at zero until a
-    valid window after the reset, which replaces the estimate outright (valid_run is 0).
+    The kept estimate is for reporting only: the correction stays at zero until a valid window
+    after the reset, and that window replaces the estimate outright (valid_run is 0).
     """
     r_est, windows = s.r_est, s.windows
     s.__init__()
@@ -50,7 +50,8 @@ def _period_end(p, s):
     of the current swing.
 
     Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit codes), so their
-    difference fits int32; swing (< 2**31) times swing_psum_q (<= 2**SWING_FRAC) is below 2**55.
+    difference fits int32; swing (< 2**31) times swing_psum_q (int32, checked in
+    algo.params.derive) is below 2**62.
     """
     if s.have_prev:
         thr = max(p.step_min, rshift_round(s.swing * p.swing_psum_q, SWING_FRAC + p.step_rel_shift))
@@ -86,22 +87,35 @@ def correct(p, s):
     pushes further into it (conditional integration, the anti-windup). While the fault counter
     holds the correction at zero, the integral is cleared too.
 
-    Scaling and overflow: r_est (< 2**31) times kc_q (< 2**31) is below 2**62 and kp is clamped
-    to kp_max_q <= 2**24. corr and corr_target are in [0, corr_max_q], so |e| < 2**31; kp <= 2**24 keeps kp * e below 2**55 and ki_q <= 2**16 keeps ki * e below 2**47; the
-    sum of the two parts is below 2**40 after the shift and is clamped before it is stored.
+    Ring guard: with the load capacitor there, a step of the correction draws its own charging
+    current and the error hardly sees it; without it (capacitor open) the error sees the whole
+    step and a proportional gain above 1 makes the correction swing rail to rail every period.
+    A step that reverses the last one and outgrows it by an eighth of corr_max turns the
+    proportional part off (kp_off) until the next valid window; the integral part alone is
+    stable without the capacitor.
+
+    Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
+    and |du_prev| + corr_max_q / 8 fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
+    2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
+    ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
+    before it is stored.
     """
     if s.bad_windows >= p.fault_windows:
-        s.corr = s.corr_target = s.integ = 0
+        s.corr = s.corr_target = s.integ = s.du_prev = 0
         return
     s.corr_target = drop_period(p, s)
     e = s.corr_target - s.corr
     integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
-    kp = min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
+    kp = 0 if s.kp_off else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
     u = rshift_round(kp * e, GAIN_FRAC) + integ
     if (u > p.corr_max_q and e > 0) or (u < 0 and e < 0):
         integ = s.integ
     s.integ = sat(integ, 0, p.corr_max_q)
-    s.corr = sat(u, 0, p.corr_max_q)
+    corr = sat(u, 0, p.corr_max_q)
+    du = corr - s.corr
+    if (du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) > abs(s.du_prev) + (p.corr_max_q >> 3):
+        s.kp_off = 1
+    s.corr, s.du_prev = corr, du
 
 
 def step(p, s, adc_v, adc_i):

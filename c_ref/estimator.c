@@ -1,46 +1,95 @@
 /*
- * Window-end estimate and correction update (mirrors algo/estimator.py).
+ * Window-end estimate and perturbation update (mirrors algo/estimator.py).
  *
- * Runs once per measurement window: the real and quadrature parts of V/I,
- * the window's classification, the resistance estimate, the correction
- * target, the perturbation amplitude and one smoothing step of the held
- * correction. The only division of the algorithm is here.
+ * Runs once per measurement window: removes the DC and a linear trend from the
+ * demodulation sums, turns them into the real and quadrature parts of V/I,
+ * classifies the window, and updates the resistance estimate and the
+ * perturbation amplitude. The correction itself moves every period
+ * (ld_correct in step.c). The only divisions of the algorithm are here.
  */
 #include "linedrop.h"
 #include "fixed.h"
 
 /*
- * Scaling and overflow: the current pair is shifted right by sh so its larger
- * magnitude has at most LD_NORM_BITS+1 bits; the voltage pair (int32) takes
- * the same shift, so num and xnum are below 2**46 and den below 2**30.
- * num << r_frac (r_frac <= 16) stays below 2**62, x_max_q * den below 2**61.
- * den > 0 because the larger current magnitude is at least swing_min >= 1.
+ * A demodulation sum less the share a linear trend left in it.
+ * diff is the second half-window's code sum less the first's; the trend's slope is
+ * diff / (W**2 / 4) and it adds slope * sum(tab * t) to the sum, which kt_q holds per unit diff
+ * (algo.params.trend_constants). DC needs no removal: whole periods of the table sum to zero.
+ * Scaling and overflow: |diff| < 2**31 and |kt_q| < 2**31, so the product is below 2**62; the
+ * result is within 2**31 of an int32 sum and is kept in int64.
+ */
+static inline int64_t ld_detrend(int32_t acc, int32_t diff, int32_t kt_q)
+{
+    return (int64_t)acc - ld_rshift_round64((int64_t)diff * kt_q, LD_KT_FRAC);
+}
+
+/*
+ * The voltage pair turned back by the sampling phase (adc_phase_samples), in place.
+ * Scaling and overflow: |vi|, |vq| < 2**33 and |rot_*_q| <= 2**ROT_FRAC, so each product is below
+ * 2**48 and their sum below 2**49 (int64).
+ */
+static inline void ld_rotate(int64_t *vi, int64_t *vq, const ld_params_t *p)
+{
+    int64_t a = *vi, b = *vq;
+    *vi = ld_rshift_round64(a * p->rot_c_q + b * p->rot_s_q, LD_ROT_FRAC);
+    *vq = ld_rshift_round64(b * p->rot_c_q - a * p->rot_s_q, LD_ROT_FRAC);
+}
+
+static inline int64_t ld_abs64(int64_t x)
+{
+    return x < 0 ? -x : x;
+}
+
+/* Bit length of 0 <= u < 2**63, from the 32-bit ld_bit_length. */
+static inline unsigned ld_bit_length64(int64_t u)
+{
+    uint32_t hi = (uint32_t)((uint64_t)u >> 32);
+    return hi != 0u ? 32u + ld_bit_length(hi) : ld_bit_length((uint32_t)u);
+}
+
+/*
+ * Return the status of the finished window and set *r_raw.
  * Order: too little current swing first (a cable open with the current near
  * code 0 stays a fault), then a code at a rail, a load step, and the
- * real-part and quadrature limits.
+ * real-part and quadrature limits. A valid window also leaves its (detrended) current swing for
+ * the load-step detector.
+ * Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
+ * within 2**33 in magnitude. The current pair is shifted right by sh so its larger
+ * magnitude has at most NORM_BITS+1 bits; the voltage pair takes the same shift, so it stays
+ * below 2**33 and num and xnum below 2**49, den below 2**31. num << r_frac
+ * (r_frac <= 16) is below 2**65 only in theory: the voltage pair is then clamped to +-2**31
+ * after the shift (its ratio to the current pair is at most 2**31 / 2**14 V-codes per I-code
+ * before saturating r_raw anyway), which keeps num << r_frac below 2**62 and
+ * x_max_q * den below 2**62: int64 suffices.
+ * den > 0 because the larger current magnitude is at least swing_min >= 1.
+ * The half-window differences fit int32: isum, vsum < 2**30 and isum_h, vsum_h < 2**29.
  */
-static uint8_t ld_classify(const ld_params_t *p, const ld_state_t *s, int32_t *r_raw)
+static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
 {
-    int32_t ai = ld_abs32(s->acc_ii);
-    int32_t aq = ld_abs32(s->acc_iq);
-    int32_t m = ai > aq ? ai : aq;
+    int32_t di = s->isum - 2 * s->isum_h;
+    int32_t dv = s->vsum - 2 * s->vsum_h;
+    int64_t ii0 = ld_detrend(s->acc_ii, di, p->kt_s_q);
+    int64_t iq0 = ld_detrend(s->acc_iq, di, p->kt_c_q);
+    int64_t m = ld_abs64(ii0) > ld_abs64(iq0) ? ld_abs64(ii0) : ld_abs64(iq0);
+    int64_t vi0, vq0, vi, vq, ii, iq, den, num, xnum;
     unsigned bl, sh;
-    int32_t vi, vq, ii, iq;
-    int64_t den, num, xnum, axnum;
 
     *r_raw = 0;
     if (m < p->swing_min) {
         return LD_STATUS_LOW_SWING;
     }
-    bl = ld_bit_length((uint32_t)m);
+    vi0 = ld_detrend(s->acc_vi, dv, p->kt_s_q);
+    vq0 = ld_detrend(s->acc_vq, dv, p->kt_c_q);
+    ld_rotate(&vi0, &vq0, p);
+    bl = ld_bit_length64(m);
     sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
-    vi = ld_rshift_round_safe(s->acc_vi, sh);
-    vq = ld_rshift_round_safe(s->acc_vq, sh);
-    ii = ld_rshift_round_safe(s->acc_ii, sh);
-    iq = ld_rshift_round_safe(s->acc_iq, sh);
-    den = (int64_t)ii * ii + (int64_t)iq * iq;
-    num = (int64_t)vi * ii + (int64_t)vq * iq;
-    xnum = (int64_t)vq * ii - (int64_t)vi * iq;
+    vi = ld_sat_s32(ld_rshift_round64(vi0, sh));
+    vq = ld_sat_s32(ld_rshift_round64(vq0, sh));
+    ii = ld_rshift_round64(ii0, sh);
+    iq = ld_rshift_round64(iq0, sh);
+    den = ii * ii + iq * iq;
+    num = vi * ii + vq * iq;
+    xnum = vq * ii - vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
     if (s->clipped != 0u) {
         return LD_STATUS_CLIPPED;
@@ -54,18 +103,18 @@ static uint8_t ld_classify(const ld_params_t *p, const ld_state_t *s, int32_t *r
     if (*r_raw < 0) {
         return LD_STATUS_R_LOW;
     }
-    axnum = xnum < 0 ? -xnum : xnum;
-    if (axnum * ((int64_t)1 << p->r_frac) > (int64_t)p->x_max_q * den) {
+    if (ld_abs64(xnum) * ((int64_t)1 << p->r_frac) > (int64_t)p->x_max_q * den) {
         return LD_STATUS_REACTIVE;
     }
+    s->swing = ld_sat_s32(m);
     return LD_STATUS_VALID;
 }
 
 /*
  * Window-mean drop r * I in V-ADC codes, Q LD_DROP_FRAC, saturated to int32.
- * Scaling and overflow: r_q (Q r_frac, < 2**31) times isum (< 2**30) is below
- * 2**61; the shift drops r_frac and the window's log2 length, keeping
- * LD_DROP_FRAC fraction bits (r_frac >= LD_DROP_FRAC).
+ * Scaling and overflow: r_q (Q r_frac, < 2**31) times isum (< 2**30) is
+ * below 2**61; the shift removes r_frac fraction bits and the window's
+ * log2 length, keeping LD_DROP_FRAC (r_frac >= LD_DROP_FRAC).
  */
 static int32_t ld_drop_vq(int32_t r_q, int32_t isum, const ld_params_t *p)
 {
@@ -75,14 +124,13 @@ static int32_t ld_drop_vq(int32_t r_q, int32_t isum, const ld_params_t *p)
 
 /*
  * Perturbation amplitude for the next window (DAC codes, before the clamp).
- * A window without enough current swing doubles it, so a cable longer than
- * the floor was sized for still starts; a window with a code at a rail halves
- * it, so the swing backs off the rail; otherwise it is pert_fraction of the
- * estimated drop, falling at most by half a window.
- * Scaling and overflow: pert_amp <= 32767, so doubling fits int32 and halving
- * is a shift of a non-negative value; a drop
- * (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is below
- * 2**62 before its shift.
+ * A window without enough current swing doubles the amplitude, so a cable
+ * longer than the floor was sized for still starts; a window with a code at
+ * a rail halves it, so the swing backs off the rail; otherwise the amplitude
+ * is pert_fraction of the estimated drop, falling at most by half a window.
+ * Scaling and overflow: pert_amp <= 32767, so doubling fits int32 and
+ * halving is a shift of a non-negative value; drop
+ * (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is below 2**62.
  */
 static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8_t status,
                                 int32_t drop_total)
@@ -101,9 +149,10 @@ static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8
 
 /*
  * target_code + the correction rounded to DAC codes: the command less the
- * perturbation, recomputed once per window.
- * Scaling and overflow: corr <= corr_max_q < 2**31, rounded without forming
- * corr + half; the result is at most 2**16 + 2**16 codes.
+ * perturbation, recomputed once per period.
+ * Scaling and overflow: corr is at most corr_max_q < 2**31; after the shift
+ * it is at most 2**16 codes, so the sum fits int32 (rounded without forming
+ * corr + half).
  */
 int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
 {
@@ -111,53 +160,64 @@ int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
 }
 
 /*
- * Scaling and overflow: estimate arithmetic stays in int32 because a valid
- * window's r_raw is clamped to [0, r_max_q] before it moves r_est in [0, r_max_q]; a drop
- * (Q LD_DROP_FRAC, int32) times a gain (Q LD_GAIN_FRAC, int32) is below 2**62
- * before its shift; results are clamped to int32 ranges given in params.
+ * Fold a valid window into the estimate.
+ * The first valid window after init, a reset or a forced zero is taken as it is (valid_run 0:
+ * shift 0); then the gain falls as 1, 1/2, 1/4 ... with the count of valid windows, down to the
+ * steady 2**-r_shift, and from the second window on a step is at most r_step_max.
+ * Scaling and overflow: r_raw and r_est are in [0, r_max_q], so every difference fits int32.
+ */
+static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_raw)
+{
+    unsigned shift = ld_bit_length(s->valid_run);
+    if (shift > p->r_shift) {
+        shift = p->r_shift;
+    }
+    if (s->valid_run == 0u) {
+        s->r_est = r_raw;
+    } else {
+        int32_t d = ld_step_toward(s->r_est, r_raw, shift) - s->r_est;
+        d = ld_sat(d, -p->r_step_max_q, p->r_step_max_q);
+        s->r_est = ld_sat(s->r_est + d, 0, p->r_max_q);
+    }
+    if (s->valid_run < UINT8_MAX) {
+        s->valid_run++;
+    }
+}
+
+/*
+ * Finish a window: classify, update estimate, gain, fault counter and amplitude, clear the sums.
+ * Scaling and overflow: drop (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is
+ * below 2**62 before its shift (ld_next_pert_amp).
  */
 void ld_window_end(const ld_params_t *p, ld_state_t *s)
 {
     int32_t r_raw;
     uint8_t status = ld_classify(p, s, &r_raw);
-    int32_t drop_total, drop_comp, r_comp;
+    int32_t drop_total;
 
     s->r_raw = r_raw;
     if (status == LD_STATUS_VALID) {
-        int32_t target = r_raw > 0 ? r_raw : 0;
-        int32_t d = ld_step_toward(s->r_est, target, p->r_shift) - s->r_est;
-        d = ld_sat(d, -p->r_step_max_q, p->r_step_max_q);
-        s->r_est = ld_sat(s->r_est + d, 0, p->r_max_q);
+        ld_update_estimate(p, s, s->r_raw);
         s->bad_windows = 0u;
+        s->kp_off = 0u;
     } else if (status != LD_STATUS_TRANSIENT && status != LD_STATUS_CLIPPED &&
                s->bad_windows < UINT16_MAX) {
         /* A load step or a code at a rail only holds the estimate; counting it as a fault
          * window would let a step spread over several windows by the load capacitor force
-         * the correction off. */
+         * the correction to zero. */
         s->bad_windows++;
     }
     if (s->bad_windows >= p->fault_windows) {
         s->r_est = 0;
+        s->valid_run = 0u;
+        s->corr = 0;
+        s->corr_target = 0;
+        s->integ = 0;
+        s->du_prev = 0;
     }
     drop_total = ld_drop_vq(s->r_est, s->isum, p);
-    r_comp = s->r_est > p->esr_q ? s->r_est - p->esr_q : 0;
-    drop_comp = ld_drop_vq(r_comp, s->isum, p);
-    if (status == LD_STATUS_VALID || status == LD_STATUS_TRANSIENT ||
-        status == LD_STATUS_CLIPPED) {
-        unsigned sh = LD_GAIN_FRAC + LD_DROP_FRAC - (unsigned)p->corr_frac;
-        int64_t t = ld_rshift_round64((int64_t)drop_comp * p->corr_gain_q, sh);
-        s->corr_target = (int32_t)ld_sat64(t, 0, p->corr_max_q);
-    } else {
-        s->corr_target = 0;
-    }
     s->pert_amp = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
                                     p->pert_min, p->pert_max);
-    if (s->bad_windows >= p->fault_windows) {
-        s->corr = 0;
-    } else {
-        s->corr = ld_step_toward(s->corr, s->corr_target, p->corr_shift);
-    }
-    s->cmd_base = ld_command_base(p, s);
     s->status = status;
     s->windows++;
     s->acc_vi = 0;
@@ -165,6 +225,9 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
     s->acc_ii = 0;
     s->acc_iq = 0;
     s->isum = 0;
+    s->vsum = 0;
+    s->isum_h = 0;
+    s->vsum_h = 0;
     s->count = 0u;
     s->transient = 0u;
     s->clipped = 0u;

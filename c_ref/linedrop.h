@@ -12,13 +12,17 @@
 #include <stddef.h>
 
 #define LD_VERSION_MAJOR 0
-#define LD_VERSION_MINOR 3
+#define LD_VERSION_MINOR 4
 #define LD_VERSION_PATCH 0
 
 #define LD_TAB_MAX 256   /* longest perturbation period, samples */
-#define LD_GAIN_FRAC 16  /* fraction bits of corr_gain_q and pert_gain_q */
+#define LD_GAIN_FRAC 16  /* fraction bits of corr_gain_q, pert_gain_q, ki_q, kc_q, kp_max_q */
 #define LD_DROP_FRAC 8   /* fraction bits of the window drop in V-ADC codes */
 #define LD_NORM_BITS 14  /* current demodulation pair normalised to this many bits */
+#define LD_KT_FRAC 16    /* fraction bits of the trend-removal constants kt_s_q, kt_c_q */
+#define LD_ROT_FRAC 14   /* fraction bits of the voltage phase rotation rot_c_q, rot_s_q */
+#define LD_SWING_FRAC 24 /* fraction bits of swing_psum_q */
+#define LD_KP_MAX_Q ((int32_t)1 << 24) /* ceiling of any proportional gain (256), Q LD_GAIN_FRAC */
 
 /* Window outcome codes (ld_state_t.status). */
 #define LD_STATUS_NONE 0
@@ -44,7 +48,6 @@ typedef struct {
     uint8_t r_frac;          /* fraction bits of resistances (V-code per I-code) */
     uint8_t r_shift;         /* estimate filter shift */
     uint8_t corr_frac;       /* fraction bits of the correction (DAC codes) */
-    uint8_t corr_shift;      /* correction smoothing shift */
     uint8_t step_rel_shift;  /* load-step detector relative threshold shift */
     uint8_t acc_bits;        /* declared accumulator width, checked offline */
     int32_t r_max_q;         /* Q r_frac */
@@ -57,7 +60,15 @@ typedef struct {
     int32_t pert_min;        /* DAC codes */
     int32_t pert_max;        /* DAC codes, at most 32767 */
     int32_t swing_min;       /* current demodulation magnitude, accumulator units */
-    int32_t step_min;        /* period-sum ADC codes */
+    int32_t step_min;        /* load-step detector floor, period-sum ADC codes */
+    int32_t swing_psum_q;    /* current swing (demod. units) -> period-sum codes, Q LD_SWING_FRAC */
+    int32_t ki_q;            /* integral gain per period T_period / tau, Q LD_GAIN_FRAC, <= 2**16 */
+    int32_t kc_q;            /* C / tau per (V-code/I-code), Q LD_GAIN_FRAC: kp = r_est * kc_q */
+    int32_t kp_max_q;        /* proportional gain ceiling, Q LD_GAIN_FRAC (<= LD_KP_MAX_Q) */
+    int32_t kt_s_q;          /* trend leak into sine sums per unit half-sum change, Q LD_KT_FRAC */
+    int32_t kt_c_q;          /* the same for the cosine sums */
+    int32_t rot_c_q;         /* cos of the voltage phase correction, Q LD_ROT_FRAC */
+    int32_t rot_s_q;         /* sin of the voltage phase correction, Q LD_ROT_FRAC */
     int16_t ref_tab[LD_TAB_MAX]; /* one period of sine, Q(tab_bits-1) */
 } ld_params_t;
 
@@ -68,28 +79,38 @@ typedef struct {
     int32_t acc_ii;        /* current x sine */
     int32_t acc_iq;        /* current x cosine */
     int32_t isum;          /* sum of current codes over the window */
+    int32_t vsum;          /* sum of voltage codes over the window */
+    int32_t isum_h;        /* isum at the window's half (trend removal) */
+    int32_t vsum_h;        /* vsum at the window's half */
     int32_t psum;          /* sum of current codes over the current period */
     int32_t psum_prev;     /* sum over the previous whole period */
     int32_t r_est;         /* estimate incl. ESR, Q r_frac V-code per I-code */
     int32_t r_raw;         /* last window's raw real part, saturated */
     int32_t corr;          /* correction applied, Q corr_frac DAC codes */
-    int32_t corr_target;   /* correction the smoothing moves toward */
+    int32_t corr_target;   /* the last period's estimated drop (R-hat - ESR) * I, same format */
+    int32_t integ;         /* integral part of the correction, same format, in [0, corr_max_q] */
+    int32_t du_prev;       /* the last period's change of corr, same format */
     int32_t pert_amp;      /* perturbation amplitude, DAC codes */
-    int32_t cmd_base;      /* target_code + rounded correction, DAC codes (set per window) */
+    int32_t cmd_base;      /* target_code + rounded correction, DAC codes (set per period) */
+    int32_t swing;         /* last window's current swing, demodulation units (step detector) */
     uint32_t windows;      /* windows finished (wraps) */
     uint16_t phase;        /* sample index within the period */
     uint16_t count;        /* sample index within the window */
-    uint16_t bad_windows;  /* consecutive windows without a valid estimate */
+    uint16_t bad_windows;  /* consecutive windows without a valid estimate (saturates) */
     uint16_t cmd;          /* last command, DAC code */
     uint8_t have_prev;     /* psum_prev holds a whole period */
     uint8_t transient;     /* a load step was seen in this window */
     uint8_t status;        /* outcome of the last window, LD_STATUS_* */
     uint8_t clipped;       /* a code sat at a rail in this window (v or i at adc_max, i at 0) */
+    uint8_t valid_run;     /* valid windows since init, reset or a forced zero (saturates) */
+    uint8_t kp_off;        /* proportional part off (the correction rang) until a valid window */
 } ld_state_t;
 
 void ld_init(const ld_params_t *p, ld_state_t *s);
 void ld_reset(const ld_params_t *p, ld_state_t *s);
 uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i);
+/* One period of the correction (called by ld_step at each period end, before a window end). */
+void ld_correct(const ld_params_t *p, ld_state_t *s);
 void ld_window_end(const ld_params_t *p, ld_state_t *s);
 int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s);
 

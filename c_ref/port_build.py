@@ -26,8 +26,8 @@ from c_ref.build_ffi import HERE, cdef_text
 STRICT = ("-std=c99", "-Wall", "-Wextra", "-Wconversion", "-Wsign-conversion", "-pedantic", "-Werror")
 STRUCTS = ("ld_params_t", "ld_state_t")
 API = ("ld_init", "ld_reset", "ld_step")
-#: Fields of the reference's structs a port may leave out (padding made explicit); none now
-#: that ``clipped`` fills the byte ld_state_t used to reserve.
+#: Fields of the reference's structs a port may leave out (padding made explicit); none: the
+#: model's State and Params have no padding fields.
 OPTIONAL_FIELDS = set()
 #: Compiler output lines shown after the first error.
 EXCERPT_LINES = 6

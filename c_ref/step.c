@@ -2,8 +2,9 @@
  * Per-sample step, init and reset (mirrors algo/step.py).
  *
  * One call per ADC sample: demodulate the voltage and current codes against
- * the sine and cosine references, watch for load steps at each period end,
- * finish the window when it is full, and return the next command code.
+ * the sine and cosine references; at each period end watch for load steps and
+ * move the correction one step of its proportional-plus-integral law; finish
+ * the window when it is full; return the next command code.
  * Integer-only, no division, no globals.
  */
 #include <string.h>
@@ -12,9 +13,9 @@
 
 /*
  * Command code for the next sample: the per-window base plus the perturbation.
- * Scaling and overflow: pert_amp (<= 32767) times a table entry (|.| < 2**15)
- * is below 2**30; cmd_base is at most 2**17 codes; the int32 sum is clamped
- * to [cmd_min, cmd_max].
+ * Scaling and overflow: pert_amp (<= 2**15) times a table entry (< 2**15)
+ * is below 2**30; cmd_base is at most 2**16 + 2**16 codes; the int32 sum is
+ * clamped to [cmd_min, cmd_max].
  */
 static inline uint16_t ld_command(const ld_params_t *p, const ld_state_t *s)
 {
@@ -23,14 +24,18 @@ static inline uint16_t ld_command(const ld_params_t *p, const ld_state_t *s)
     return (uint16_t)ld_sat(s->cmd_base + pert, p->cmd_min, p->cmd_max);
 }
 
+/* A fresh state: no estimate, no correction, perturbation at its floor. */
 void ld_init(const ld_params_t *p, ld_state_t *s)
 {
     memset(s, 0, sizeof *s);
     ld_reset(p, s);
 }
 
-/* Restart measurement and drop the correction; keep the resistance estimate
- * as the starting point for the next valid window. */
+/*
+ * Restart measurement and drop the correction; keep the resistance estimate.
+ * The kept estimate is for reporting only: the correction stays at zero until a valid window
+ * after the reset, and that window replaces the estimate outright (valid_run is 0).
+ */
 void ld_reset(const ld_params_t *p, ld_state_t *s)
 {
     int32_t r_est = s->r_est;
@@ -45,32 +50,116 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
 }
 
 /*
- * Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit
- * codes), so their difference and the shifted threshold fit int32.
+ * Flag a load step when consecutive whole-period current sums differ by more than a share
+ * of the current swing.
+ * Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit codes), so their
+ * difference fits int32; swing (< 2**31) times swing_psum_q (int32, checked in
+ * algo.params.derive) is below 2**62. The threshold is kept in int64: after the shift it can
+ * still exceed int32.
  */
 static void ld_period_end(const ld_params_t *p, ld_state_t *s)
 {
     if (s->have_prev != 0u) {
-        int32_t thr = s->psum_prev >> p->step_rel_shift;
+        int64_t thr = ld_rshift_round64((int64_t)s->swing * p->swing_psum_q,
+                                        LD_SWING_FRAC + (unsigned)p->step_rel_shift);
         if (thr < p->step_min) {
             thr = p->step_min;
         }
-        if (ld_abs32(s->psum - s->psum_prev) > thr) {
+        if ((int64_t)ld_abs32(s->psum - s->psum_prev) > thr) {
             s->transient = 1u;
         }
     }
     s->psum_prev = s->psum;
     s->have_prev = 1u;
-    s->psum = 0;
 }
 
 /*
+ * The period's estimated drop (R-hat - ESR) * mean current in Q corr_frac DAC codes: what the
+ * correction tracks. Not clamped to corr_max_q: with the correction at its ceiling the error
+ * must still read the load voltage's shortfall.
+ * Scaling and overflow: r_est - esr_q is in [0, 2**31) and psum below 2**24, so their product is
+ * below 2**55; after the shift the V-code drop (Q LD_DROP_FRAC) is saturated to int32, and times
+ * corr_gain_q (int32) it is below 2**62.
+ */
+static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
+{
+    int32_t r_c = s->r_est > p->esr_q ? s->r_est - p->esr_q : 0;
+    unsigned sh = (unsigned)p->r_frac + p->period_log2 - LD_DROP_FRAC;
+    int32_t drop = ld_sat_s32(ld_rshift_round64((int64_t)r_c * s->psum, sh));
+    int64_t d = ld_rshift_round64((int64_t)drop * p->corr_gain_q,
+                                  LD_GAIN_FRAC + LD_DROP_FRAC - (unsigned)p->corr_frac);
+    return (int32_t)ld_sat64(d, 0, INT32_MAX);
+}
+
+/*
+ * One period of the correction law: proportional-plus-integral on the error e = drop - corr.
+ * With V-hat = (target + corr) - (R-hat - ESR) * I the supply's reading of the load voltage,
+ * e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
+ * ki = T_period / tau: the zero at R-hat * C cancels the cable-capacitor lag, the loop closes
+ * with time constant tau, and no steady error is left. The output is clamped to
+ * [0, corr_max_q]; the integral does not move while the clamp holds and the error pushes
+ * further into it (conditional integration, the anti-windup). While the fault counter holds
+ * the correction at zero, the integral is cleared too.
+ * Ring guard: with the load capacitor there, a step of the correction draws its own charging
+ * current and the error hardly sees it; without it (capacitor open) the error sees the whole
+ * step and a proportional gain above 1 makes the correction swing rail to rail every period.
+ * A step that reverses the last one and outgrows it by an eighth of corr_max turns the
+ * proportional part off (kp_off) until the next valid window; the integral part alone is
+ * stable without the capacitor.
+ * Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
+ * and |du_prev| + corr_max_q / 8 fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
+ * 2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
+ * ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
+ * before it is stored. (The growth test is written |du| - |du_prev| > corr_max_q / 8, the
+ * same integers, so it never forms the sum.)
+ */
+void ld_correct(const ld_params_t *p, ld_state_t *s)
+{
+    int32_t e, corr, du, adu, adu_prev;
+    int64_t integ, kp, u;
+
+    if (s->bad_windows >= p->fault_windows) {
+        s->corr = 0;
+        s->corr_target = 0;
+        s->integ = 0;
+        s->du_prev = 0;
+        return;
+    }
+    s->corr_target = ld_drop_period(p, s);
+    e = s->corr_target - s->corr;
+    integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
+    kp = 0;
+    if (s->kp_off == 0u) {
+        kp = ld_rshift_round64((int64_t)s->r_est * p->kc_q, p->r_frac);
+        if (kp > p->kp_max_q) {
+            kp = p->kp_max_q;
+        }
+    }
+    u = ld_rshift_round64(kp * e, LD_GAIN_FRAC) + integ;
+    if ((u > p->corr_max_q && e > 0) || (u < 0 && e < 0)) {
+        integ = s->integ;
+    }
+    s->integ = (int32_t)ld_sat64(integ, 0, p->corr_max_q);
+    corr = (int32_t)ld_sat64(u, 0, p->corr_max_q);
+    du = corr - s->corr;
+    adu = ld_abs32(du);
+    adu_prev = ld_abs32(s->du_prev);
+    if (((du > 0 && s->du_prev < 0) || (du < 0 && s->du_prev > 0)) &&
+        adu - adu_prev > (p->corr_max_q >> 3)) {
+        s->kp_off = 1u;
+    }
+    s->corr = corr;
+    s->du_prev = du;
+}
+
+/*
+ * Take one pair of ADC codes, return the command code for the next sample.
  * Scaling and overflow: codes are clamped to [0, adc_max] (< 2**16) and a
- * table entry is below 2**15 in magnitude, so each product plus its rounding
- * half fits int32 (checked offline); demod_shift was chosen offline so a
- * window of shifted products fits acc_bits <= 32. isum < 2**14 * 2**16.
- * The rail test compares clamped codes only.
- * A window ends on a period end, so its check sits inside the period's.
+ * table entry is below 2**15 in magnitude, so each product fits int32; the
+ * demodulation shift was chosen offline (algo.params.demod_shift_for) so a
+ * window of shifted products fits acc_bits <= 32. isum and vsum are below
+ * 2**14 * 2**16 = 2**30. The rail test compares clamped codes only.
+ * A window ends on a period end, so its checks sit inside the period's.
  */
 uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
 {
@@ -90,14 +179,22 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
     s->acc_ii += (i * sn + half) >> ds;
     s->acc_iq += (i * cs + half) >> ds;
     s->isum += i;
+    s->vsum += v;
     s->psum += i;
     s->phase = (uint16_t)((s->phase + 1u) & n);
     s->count++;
     if (s->phase == 0u) {
         ld_period_end(p, s);
+        ld_correct(p, s);
+        s->psum = 0;
+        if (s->count == (uint16_t)(1u << p->window_log2 >> 1)) {
+            s->isum_h = s->isum;
+            s->vsum_h = s->vsum;
+        }
         if (s->count == (uint16_t)(1u << p->window_log2)) {
             ld_window_end(p, s);
         }
+        s->cmd_base = ld_command_base(p, s);
     }
     s->cmd = ld_command(p, s);
     return s->cmd;

@@ -3,7 +3,7 @@
 Format ``LDTV 1`` (one record per line; ``#`` comments and blank lines ignored)::
 
     LDTV 1
-    p <the 26 scalar ld_params_t fields, in declaration order>
+    p <the 33 scalar ld_params_t fields, in declaration order>
     t <ref_tab entries, 16 per line, 256 in all>
     s <adc_v> <adc_i>        one ld_step
     r                        ld_reset
@@ -22,7 +22,7 @@ SCALAR_PARAMS = PARAM_FIELDS[:-1]
 TAB_PER_LINE = 16
 OUTPUT_FIELDS = ["command"] + STATE_FIELDS
 
-if PARAM_FIELDS[-1] != "ref_tab" or len(SCALAR_PARAMS) != 26:
+if PARAM_FIELDS[-1] != "ref_tab" or len(SCALAR_PARAMS) != 33:
     raise ImportError("ld_params_t layout changed: update c_ref/tools/replay_main.c and textvec")
 
 

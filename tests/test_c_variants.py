@@ -89,7 +89,7 @@ def test_every_build_variant_matches_model_with_the_longest_windows(driver, case
 
 @pytest.mark.parametrize("text, complaint", [
     ("p 1 2 3\n", "expected header"),
-    ("LDTV 1\np 1 2 3\n", "needs 26 values"),
+    ("LDTV 1\np 1 2 3\n", "needs 33 values"),
     ("LDTV 1\ns 1 2\n", "complete parameter block"),
     ("LDTV 1\nt 1 2\n", "'t' before 'p'"),
     ("LDTV 1\np" + " 0" * 25 + " 4294967296\n", "out-of-range"),

@@ -123,16 +123,16 @@ OWN_ALGO = "[algorithm]\nperiod_samples = 32\n"     # 1 kHz at 32 kHz: analysed 
 @pytest.mark.parametrize("kw,phrase", [
     (dict(c=0.5e-3, algorithm=OWN_ALGO), "not an AC short"),
     (dict(c=0.1e-3, algorithm=OWN_ALGO), "R*C corner"),
-    (dict(bw=3000.0, algorithm=OWN_ALGO), "loop bandwidth"),
+    (dict(bw=500.0, algorithm=OWN_ALGO), "loop bandwidth"),
     (dict(max_v=25.0), "headroom"),
     (dict(target=48.0, max_v=65.0, r=4.0), "extra-low-voltage"),
     (dict(kind="constant_power", key="power_w", value=60.0), "constant-power"),
     (dict(esr=1.0), "capacitor's ESR"),
     (dict(l=200e-6, algorithm=OWN_ALGO), "inductive reactance"),
-    (dict(c=4.7e-3, gain_error=0.3, algorithm="[algorithm]\nperiod_samples = 32\nperiods_per_window = 1\n"
-          "smoothing_shift = 0\n"), "unstable"),
-    (dict(c=22e-3, algorithm="[algorithm]\nperiod_samples = 32\nperiods_per_window = 1\n"
-          "smoothing_shift = 0\n"), "little margin"),
+    (dict(c=22e-3, gain_error=0.3, algorithm="[algorithm]\nperiod_samples = 32\nloop_tau_ms = 1.0\n"
+          "capacitance_f = 0.022\nkp_max = 64.0\n"), "unstable"),
+    (dict(c=22e-3, algorithm="[algorithm]\nperiod_samples = 32\nloop_tau_ms = 4.0\n"
+          "capacitance_f = 0.022\nkp_max = 64.0\n"), "little margin"),
 ])
 def test_each_warning_fires_on_a_plant_built_for_it(tmp_path, kw, phrase):
     """Each plain-language warning fires on an invented plant that breaks its rule.

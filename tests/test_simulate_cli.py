@@ -72,7 +72,7 @@ def test_backends_model_and_c_give_the_same_closed_loop(scenario, capsys):
 @pytest.mark.parametrize("patch, needle", [
     (("current_a = 1.0", "current_a = -1.0"), "load.current_a"),
     (("[run]", "[run]\nbogus = 1"), "run.bogus"),
-    (("seed = 5", "seed = 5\n[algorithm]\nsmoothing_shift = 40"), "algorithm.smoothing_shift"),
+    (("seed = 5", "seed = 5\n[algorithm]\nloop_tau_ms = -1"), "algorithm.loop_tau_ms"),
     (("seed = 5", "seed = 5\n[algorithm]\ntarget_v = 3.0"), "algorithm.target_v"),
 ])
 def test_bad_scenario_exits_2_with_one_line_naming_the_key(tmp_path, capsys, patch, needle):

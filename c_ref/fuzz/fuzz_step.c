@@ -52,18 +52,24 @@ static void ld_fuzz_check(const ld_params_t *p, const ld_state_t *s, uint16_t cm
     ld_fuzz_require(ld_fuzz_within(s->acc_vi, acc_lim) && ld_fuzz_within(s->acc_vq, acc_lim));
     ld_fuzz_require(ld_fuzz_within(s->acc_ii, acc_lim) && ld_fuzz_within(s->acc_iq, acc_lim));
     ld_fuzz_require(s->isum >= 0 && s->isum <= (int64_t)p->adc_max * window);
+    ld_fuzz_require(s->vsum >= 0 && s->vsum <= (int64_t)p->adc_max * window);
+    ld_fuzz_require(s->isum_h >= 0 && s->isum_h <= s->isum);
+    ld_fuzz_require(s->vsum_h >= 0 && s->vsum_h <= s->vsum);
     ld_fuzz_require(s->psum >= 0 && s->psum <= (int64_t)p->adc_max * period);
     ld_fuzz_require(s->psum_prev >= 0 && s->psum_prev <= (int64_t)p->adc_max * period);
     ld_fuzz_require(s->r_est >= 0 && s->r_est <= p->r_max_q);
     ld_fuzz_require(s->corr >= 0 && s->corr <= p->corr_max_q);
-    ld_fuzz_require(s->corr_target >= 0 && s->corr_target <= p->corr_max_q);
+    ld_fuzz_require(s->integ >= 0 && s->integ <= p->corr_max_q);
+    ld_fuzz_require(s->corr_target >= 0);   /* the drop itself: not clamped to corr_max_q */
+    ld_fuzz_require(s->swing >= 0);
     ld_fuzz_require(s->pert_amp >= p->pert_min && s->pert_amp <= p->pert_max);
     ld_fuzz_require(s->cmd_base >= p->target_code &&
                     s->cmd_base <= p->target_code + (p->corr_max_q >> p->corr_frac) + 1);
     ld_fuzz_require(s->phase < period && s->count < window);
     ld_fuzz_require(s->status <= LD_STATUS_R_LOW);
     ld_fuzz_require(s->have_prev <= 1u && s->transient <= 1u && s->clipped <= 1u);
-    ld_fuzz_require(s->bad_windows < p->fault_windows || s->corr == 0);
+    ld_fuzz_require(s->bad_windows < p->fault_windows ||
+                    (s->corr == 0 && s->integ == 0 && s->corr_target == 0 && s->valid_run == 0u));
 }
 
 static uint16_t ld_fuzz_walk(uint16_t x, uint8_t b)

@@ -33,19 +33,24 @@ GRID = {
     "r_max_ohm": [0.5, 10.0, 100.0],
     "x_max_ohm": [0.5, 10.0, 100.0],
     "r_filter_shift": [0, 2, 8],
-    "smoothing_shift": [0, 2, 8],
-    "step_rel_shift": [1, 3, 8],
+    "step_rel_shift": [0, 1, 8],
     "fault_windows": [1, 6, 1000],
     "compensation": [0.0, 0.98, 1.0],
     "pert_fraction": [0.01, 0.1, 0.5],
     "swing_min_a": [0.0, 0.01, 1.0],
     "i_full_scale_a": [0.1, 5.0, 100.0],
+    "loop_tau_ms": [0.0, 0.125, 4.0, 10000.0],
+    "capacitance_f": [0.0, 1e-3, 10.0],
+    "kp_max": [0.0, 32.0, 256.0],
+    "adc_phase_samples": [-2.0, 0.0, 0.7],
 }
-# The shipped defaults and the widest and narrowest word lengths always appear.
+# The shipped defaults and the widest and narrowest word lengths always appear (the widest with
+# the shortest loop_tau_ms its 256-sample period allows, one period: the largest ki_q).
 FIXED = [
     {},
     {"adc_bits": 16, "table_bits": 16, "acc_bits": 32, "period_samples": 256,
-     "periods_per_window": 64, "r_frac_bits": 16, "corr_frac_bits": 8, "dac_bits": 16},
+     "periods_per_window": 64, "r_frac_bits": 16, "corr_frac_bits": 8, "dac_bits": 16,
+     "loop_tau_ms": 8.0},
     {"adc_bits": 8, "table_bits": 8, "acc_bits": 20, "period_samples": 4,
      "periods_per_window": 1, "r_frac_bits": 8, "corr_frac_bits": 0, "dac_bits": 8},
 ]

@@ -4,7 +4,7 @@
  * ld_state_t field after each one. Format (c_ref/textvec.py writes it):
  *
  *   LDTV 1                      first non-comment line
- *   p <26 integers>             ld_params_t fields before ref_tab, in order
+ *   p <33 integers>             ld_params_t fields before ref_tab, in order
  *   t <integers>                ref_tab entries, in order; 256 in all
  *   s <adc_v> <adc_i>           one sample through ld_step
  *   r                           ld_reset
@@ -13,7 +13,7 @@
  * Lines starting with '#' and blank lines are ignored. ld_init runs before
  * the first operation after a complete parameter block; a new 'p' line starts
  * a new block. Each operation prints one line: the command (ld_step's return
- * value, or the state's cmd field for r and i) and then the 22 ld_state_t
+ * value, or the state's cmd field for r and i) and then the 30 ld_state_t
  * fields in declaration order, as decimal integers separated by one space.
  *
  * Usage: replay [file]   (reads stdin without a file). Uses only stdio, so it
@@ -27,21 +27,25 @@
 #include "linedrop.h"
 
 #define LD_TV_LINE_MAX 4096
-#define LD_TV_NPARAMS 26
+#define LD_TV_NPARAMS 33
 
 /* Smallest and largest value of each scalar ld_params_t field, in order. */
 static const long ld_tv_lo[LD_TV_NPARAMS] = {
     0, 0, 0, 0, 0,                 /* uint16_t adc_max .. fault_windows */
-    0, 0, 0, 0, 0, 0, 0, 0, 0, 0,  /* uint8_t period_log2 .. acc_bits */
+    0, 0, 0, 0, 0, 0, 0, 0, 0,     /* uint8_t period_log2 .. acc_bits */
     INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN,
-    INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN   /* int32_t r_max_q .. step_min */
+    INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN,  /* int32_t r_max_q .. step_min */
+    INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN,             /* swing_psum_q .. kp_max_q */
+    INT32_MIN, INT32_MIN, INT32_MIN, INT32_MIN              /* kt_s_q .. rot_s_q */
 };
 static const long ld_tv_hi[LD_TV_NPARAMS] = {
     UINT16_MAX, UINT16_MAX, UINT16_MAX, UINT16_MAX, UINT16_MAX,
     UINT8_MAX, UINT8_MAX, UINT8_MAX, UINT8_MAX, UINT8_MAX,
-    UINT8_MAX, UINT8_MAX, UINT8_MAX, UINT8_MAX, UINT8_MAX,
+    UINT8_MAX, UINT8_MAX, UINT8_MAX, UINT8_MAX,
     INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX,
-    INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX
+    INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX,
+    INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX,
+    INT32_MAX, INT32_MAX, INT32_MAX, INT32_MAX
 };
 
 static char ld_tv_line[LD_TV_LINE_MAX];
@@ -112,33 +116,42 @@ static void ld_tv_set_params(void)
     ld_tv_p.r_frac = (uint8_t)v[9];
     ld_tv_p.r_shift = (uint8_t)v[10];
     ld_tv_p.corr_frac = (uint8_t)v[11];
-    ld_tv_p.corr_shift = (uint8_t)v[12];
-    ld_tv_p.step_rel_shift = (uint8_t)v[13];
-    ld_tv_p.acc_bits = (uint8_t)v[14];
-    ld_tv_p.r_max_q = (int32_t)v[15];
-    ld_tv_p.x_max_q = (int32_t)v[16];
-    ld_tv_p.esr_q = (int32_t)v[17];
-    ld_tv_p.r_step_max_q = (int32_t)v[18];
-    ld_tv_p.corr_gain_q = (int32_t)v[19];
-    ld_tv_p.pert_gain_q = (int32_t)v[20];
-    ld_tv_p.corr_max_q = (int32_t)v[21];
-    ld_tv_p.pert_min = (int32_t)v[22];
-    ld_tv_p.pert_max = (int32_t)v[23];
-    ld_tv_p.swing_min = (int32_t)v[24];
-    ld_tv_p.step_min = (int32_t)v[25];
+    ld_tv_p.step_rel_shift = (uint8_t)v[12];
+    ld_tv_p.acc_bits = (uint8_t)v[13];
+    ld_tv_p.r_max_q = (int32_t)v[14];
+    ld_tv_p.x_max_q = (int32_t)v[15];
+    ld_tv_p.esr_q = (int32_t)v[16];
+    ld_tv_p.r_step_max_q = (int32_t)v[17];
+    ld_tv_p.corr_gain_q = (int32_t)v[18];
+    ld_tv_p.pert_gain_q = (int32_t)v[19];
+    ld_tv_p.corr_max_q = (int32_t)v[20];
+    ld_tv_p.pert_min = (int32_t)v[21];
+    ld_tv_p.pert_max = (int32_t)v[22];
+    ld_tv_p.swing_min = (int32_t)v[23];
+    ld_tv_p.step_min = (int32_t)v[24];
+    ld_tv_p.swing_psum_q = (int32_t)v[25];
+    ld_tv_p.ki_q = (int32_t)v[26];
+    ld_tv_p.kc_q = (int32_t)v[27];
+    ld_tv_p.kp_max_q = (int32_t)v[28];
+    ld_tv_p.kt_s_q = (int32_t)v[29];
+    ld_tv_p.kt_c_q = (int32_t)v[30];
+    ld_tv_p.rot_c_q = (int32_t)v[31];
+    ld_tv_p.rot_s_q = (int32_t)v[32];
 }
 
 static void ld_tv_print(uint16_t cmd)
 {
     const ld_state_t *s = &ld_tv_s;
-    printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu %u %u %u %u %u %u %u %u\n",
+    printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu "
+           "%u %u %u %u %u %u %u %u %u %u\n",
            (unsigned)cmd, (long)s->acc_vi, (long)s->acc_vq, (long)s->acc_ii, (long)s->acc_iq,
-           (long)s->isum, (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
-           (long)s->corr, (long)s->corr_target, (long)s->pert_amp, (long)s->cmd_base,
-           (unsigned long)s->windows,
+           (long)s->isum, (long)s->vsum, (long)s->isum_h, (long)s->vsum_h,
+           (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
+           (long)s->corr, (long)s->corr_target, (long)s->integ, (long)s->du_prev,
+           (long)s->pert_amp, (long)s->cmd_base, (long)s->swing, (unsigned long)s->windows,
            (unsigned)s->phase, (unsigned)s->count, (unsigned)s->bad_windows, (unsigned)s->cmd,
            (unsigned)s->have_prev, (unsigned)s->transient, (unsigned)s->status,
-           (unsigned)s->clipped);
+           (unsigned)s->clipped, (unsigned)s->valid_run, (unsigned)s->kp_off);
 }
 
 int main(int argc, char **argv)
@@ -171,7 +184,7 @@ int main(int argc, char **argv)
         switch (ld_tv_line[0]) {
         case 'p':
             if (ld_tv_ints(rest, ld_tv_pv, LD_TV_NPARAMS, INT32_MIN, INT32_MAX) != LD_TV_NPARAMS) {
-                ld_tv_fail("a 'p' line needs 26 values");
+                ld_tv_fail("a 'p' line needs 33 values");
             }
             ld_tv_set_params();
             have_params = 1;

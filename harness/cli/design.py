@@ -8,10 +8,12 @@ r_cable_ohm, r_cable_range_ohm [min, max], temperature_range_c [start, end],
 loads [{value, current_a, drop_v, load_v}] (uncompensated, hottest cable),
 uncompensated_drop_v, perturbation_hz, period_samples, periods_per_window, window_s,
 sample_rate_hz, recommended_sample_rate_hz, rc_corner_hz, capacitor_reactance_ohm,
-min_capacitance_f, compensation, smoothing_shift, r_max_ohm, corr_max_v, headroom_v,
+min_capacitance_f, compensation, loop_tau_ms (closed-loop time constant of the correction),
+capacitance_f (the C its proportional gain assumes), adc_phase_samples, r_max_ohm, corr_max_v,
+headroom_v,
 correction_needed_v, pert_min_v, pert_max_v, word_lengths {adc_bits, table_bits, acc_bits,
-r_frac_bits, corr_frac_bits}, stability_margin (1 - spectral radius of the window-rate loop),
-spectral_radius, gain_margin (factor on the loop gain to instability), convergence_windows,
+r_frac_bits, corr_frac_bits}, stability_margin (1 - spectral radius of the period-rate loop),
+spectral_radius, gain_margin (factor on the estimate to instability), convergence_windows,
 convergence_s, dominant_poles [[re, im]], predicted_load_error_v (steady error plus
 quantisation bound), load_error_steady_v, quantisation_error_v, ripple_load_v_pp,
 current_swing_a, warnings [str], configuration ("scenario" or "recommended"), algorithm
@@ -90,8 +92,10 @@ def report_text(rep):
             f"{rep['rc_corner_hz']:.3g} Hz; capacitor reactance {rep['capacitor_reactance_ohm']:.3g} ohm; "
             f"minimum capacitance {rep['min_capacitance_f']:.3g} F",
             f"  amplitude floor {rep['pert_min_v']:.3g} V, ceiling {rep['pert_max_v']:.3g} V (peak)",
-            f"Compensation {rep['compensation']:g}, smoothing_shift {rep['smoothing_shift']}, "
-            f"r_max {rep['r_max_ohm']:.3g} ohm, correction max {rep['corr_max_v']:.3g} V "
+            f"Compensation {rep['compensation']:g}, loop time constant {rep['loop_tau_ms']:.3g} ms "
+            f"(zero at R*C with C = {rep['capacitance_f']:.3g} F), ADC phase "
+            f"{rep['adc_phase_samples']:.3g} samples,",
+            f"  r_max {rep['r_max_ohm']:.3g} ohm, correction max {rep['corr_max_v']:.3g} V "
             f"(needs {rep['correction_needed_v']:.3g} V, headroom {rep['headroom_v']:.3g} V)",
             f"Word lengths: ADC {w['adc_bits']}, table {w['table_bits']}, accumulator {w['acc_bits']}, "
             f"r_frac {w['r_frac_bits']}, corr_frac {w['corr_frac_bits']} bits",

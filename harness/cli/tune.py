@@ -4,9 +4,9 @@ Runs the fixed-point model and the float ideal in closed loop on the same scenar
 seed), searches the knobs greedily (harness.tune.search) and writes ``tune.csv`` (every evaluated
 configuration), ``error_vs_bits.png`` and ``pareto.png`` into ``--out``. Cost is the weighted sum
 of the word lengths: 2 x adc_bits (two converter channels) + dac_bits + table_bits + acc_bits +
-r_frac_bits + corr_frac_bits. The filter shifts (r_filter_shift, smoothing_shift) are swept for
-the plots but weigh nothing: they cost no memory or cycles, and a smaller smoothing shift would
-only trade the correction loop's damping for speed, so they move only where that lowers the error.
+r_frac_bits + corr_frac_bits. The estimate's filter shift (r_filter_shift) is swept for the
+plots but weighs nothing: it costs no memory or cycles, so it moves only where that lowers the
+error.
 
 A configuration meets the spec when, on every scenario, the fixed-point model's load error
 (target minus the mean load voltage over the last 20 % of the run) is at most ``--max-error-mv``,

@@ -3,19 +3,29 @@
 Rules (each a plain sizing rule; the ones without a published source are marked as such):
 
 * Perturbation frequency f: the capacitor must be an AC short, 1/(2 pi f C) <= R_min / AC_SHORT
-  (the brief's sizing rule; the factor 10 is common practice, no published source), which also
-  puts f a decade above the R*C corner 1/(2 pi R C); and f <= supply bandwidth / BW_FACTOR
-  (same). Within that band f is the geometric middle, as fs / 2**n with 16 <= 2**n <= 256.
-* Window: the fewest periods (4 .. 64) whose length is at least R*C / TAU_PER_WINDOW; the loop
-  model shows the margin falling as R*C outgrows the window (harness.design.loop_model).
-* Gains: the largest compensation in COMPENSATIONS and the smoothing in SMOOTHINGS (fastest
-  convergence) whose worst-case gain margin over loads and temperatures is at least GM_TARGET.
+  (the method's sizing rule; the factor 10 is common practice, no published source); at least
+  MIN_PERIOD samples per period and at most the supply bandwidth (above it the swing only
+  shrinks); the cable's wL at most R_min / L_SHORT. Within that band the period (a power of two,
+  MIN_PERIOD .. 256) whose |X(f)| = |wL - 1/(wC)| is smallest: the in-phase part is then the
+  best-conditioned projection, and a short period also lets the correction move more often.
+* Window: PERIODS_PER_WINDOW periods (the estimate is measured slowly; the correction does not
+  wait for it).
+* Correction law (algo.step.correct): the zero at R*C (capacitance_f = the stated C), and the
+  smallest closed-loop time constant tau, from TAU_PERIODS periods and 3 supply time constants
+  up in steps of TAU_STEP, whose worst-case gain margin (factor on the estimate the loop
+  tolerates, harness.design.loop_model) over loads and temperatures is at least GM_TARGET, and
+  which stays stable for an estimate down to LOW_TARGET of the true one; the first is the
+  robustness rule tau >~ 2 (GM - 1) R C of the right-half-plane zero a high estimate brings. compensation 1 (the law leaves no steady error), kp_max KP_HEADROOM times the
+  nominal gain.
+* The ADC's phase (adc_phase_samples): the lead of the sampled supply voltage over the voltage
+  that drives the cable, from the supply's first-order inner loop sampled at the end of each
+  DAC hold (half a sample for an ideal source, less for a slower one).
 * Perturbation amplitude: pert_fraction of R*I, floor a current swing of FLOOR_LSB current-ADC
   LSBs, ceiling the smaller of the 10 % rule at the largest load and a load ripple of
   RIPPLE_FRACTION of target_v (peak).
 * Word lengths: ADC bits so the floor swing is FLOOR_LSB codes; r_frac so one LSB of the estimate
-  is at most R_RESOLUTION of R_min; corr_frac = smoothing_shift + 2 so the smoothing step does not
-  stall above a quarter DAC code; 16-bit table and 32-bit accumulators (the model's widest).
+  is at most R_RESOLUTION of R_min; corr_frac CORR_FRAC; 16-bit table and 32-bit accumulators
+  (the model's widest).
 """
 import math
 from dataclasses import replace
@@ -27,14 +37,18 @@ from harness.design.loop_model import analyse
 from harness.design.operating_point import load_values, operating_point
 
 AC_SHORT = 10.0          # capacitor reactance at f at most R_min / this
-BW_FACTOR = 10.0         # f at most supply bandwidth / this
+MIN_PERIOD = 8           # samples per perturbation period, at least (common practice, no published source)
+PERIODS_PER_WINDOW = 8   # periods per estimate window (same)
+TAU_PERIODS = 2.0        # closed-loop time constant at least this many periods (same)
+TAU_STEP = 1.25          # tau search step
+TAU_MAX_S = 10.0         # give up above this
+KP_HEADROOM = 2.0        # kp_max = this * the nominal kp (R_max + ESR) * C / tau
+CORR_FRAC = 4            # fraction bits of the correction
 L_SHORT = 3.0            # cable reactance wL at f at most R_min / this: the sampled current of an
                          # inductive cable lags the held command and biases Re(V/I) (seen in the
                          # proof suite; common practice, no published source)
-TAU_PER_WINDOW = 4.0     # window at least R*C / this
-GM_TARGET = 1.25         # room for 25 % loop-gain error (sense gains, ESR, load share of the estimate)
-COMPENSATIONS = (0.98, 0.95, 0.9, 0.85, 0.8, 0.7, 0.6, 0.5)
-SMOOTHINGS = (1, 2, 3)
+GM_TARGET = 1.25         # room for a 25 % high estimate (sense gains, ESR, load share of the estimate)
+LOW_TARGET = 0.5         # and stable for an estimate down to half (a first window read low)
 FLOOR_LSB = 16.0         # smallest current swing, current-ADC LSBs (common practice, no published source)
 RIPPLE_FRACTION = 0.005  # largest perturbation ripple at the load, peak, share of target_v (same)
 V_FLOOR_LSB = 10.0       # smallest perturbation, voltage-ADC LSBs: with little ADC noise to
@@ -101,27 +115,58 @@ def pick_frequency(scenario, fs, r_min):
     """(frequency Hz, period samples, sample rate Hz) for the perturbation.
 
     The band is [f_lo, f_hi]: f_lo puts the capacitor's reactance at R_min / AC_SHORT, f_hi is
-    the supply bandwidth / BW_FACTOR (fs / 16 for an ideal supply), lowered where needed so the
-    cable's wL stays below R_min / L_SHORT. The period is the power of
-    two in [16, 256] whose fs / period lies nearest the band's geometric middle, inside the
-    band when one is; when the scenario's rate cannot reach a non-empty band, the rate becomes
-    32 samples per period of the middle (rounded to 100 Hz). An empty band (the rules
-    conflict) keeps the rate and takes the period nearest the middle; the warnings say so.
+    fs / MIN_PERIOD, the supply bandwidth and the frequency where the cable's wL reaches
+    R_min / L_SHORT, whichever is lowest. Among the periods (powers of two, MIN_PERIOD .. 256)
+    inside the band, the one with the smallest |X(f)|; when none is inside, the rate becomes
+    32 samples per period of the band's geometric middle (rounded to 100 Hz); an empty band (the
+    rules conflict) keeps the rate and takes the period nearest the middle; the warnings say so.
     """
-    c = scenario.load_end.capacitance_f
+    c, l_h = scenario.load_end.capacitance_f, scenario.cable.inductance_h
     f_lo = AC_SHORT / (2 * math.pi * r_min * c)
     bw = scenario.supply.loop_bandwidth_hz
-    f_hi = bw / BW_FACTOR if bw > 0 else fs / 16
-    if scenario.cable.inductance_h > 0:
+    f_hi = fs / MIN_PERIOD if bw <= 0 else min(fs / MIN_PERIOD, bw)
+    if l_h > 0:
         f_hi = min(f_hi, inductive_limit_hz(scenario, r_min))
-    f_mid = math.sqrt(f_lo * f_hi)
-    periods = (16, 32, 64, 128, 256)
-    fits = [n for n in periods if f_lo <= fs / n <= f_hi] if f_hi >= f_lo else list(periods)
+    periods = [n for n in (8, 16, 32, 64, 128, 256) if n >= MIN_PERIOD]
+
+    def x_abs(f):
+        w = 2 * math.pi * f
+        return abs(w * l_h - 1.0 / (w * c))
+
+    fits = [n for n in periods if f_lo <= fs / n <= f_hi]
     if fits:
-        n = min(fits, key=lambda n: abs(math.log(fs / n / f_mid)))
+        n = min(fits, key=lambda n: (n, x_abs(fs / n)))
+        return fs / n, n, fs
+    f_mid = math.sqrt(f_lo * max(f_hi, 1e-9))
+    if f_hi < f_lo:
+        n = min(periods, key=lambda n: abs(math.log(fs / n / f_mid)))
         return fs / n, n, fs
     rate = min(max(round(f_mid * 32 / 100.0) * 100.0, 1000.0), 1e6)
     return rate / 32, 32, rate
+
+
+def adc_phase(fs, bw_hz, n):
+    """Lead (samples) of the sampled supply voltage's fundamental over the continuous voltage
+    that drives the cable, for a first-order inner loop of bandwidth ``bw_hz`` (0: ideal) fed by
+    a zero-order-held command and sampled at the end of each hold (the harness's timing).
+
+    The samples see the discrete response (1 - a) / (1 - a z^-1), a = exp(-2 pi bw / fs); the
+    cable sees the continuous one, H(jw) times the hold's e^(+jw/2) sinc(w/2) (the value held
+    up to a sample is that sample's). The lead is the phase of their ratio at the perturbation,
+    w = 2 pi / n per sample: -0.5 for an ideal source, near 0 for one much slower than fs.
+    """
+    w = 2 * math.pi / n
+    hold = complex(math.cos(w / 2), math.sin(w / 2)) * math.sin(w / 2) / (w / 2)
+    if bw_hz <= 0:
+        ratio = 1.0 / hold
+    else:
+        a = math.exp(-2 * math.pi * bw_hz / fs)
+        z_1 = complex(math.cos(-w), math.sin(-w))
+        h_d = (1 - a) / (1 - a * z_1)
+        wc = 2 * math.pi * bw_hz / fs
+        h_c = wc / complex(wc, w)
+        ratio = h_d / (h_c * hold)
+    return math.atan2(ratio.imag, ratio.real) / w
 
 
 def operating_points(scenario, cfg):
@@ -145,8 +190,9 @@ def loop_summary(scenario, cfg):
         if worst is None or an.spectral_radius > worst["spectral_radius"]:
             worst = {"spectral_radius": an.spectral_radius, "stability_margin": an.stability_margin,
                      "convergence_windows": an.convergence_windows, "convergence_s": an.convergence_s,
-                     "poles": an.poles, "gain_margin": an.gain_margin}
+                     "poles": an.poles, "gain_margin": an.gain_margin, "low_margin": an.low_margin}
         worst["gain_margin"] = min(worst["gain_margin"], an.gain_margin)
+        worst["low_margin"] = max(worst["low_margin"], an.low_margin)
         worst["convergence_s"] = max(worst["convergence_s"], an.convergence_s)
     return worst
 
@@ -157,9 +203,7 @@ def recommend(scenario):
     r_min, r_max = resistance_range(scenario)
     le, sen = scenario.load_end, scenario.sensing
     f, n, fs = pick_frequency(scenario, sen.sample_rate_hz, r_min)
-    tau = (r_max + le.esr_ohm) * le.capacitance_f
-    ppw = next((p for p in (4, 8, 16, 32, 64) if n * p / fs >= tau / TAU_PER_WINDOW and n * p <= 16384),
-               min(64, 16384 // n))
+    ppw = min(PERIODS_PER_WINDOW, 16384 // n)
     loads = uncompensated(scenario, base, r_max)
     i_max = needed_current(scenario, loads)
     i_min = min(x["current_a"] for x in loads)
@@ -188,20 +232,25 @@ def recommend(scenario):
         "fault_windows": 6,
     }
     headroom = max(0.0, scenario.supply.max_v - scenario.supply.target_v)
+    rc = (r_max + le.esr_ohm) * le.capacitance_f
+    period_s = n / fs
+    bw = scenario.supply.loop_bandwidth_hz
+    tau = max(TAU_PERIODS * period_s, 3.0 / (2 * math.pi * bw) if bw > 0 else 0.0)
+    rec.update(compensation=1.0, corr_frac_bits=CORR_FRAC,
+               corr_max_v=_clip("corr_max_v", min(headroom, HEADROOM_FACTOR * r_max * i_max)),
+               capacitance_f=_clip("capacitance_f", le.capacitance_f),
+               adc_phase_samples=_clip("adc_phase_samples", adc_phase(fs, bw, n)))
     best = None
-    for k in COMPENSATIONS:
-        for ss in SMOOTHINGS:
-            trial = dict(rec, compensation=k, smoothing_shift=ss, corr_frac_bits=min(8, ss + 2),
-                         corr_max_v=_clip("corr_max_v", min(headroom, HEADROOM_FACTOR * k * r_max * i_max)))
-            cfg = algo_config(scenario, dict(trial, sample_rate_hz=fs))
-            s = loop_summary(scenario, cfg)
-            if s["gain_margin"] >= GM_TARGET and (best is None or s["convergence_s"] < best[1]):
-                best = (trial, s["convergence_s"])
-        if best:
+    while tau <= TAU_MAX_S:
+        trial = dict(rec, loop_tau_ms=_clip("loop_tau_ms", tau * 1e3),
+                     kp_max=_clip("kp_max", max(1.0, KP_HEADROOM * rc / tau)))
+        cfg = algo_config(scenario, dict(trial, sample_rate_hz=fs))
+        best = trial
+        s = loop_summary(scenario, cfg)
+        if s["gain_margin"] >= GM_TARGET and s["low_margin"] <= LOW_TARGET:
             break
-    if best is None:
-        best = (trial, None)
-    return best[0], fs
+        tau *= TAU_STEP
+    return best, fs
 
 
 def pert_ripple(scenario, cfg, r_est, i_a):

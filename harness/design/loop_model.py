@@ -1,26 +1,27 @@
-"""Window-rate small-signal model of plant plus algorithm: closed-loop poles, margins, convergence.
+"""Period-rate small-signal model of plant plus correction law: closed-loop poles, margins, convergence.
 
-One step of the model is one measurement window of ``W`` samples. The plant is the harness's
-own linear model (harness.plant.linear_model.continuous_model: supply inner loop, cable R and L,
-load capacitor with ESR, the load's incremental conductance), discretised exactly per sample
-with a zero-order hold; the window map follows from powers and geometric sums of the per-sample
-matrix, so the window-mean current is the mean of the W samples the algorithm really takes.
+One step of the model is one perturbation period of ``N`` samples, the rate at which the
+correction moves (algo.step.correct). The plant is the harness's own linear model
+(harness.plant.linear_model.continuous_model: supply inner loop, cable R and L, load capacitor
+with ESR, the load's incremental conductance), discretised exactly per sample with a
+zero-order hold; the period map follows from powers and geometric sums of the per-sample
+matrix, so the period-mean current is the mean of the N samples the algorithm really takes.
 
-State ``z = [x, u, r]``: plant state deviation at the window start (V, A, V), held correction
-deviation ``u`` (V) and estimate deviation ``r`` (ohm). Per window, with g = 2**-smoothing_shift,
-h = 2**-r_filter_shift and K = k * (R0 - esr_allowance):
+State ``z = [x, u, q]``: plant state deviation at the period start (V, A, V), correction
+deviation ``u`` (V) and its integral part ``q`` (V). Per period, with K = s * k * (R0 - esr)
+(s the loop-gain factor: 1 + the estimate's relative error), kp = min(s * R0 * C / tau, kp_max)
+and ki = T_period / tau:
 
     x' = Phi x + Gu u + Gd d                     (d: load-current step, A)
-    I  = Hx x + Hu u + Hd d                       (window-mean supply current deviation, A)
-    Rr = Lx x + Lu u + Ld d + rho                 (raw estimate deviation, ohm; rho: cable change)
-    r' = (1 - h) r + h Rr
-    u' = (1 - g) u + g (K I + k I0 r')            (target uses the freshly updated estimate)
+    I  = Hx x + Hu u + Hd d                       (period-mean supply current deviation, A)
+    e  = K I - u                                  (the law's error: target - V-hat)
+    q' = q + ki e
+    u' = kp e + q'
 
-Two feedback paths raise the command when the command rises: the capacitor's charging current
-enters the window mean (K I), and the decaying charging transient leaks into the demodulated
-current, biasing the raw estimate (the L rows). A constant-power load adds a negative
-incremental conductance. Small-signal only: clamps, quantisation, window classification and
-the perturbation amplitude's own adaptation are left out (documented limits of the analysis).
+The resistance estimate is held: it moves once per window through its filter, on a far slower
+time scale than the correction (its transient leak is what the window classification and the
+trend removal keep out). Small-signal only: clamps, quantisation, window classification and the
+perturbation amplitude's own adaptation are left out (documented limits of the analysis).
 """
 from dataclasses import dataclass
 
@@ -70,14 +71,15 @@ class WindowPlant:
 @dataclass(frozen=True)
 class LoopAnalysis:
     """Closed loop at one operating point and configuration."""
-    a: np.ndarray             # closed-loop window matrix over z = [x, u, r]
-    b: np.ndarray             # inputs [d_load_a, rho_ohm]
+    a: np.ndarray             # closed-loop period matrix over z = [x, u, q]
+    b: np.ndarray             # input d_load_a
     c: np.ndarray             # outputs [mean load voltage (V), correction (V)]
     poles: np.ndarray
     spectral_radius: float
     stability_margin: float   # 1 - spectral radius
-    gain_margin: float        # factor on k at which the loop turns unstable (inf if none found)
-    convergence_windows: float
+    gain_margin: float        # factor on the estimate at which the loop turns unstable (inf if none)
+    low_margin: float         # largest factor below 1 at which it is unstable (0 if none)
+    convergence_windows: float  # periods to SETTLE_FRACTION, in windows
     convergence_s: float
     window_s: float
     plant: WindowPlant
@@ -88,8 +90,9 @@ def _active_states(l_h, omega):
     return [i for i, on in ((0, omega > 0), (1, l_h > 0), (2, True)) if on]
 
 
-def window_plant(op, cfg, pert_v, leak=True):
-    """Window map of the plant at ``op`` for AlgoConfig ``cfg`` with perturbation ``pert_v`` (V peak).
+def window_plant(op, cfg, pert_v, leak=True, n_samples=None):
+    """Block map of the plant at ``op`` for AlgoConfig ``cfg`` with perturbation ``pert_v`` (V peak):
+    over one window, or over ``n_samples`` samples (one period for the correction loop).
 
     Parameters
     ----------
@@ -107,7 +110,8 @@ def window_plant(op, cfg, pert_v, leak=True):
     d = d[:, :2]                                   # inputs: command (V), load current drawn (A)
     dt = 1.0 / cfg.sample_rate_hz
     ad, bd = (m[0] for m in discretise(a[None], b[None], dt))
-    n, w_len, eye = len(keep), cfg.window_samples, np.eye(len(keep))
+    w_len = cfg.window_samples if n_samples is None else n_samples
+    n, eye = len(keep), np.eye(len(keep))
     stable = bool(np.max(np.abs(np.linalg.eigvals(ad))) < 1.0)
     ad_w = np.linalg.matrix_power(ad, w_len)
     x_inf = np.linalg.solve(eye - ad, bd)                       # held-input equilibrium per input
@@ -127,7 +131,7 @@ def window_plant(op, cfg, pert_v, leak=True):
     z = np.exp(1j * theta)
     resp = c @ np.linalg.solve(z * eye - ad, z * bd[:, 0]) + d[:, 0]   # per-sample H(e^{j theta})
     zp = resp[0] / resp[1]
-    q_i = pert_v * w_len * resp[1] / 2j                                 # steady demodulated current
+    q_i = pert_v * w_len * resp[1] / 2j                                # steady demodulated current
     if leak:
         row = (c[0] - zp * c[1]) @ sum_rot / q_i
         lx, lin = row.real, (-row @ x_inf).real
@@ -138,48 +142,29 @@ def window_plant(op, cfg, pert_v, leak=True):
                        x0_ohm=float(zp.imag), stable=stable)
 
 
-def loop_gains(cfg, wp, i0_a, scale=1.0):
-    """Gains (K, kI0, g, h) of the correction and estimate paths; ``scale`` multiplies k."""
-    k = cfg.compensation * scale
-    r_comp = wp.r0_ohm - cfg.esr_allowance_ohm
-    active = r_comp > 0.0                      # below the allowance the target is clamped at zero
-    big_k = k * r_comp if active else 0.0
-    k_i0 = k * i0_a if active else 0.0
-    return big_k, k_i0, 2.0 ** -cfg.smoothing_shift, 2.0 ** -cfg.r_filter_shift
+def loop_gains(cfg, wp, scale=1.0):
+    """Gains (K, kp, ki) of the correction law; ``scale`` multiplies the estimate (1 + its error)."""
+    r0 = wp.r0_ohm * scale
+    r_comp = r0 - cfg.esr_allowance_ohm
+    big_k = cfg.compensation * r_comp if r_comp > 0.0 else 0.0   # below the allowance: no drop
+    tau = cfg.loop_tau_s
+    kp = min(max(r0, 0.0) * cfg.capacitance_f / tau, cfg.kp_max)
+    ki = cfg.period_samples / cfg.sample_rate_hz / tau
+    return big_k, kp, ki
 
 
-def open_loop(cfg, wp, i0_a, scale=1.0):
-    """Loop broken at the correction target: matrices (A, B, C) over z = [x, u, r], input tau (V).
-
-    The output is the target the algorithm would compute from the window; closing the loop is
-    positive feedback, tau = output.
-    """
-    big_k, k_i0, g, h = loop_gains(cfg, wp, i0_a, scale)
+def closed_loop(cfg, wp, i0_a=None, scale=1.0):
+    """Closed-loop period matrices (A, B, C) over z = [x, u, q]: input d_load_a, outputs
+    [period-mean load voltage (V), correction (V)]. ``i0_a`` is unused (kept for callers)."""
+    big_k, kp, ki = loop_gains(cfg, wp, scale)
     n = wp.phi.shape[0]
+    e_x, e_u, e_d = big_k * wp.hx, big_k * wp.hu - 1.0, big_k * wp.hd
     a = np.zeros((n + 2, n + 2))
     a[:n, :n], a[:n, n] = wp.phi, wp.gu
-    a[n, n] = 1.0 - g
-    a[n + 1, :n], a[n + 1, n], a[n + 1, n + 1] = h * wp.lx, h * wp.lu, 1.0 - h
+    a[n, :n], a[n, n], a[n, n + 1] = (kp + ki) * e_x, (kp + ki) * e_u, 1.0
+    a[n + 1, :n], a[n + 1, n], a[n + 1, n + 1] = ki * e_x, ki * e_u, 1.0
     b = np.zeros((n + 2, 1))
-    b[n, 0] = g
-    c = np.zeros((1, n + 2))
-    c[0, :n] = big_k * wp.hx + k_i0 * h * wp.lx
-    c[0, n] = big_k * wp.hu + k_i0 * h * wp.lu
-    c[0, n + 1] = k_i0 * (1.0 - h)
-    return a, b, c
-
-
-def closed_loop(cfg, wp, i0_a, scale=1.0):
-    """Closed-loop window matrices (A, B, C): inputs [d_load_a, rho_ohm], outputs [v_load, corr]."""
-    a_ol, b_ol, c_ol = open_loop(cfg, wp, i0_a, scale)
-    big_k, k_i0, g, h = loop_gains(cfg, wp, i0_a, scale)
-    n = wp.phi.shape[0]
-    a = a_ol + b_ol @ c_ol
-    b = np.zeros((n + 2, 2))
-    b[:n, 0] = wp.gd
-    b[n + 1, 0], b[n + 1, 1] = h * wp.ld, h
-    b[n, 0] = g * (big_k * wp.hd + k_i0 * h * wp.ld)
-    b[n, 1] = g * k_i0 * h
+    b[:n, 0], b[n, 0], b[n + 1, 0] = wp.gd, (kp + ki) * e_d, ki * e_d
     c = np.zeros((2, n + 2))
     c[0, :n], c[0, n] = wp.vx, wp.vu
     c[1, n] = 1.0
@@ -191,26 +176,48 @@ def _radius(cfg, wp, i0_a, scale):
     return float(np.max(np.abs(np.linalg.eigvals(a))))
 
 
-def gain_margin(cfg, wp, i0_a, sense_gain=1.0):
-    """Smallest factor on the loop gain at which the closed loop is unstable; inf if none found.
+def _crossing(cfg, wp, i0_a, sense_gain, lo, hi):
+    """Bisect to 0.1 % the factor between stable ``lo`` and unstable ``hi``."""
+    while abs(hi - lo) > 1e-3 * max(abs(hi), abs(lo)):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (lo, mid) if _radius(cfg, wp, i0_a, mid * sense_gain) >= 1.0 else (mid, hi)
+    return hi
 
-    The loop gain is k * sense_gain; the factor is scanned on a log grid from 1e-3 to
-    GAIN_SCAN_MAX, then the first crossing is bisected to 0.1 %. Below 1 means the
-    configuration is already unstable; 0 means the plant alone is.
+
+def gain_margin(cfg, wp, i0_a, sense_gain=1.0):
+    """Smallest factor above 1 on the estimate at which the closed loop is unstable; inf if none.
+
+    The factor multiplies the estimate (hence K and kp) on top of sense_gain; it is scanned on a
+    log grid from 1 to GAIN_SCAN_MAX, then the first crossing is bisected to 0.1 %. Below 1
+    means the configuration is already unstable (the largest stable factor below 1, or 0);
+    0 also means the plant alone is.
     """
     if not wp.stable:
         return 0.0
-    grid = np.geomspace(1e-3, GAIN_SCAN_MAX, 121)
-    prev = 0.0
-    for m in grid:
+    if _radius(cfg, wp, i0_a, sense_gain) >= 1.0:
+        below = [m for m in np.geomspace(1e-3, 1.0, 61)[::-1] if _radius(cfg, wp, i0_a, m * sense_gain) < 1.0]
+        return float(below[0]) if below else 0.0
+    prev = 1.0
+    for m in np.geomspace(1.0, GAIN_SCAN_MAX, 121)[1:]:
         if _radius(cfg, wp, i0_a, m * sense_gain) >= 1.0:
-            lo, hi = prev, m
-            while hi - lo > 1e-3 * hi:
-                mid = 0.5 * (lo + hi)
-                lo, hi = (lo, mid) if _radius(cfg, wp, i0_a, mid * sense_gain) >= 1.0 else (mid, hi)
-            return hi
+            return _crossing(cfg, wp, i0_a, sense_gain, prev, m)
         prev = m
     return float("inf")
+
+
+def low_margin(cfg, wp, i0_a, sense_gain=1.0):
+    """Largest factor below 1 on the estimate at which the closed loop is unstable; 0 if none.
+
+    A low estimate weakens the cancellation of the correction's own charging current while kp
+    stays near R*C / tau, and with the one-period hold the loop can ring (kp (1 - factor) > 1
+    at the period rate). Scanned on a grid from 1 down to 1e-3, then bisected to 0.1 %.
+    """
+    prev = 1.0
+    for m in np.geomspace(1e-3, 1.0, 61)[::-1][1:]:
+        if _radius(cfg, wp, i0_a, m * sense_gain) >= 1.0:
+            return _crossing(cfg, wp, i0_a, sense_gain, prev, m)
+        prev = m
+    return 0.0
 
 
 def analyse(op, cfg, pert_v, leak=True, sense_gain=1.0):
@@ -223,20 +230,22 @@ def analyse(op, cfg, pert_v, leak=True, sense_gain=1.0):
     pert_v : float
         Perturbation amplitude, V peak.
     leak : bool
-        Model the charging transient's leak into the estimate.
+        Unused: the estimate is held in the period model (kept for callers).
     sense_gain : float
         1 + the common gain error of the voltage and current sensing (reads high above 1): it
         leaves the estimate alone but scales the measured current, hence the loop gain.
     """
-    wp = window_plant(op, cfg, pert_v, leak)
+    wp = window_plant(op, cfg, pert_v, False, n_samples=cfg.period_samples)
     a, b, c = closed_loop(cfg, wp, op.i_a, sense_gain)
     poles = np.linalg.eigvals(a)
     rho = float(np.max(np.abs(poles)))
     window_s = cfg.window_samples / cfg.sample_rate_hz
     if rho < 1.0:
-        windows = float(np.log(SETTLE_FRACTION) / np.log(rho)) if rho > 0 else 1.0
+        periods = float(np.log(SETTLE_FRACTION) / np.log(rho)) if rho > 0 else 1.0
     else:
-        windows = float("inf")
+        periods = float("inf")
+    windows = periods / cfg.periods_per_window
     return LoopAnalysis(a=a, b=b, c=c, poles=poles, spectral_radius=rho, stability_margin=1.0 - rho,
-                        gain_margin=gain_margin(cfg, wp, op.i_a, sense_gain), convergence_windows=windows,
+                        gain_margin=gain_margin(cfg, wp, op.i_a, sense_gain),
+                        low_margin=low_margin(cfg, wp, op.i_a, sense_gain), convergence_windows=windows,
                         convergence_s=windows * window_s, window_s=window_s, plant=wp)

@@ -17,7 +17,6 @@ LIGHT_LOAD_SHARE = 0.5
 #: Warn when ESR exceeds this share of the cable resistance.
 ESR_SHARE = 0.2
 #: Supply bandwidth: warn when f is above bandwidth / this.
-BW_WARN = 5.0
 #: R*C corner: warn when f is below this multiple of the corner.
 CORNER_WARN = 3.0
 
@@ -41,9 +40,9 @@ def _warnings(sc, cfg, fig):
                    "estimate is biased; lower the perturbation frequency (and fit a larger capacitor "
                    "so it stays an AC short)")
     bw = sc.supply.loop_bandwidth_hz
-    if bw > 0 and f > bw / BW_WARN:
-        out.append(f"the perturbation frequency {f:.4g} Hz is too close to the supply's loop bandwidth "
-                   f"{bw:.4g} Hz: keep it below {bw / d.BW_FACTOR:.4g} Hz")
+    if bw > 0 and f > bw:
+        out.append(f"the perturbation frequency {f:.4g} Hz is above the supply's loop bandwidth "
+                   f"{bw:.4g} Hz: the swing shrinks; keep it at or below {bw:.4g} Hz")
     if fig["correction_needed_v"] > fig["headroom_v"]:
         out.append(f"the correction would need up to {fig['correction_needed_v']:.3g} V but the supply has "
                    f"only {fig['headroom_v']:.3g} V of headroom (max_v - target_v): the load will sag at "
@@ -72,10 +71,10 @@ def _warnings(sc, cfg, fig):
     gm = fig["gain_margin"]
     if fig["spectral_radius"] >= 1.0:
         out.append("the correction loop is unstable: the correction will ring and hit its limits; "
-                   "lower compensation or raise smoothing_shift")
+                   "raise loop_tau_ms")
     elif gm < d.GM_TARGET:
-        out.append(f"the correction loop has little margin: a loop-gain error of {100 * (gm - 1):.0f} % "
-                   "(sensing gain, ESR) makes it ring; lower compensation or lengthen the window")
+        out.append(f"the correction loop has little margin: an estimate {100 * (gm - 1):.0f} % high "
+                   "(sensing gain, ESR) makes it ring; raise loop_tau_ms")
     return out
 
 
@@ -108,7 +107,9 @@ def design_report(sc):
         "capacitor_reactance_ohm": 1.0 / (2 * math.pi * f * le.capacitance_f),
         "min_capacitance_f": d.AC_SHORT / (2 * math.pi * f * r_min),
         "compensation": cfg.compensation,
-        "smoothing_shift": cfg.smoothing_shift,
+        "loop_tau_ms": 1e3 * cfg.loop_tau_s,
+        "capacitance_f": cfg.capacitance_f,
+        "adc_phase_samples": cfg.adc_phase_samples,
         "r_max_ohm": cfg.r_max_ohm,
         "corr_max_v": min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v)),
         "headroom_v": max(0.0, sc.supply.max_v - sc.supply.target_v),

@@ -13,14 +13,18 @@ import numpy as np
 
 from algo.ideal import constants
 
+#: The difference baseline's correction smoothing per half period (its own, fixed: 2**-2).
+DIFFERENCE_SMOOTHING = 0.25
+
 
 class _Base:
     def __init__(self, cfgs):
         self.n = len(cfgs)
         c = [constants(x) for x in cfgs]
         for name in ("target", "cmd_min", "cmd_max", "corr_gain", "corr_max", "r_max", "window",
-                     "period", "pert_max", "r_g", "corr_g", "swing_min"):
+                     "period", "pert_max", "r_g", "swing_min"):
             setattr(self, name, np.array([x[name] for x in c], dtype=float))
+        self.corr_g = np.full(self.n, DIFFERENCE_SMOOTHING)
         self.r_est = np.zeros(self.n)
         self.corr = np.zeros(self.n)
         self.cmd = self.target.copy()

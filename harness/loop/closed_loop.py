@@ -21,7 +21,7 @@ CHANNELS = ("v_supply_v", "i_supply_a", "v_load_v", "command_v", "r_estimate_ohm
 CODE_CHANNELS = ("adc_v_code", "adc_i_code", "command_code")
 #: The algorithm's window counter and last window's outcome (algo.state STATUS_*), recorded by
 #: default for linedrop's algorithm (the baselines have no windows): metrics counts outcomes.
-OUTCOME_CHANNELS = ("windows", "status", "integ", "corr_target")
+OUTCOME_CHANNELS = ("windows", "status", "kp_off")
 
 
 @dataclass

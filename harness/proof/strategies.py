@@ -94,7 +94,7 @@ def rate_for(f_lo_hz, bandwidth_hz=0.0):
     """Ladder sample rate for a plant: about 64 f_lo, at most 256 times the band's top."""
     want = 64.0 * f_lo_hz
     if bandwidth_hz > 0:
-        want = min(want, 256.0 * bandwidth_hz / design.BW_FACTOR)
+        want = min(want, 25.6 * bandwidth_hz)   # 256 samples per period at a tenth of it
     return min(RATES_HZ, key=lambda r: abs(math.log(r / want)))
 
 
@@ -257,10 +257,14 @@ def algorithm_overrides(scenario):
         ppw_top = max(1, min(64, 4 * n_win // period))
         out["period_samples"] = period
         out["periods_per_window"] = draw(st.sampled_from([q for q in (1, 2, 4, 8, 16, 32, 64) if q <= ppw_top]))
-        for key in ("compensation", "smoothing_shift", "r_filter_shift", "corr_frac_bits",
-                    "step_rel_shift", "fault_windows", "table_bits", "r_frac_bits", "pert_fraction"):
+        for key in ("compensation", "r_filter_shift", "corr_frac_bits", "capacitance_f", "kp_max",
+                    "adc_phase_samples", "step_rel_shift", "fault_windows", "table_bits",
+                    "r_frac_bits", "pert_fraction"):
             if draw(st.booleans()):
                 out[key] = draw(_set(key))
+        if draw(st.booleans()):     # at least one period (AlgoConfig's rule), up to 64
+            period_ms = 1e3 * period / scenario.sensing.sample_rate_hz
+            out["loop_tau_ms"] = period_ms * draw(st.floats(1.0, 64.0))
         out["fault_windows"] = min(out.get("fault_windows", a["fault_windows"]), 64)
         for key, top in (("r_max_ohm", 4 * a["r_max_ohm"]), ("x_max_ohm", 4 * a["x_max_ohm"]),
                          ("r_step_max_ohm", 4 * a["r_max_ohm"]), ("corr_max_v", 1000.0),

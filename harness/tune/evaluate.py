@@ -35,11 +35,9 @@ KNOBS = {
     "acc_bits": (20, 32, 1),
     "r_frac_bits": (8, 16, 1),
     "corr_frac_bits": (0, 8, 1),
-    # Filter shifts cost no memory or cycles, so they weigh nothing: they are swept for the
-    # error-vs-shift plots and move only where that lowers the error, never to save cost
-    # (a smaller smoothing shift trades loop damping for speed; see harness/design/loop_model.py).
+    # The filter shift costs no memory or cycles, so it weighs nothing: it is swept for the
+    # error-vs-shift plot and moves only where that lowers the error, never to save cost.
     "r_filter_shift": (0, None, 0),   # None: start from the scenario's own value
-    "smoothing_shift": (0, None, 0),
 }
 #: Settings of every ideal run (irrelevant to the float algorithm except the converters).
 IDEAL_WIDTHS = {"adc_bits": 16, "dac_bits": 16, "table_bits": 16, "acc_bits": 32, "r_frac_bits": 16,

@@ -2,8 +2,9 @@
 
 The state fields' intervals come from algo.ranges (the proof suite's analysis, one parameter
 block at a time); this module adds the intermediates that never reach the state: the
-demodulation product, the window-end cross products and their shifts, the drop and gain
-products and the command sum. Intervals cover all admissible inputs (any ADC code in
+demodulation product, the window-end trend removal, rotation and cross products and their
+shifts, the drop and gain products of the window and of the per-period correction law, and the
+command sum. Intervals cover all admissible inputs (any ADC code in
 [0, adc_max] at every sample, any state the clamps allow) and are checked against the word that
 holds each one in C: the declared ``acc_bits`` for the accumulators, the field's C type for the
 rest of the state, int32 for per-sample intermediates and int64 for the window-end products. A
@@ -13,7 +14,7 @@ parameter block with any interval outside its word may overflow, and tune reject
 from dataclasses import dataclass
 
 from algo.fixed import rshift_round
-from algo.params import DROP_FRAC, GAIN_FRAC, NORM_BITS
+from algo.params import DROP_FRAC, GAIN_FRAC, KT_FRAC, NORM_BITS, ROT_FRAC, SWING_FRAC
 from algo.ranges import STATE_TYPES, state_bounds
 
 INT32 = (-(1 << 31), (1 << 31) - 1)
@@ -62,13 +63,21 @@ def analyse(p):
     tmax = max(abs(t) for t in p.ref_tab[:p.period])
     half = (1 << ds) >> 1
     add("demod product code*ref (+ rounding half)", -amax * tmax, amax * tmax + half, "int32", INT32)
-    # Window end: the current pair is normalised to NORM_BITS (+1 after rounding); the voltage
-    # pair takes the same shift, which is 0 whenever the current is small.
+    # Window end: trend removal, then the voltage pair's rotation, then the current pair is
+    # normalised to NORM_BITS (+1 after rounding); the voltage pair takes the same shift (0
+    # whenever the current is small) and is saturated to int32 after it.
     acc_lo, acc_hi = state_bounds(p)["acc_vi"]
     a_mag = max(-acc_lo, acc_hi)
-    i_n = min(a_mag, 1 << NORM_BITS)
+    diff = w * amax                               # |second half's sum - first half's|
+    kt = max(abs(p.kt_s_q), abs(p.kt_c_q))
+    add("half-sum difference * kt (+ half)", -diff * kt, diff * kt + (1 << (KT_FRAC - 1)), "int64", INT64)
+    det = a_mag + rshift_round(diff * kt, KT_FRAC) + 1
+    rot = det * (abs(p.rot_c_q) + abs(p.rot_s_q))
+    add("rotation products (+ half)", -rot, rot + (1 << (ROT_FRAC - 1)), "int64", INT64)
+    v_n = min(rshift_round(rot, ROT_FRAC) + 1, INT32[1])
+    i_n = min(det, 1 << NORM_BITS)
     add("den = ii^2 + iq^2", 0, 2 * i_n * i_n, "int64", INT64)
-    num = 2 * a_mag * i_n
+    num = 2 * v_n * i_n
     add("num, xnum (cross products)", -num, num, "int64", INT64)
     add("num << r_frac", -(num << p.r_frac), num << p.r_frac, "int64", INT64)
     add("x_max_q * den", 0, p.x_max_q * 2 * i_n * i_n, "int64", INT64)
@@ -77,8 +86,20 @@ def analyse(p):
     add("r_est * isum (+ rounding half)", 0, prod + ((1 << sh) >> 1), "int64", INT64)
     drop = min(INT32[1], rshift_round(prod, sh))
     add("drop (Q8 V-codes, saturated)", 0, drop, "int32", INT32)
+    # Per period: the step detector's threshold and the correction law.
+    add("swing * swing_psum_q (+ half)", 0, INT32[1] * p.swing_psum_q + (1 << (SWING_FRAC + 7)),
+        "int64", INT64)
+    psh = p.r_frac + p.period_log2 - DROP_FRAC
+    pprod = p.r_max_q * p.period * amax
+    add("(r_est - esr) * psum (+ half)", 0, pprod + ((1 << psh) >> 1), "int64", INT64)
+    pdrop = min(INT32[1], rshift_round(pprod, psh))
     csh = GAIN_FRAC + DROP_FRAC - p.corr_frac
-    add("drop * corr_gain_q (+ half)", 0, drop * p.corr_gain_q + ((1 << csh) >> 1), "int64", INT64)
+    add("drop * corr_gain_q (+ half)", 0, max(drop, pdrop) * p.corr_gain_q + ((1 << csh) >> 1),
+        "int64", INT64)
+    add("r_est * kc_q (+ half)", 0, p.r_max_q * p.kc_q + ((1 << p.r_frac) >> 1), "int64", INT64)
+    e_max = INT32[1]
+    add("kp * e, ki * e (+ half)", -p.kp_max_q * e_max, p.kp_max_q * e_max + (1 << (GAIN_FRAC - 1)),
+        "int64", INT64)
     add("drop * pert_gain_q (+ half)", 0, drop * p.pert_gain_q + (1 << (GAIN_FRAC + DROP_FRAC - 1)),
         "int64", INT64)
     add("pert_amp doubling", 0, 2 * p.pert_max, "int32", INT32)

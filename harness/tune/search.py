@@ -1,6 +1,6 @@
 """Greedy word-length search: from generous widths, shrink one knob at a time by sensitivity.
 
-1. *Start*: every width at its generous value (KNOBS), the filter shifts at the scenario's own.
+1. *Start*: every width at its generous value (KNOBS), the filter shift at the scenario's own.
 2. *Sweep*: each knob alone, every value below its start, the others generous (one batch). This
    gives the error-vs-bits curves, each knob's lowest value that still meets the spec on its
    own (the bottom of the passing run down from the start), and its sensitivity: the rise in
