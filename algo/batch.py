@@ -179,7 +179,8 @@ class BatchModel:
         e = tgt - corr0
         integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
         kp = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
-        kp = np.where(s.kp_off[k] != 0, 0, kp)
+        on = s.kp_off[k] < 2
+        kp = np.where(on, kp, 0)
         u = _rsr(kp * e, GAIN_FRAC) + integ
         hold = ((u > cmax) & (e > 0)) | ((u < 0) & (e < 0))
         integ = np.where(hold, integ0, integ)
@@ -188,7 +189,8 @@ class BatchModel:
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) > np.abs(du_prev) + (cmax >> 3)))
         forced = s.bad_windows[k] >= p.fault_windows[k]
-        s.kp_off[k[rang & ~forced]] = 1
+        upd = on & ~forced
+        s.kp_off[k] = np.where(upd, np.where(rang, s.kp_off[k] + 1, 0), s.kp_off[k])
         s.corr_target[k] = np.where(forced, 0, tgt)
         s.integ[k] = np.where(forced, 0, np.clip(integ, 0, cmax))
         s.corr[k] = np.where(forced, 0, corr)

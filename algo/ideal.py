@@ -181,7 +181,8 @@ class IdealBatch:
         tgt = np.maximum(r_est - self.esr[k], 0) * self.psum[k] / self.period[k] * self.corr_gain[k]
         e = tgt - corr0
         integ = integ0 + self.ki[k] * e
-        kp = np.where(self.kp_off[k] != 0, 0.0, np.minimum(r_est * self.kc[k], self.kp_max[k]))
+        on = self.kp_off[k] < 2
+        kp = np.where(on, np.minimum(r_est * self.kc[k], self.kp_max[k]), 0.0)
         u = kp * e + integ
         integ = np.where(((u > cmax) & (e > 0)) | ((u < 0) & (e < 0)), integ0, integ)
         corr = np.clip(u, 0, cmax)
@@ -189,7 +190,8 @@ class IdealBatch:
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) > np.abs(du_prev) + cmax / 8))
         forced = self.bad_windows[k] >= self.fault_windows[k]
-        self.kp_off[k[rang & ~forced]] = 1
+        upd = on & ~forced
+        self.kp_off[k] = np.where(upd, np.where(rang, self.kp_off[k] + 1, 0), self.kp_off[k])
         self.corr_target[k] = np.where(forced, 0.0, tgt)
         self.integ[k] = np.where(forced, 0.0, np.clip(integ, 0, cmax))
         self.corr[k] = np.where(forced, 0.0, corr)

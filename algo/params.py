@@ -175,7 +175,9 @@ def derive(cfg: AlgoConfig) -> Params:
         swing_psum_q=_code((1 << ds) * 2 * cfg.period_samples / ((1 << window_log2) * tab_amp)
                            * (1 << SWING_FRAC)),
         ki_q=_code(period_s / tau_s * (1 << GAIN_FRAC)),
-        kc_q=_code(v_lsb / i_lsb * cfg.capacitance_f / tau_s * (1 << GAIN_FRAC)),
+        # Saturated: at 2**31 - 1 the gain reaches kp_max_q (<= 2**24) from an estimate of
+        # 2**(r_frac - 7) units, far below any cable's, so a larger C / tau changes nothing.
+        kc_q=min(S32_MAX, _code(v_lsb / i_lsb * cfg.capacitance_f / tau_s * (1 << GAIN_FRAC))),
         kp_max_q=min(KP_MAX_Q, _code(cfg.kp_max * (1 << GAIN_FRAC))),
         kt_s_q=_code(kt_s * (1 << KT_FRAC)),
         kt_c_q=_code(kt_c * (1 << KT_FRAC)),
@@ -192,7 +194,7 @@ _INT32_FIELDS = {"r_max_q": "r_max_ohm", "x_max_q": "x_max_ohm", "esr_q": "esr_a
                  "r_step_max_q": "r_step_max_ohm", "corr_gain_q": "compensation",
                  "pert_gain_q": "pert_fraction", "corr_max_q": "corr_max_v",
                  "swing_min": "swing_min_a", "step_min": "step_min_a",
-                 "ki_q": "loop_tau_ms", "kc_q": "capacitance_f", "kp_max_q": "kp_max",
+                 "ki_q": "loop_tau_ms", "kp_max_q": "kp_max",
                  "swing_psum_q": "acc_bits"}
 
 

@@ -55,7 +55,7 @@ def state_bounds(p: Params):
       ``r_raw`` is only saturated to int32.
     * ``corr``, ``integ``: clamped to [0, corr_max_q] in step.correct, or forced to 0.
     * ``du_prev``: the last period's change of corr, a difference of two values in
-      [0, corr_max_q] (or 0 when forced), so within +-corr_max_q; ``kp_off`` is a 0/1 flag.
+      [0, corr_max_q] (or 0 when forced), so within +-corr_max_q; ``kp_off`` counts to 2 and holds.
     * ``corr_target``: step.drop_period, saturated to [0, 2**31 - 1] and deliberately not
       clamped to corr_max_q (the error must still read the shortfall at the ceiling).
     * ``swing``: int32-saturated magnitude of the current pair (estimator.classify), >= 0.
@@ -76,7 +76,7 @@ def state_bounds(p: Params):
         "r_est": (0, p.r_max_q), "r_raw": S32,
         "corr": (0, p.corr_max_q), "integ": (0, p.corr_max_q), "corr_target": (0, S32[1]),
         "du_prev": (-p.corr_max_q, p.corr_max_q),
-        "swing": (0, S32[1]), "valid_run": (0, 0xFF), "kp_off": (0, 1),
+        "swing": (0, S32[1]), "valid_run": (0, 0xFF), "kp_off": (0, 2),
         "pert_amp": (p.pert_min, p.pert_max),
         "windows": (0, (1 << 32) - 1),
         "phase": (0, per - 1), "count": (0, win - 1),

@@ -47,7 +47,7 @@ class State:
     status: int = 0       # uint8: outcome of the last window (STATUS_*)
     clipped: int = 0      # uint8: a code sat at a rail in this window (v or i at adc_max, i at 0)
     valid_run: int = 0    # uint8: valid windows since init, reset or a forced zero (saturates)
-    kp_off: int = 0       # uint8: proportional part off (the correction rang) until a valid window
+    kp_off: int = 0       # uint8: ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

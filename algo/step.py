@@ -90,9 +90,10 @@ def correct(p, s):
     Ring guard: with the load capacitor there, a step of the correction draws its own charging
     current and the error hardly sees it; without it (capacitor open) the error sees the whole
     step and a proportional gain above 1 makes the correction swing rail to rail every period.
-    A step that reverses the last one and outgrows it by an eighth of corr_max turns the
-    proportional part off (kp_off) until the next valid window; the integral part alone is
-    stable without the capacitor.
+    Two steps in a row that each reverse the last one and outgrow it by an eighth of corr_max
+    turn the proportional part off (kp_off reaches 2) until the next valid window; one such
+    step alone (the start's first kick can be one) only counts (kp_off 1). The integral part
+    alone is stable without the capacitor.
 
     Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
     and |du_prev| + corr_max_q / 8 fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
@@ -106,15 +107,16 @@ def correct(p, s):
     s.corr_target = drop_period(p, s)
     e = s.corr_target - s.corr
     integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
-    kp = 0 if s.kp_off else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
+    kp = 0 if s.kp_off >= 2 else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
     u = rshift_round(kp * e, GAIN_FRAC) + integ
     if (u > p.corr_max_q and e > 0) or (u < 0 and e < 0):
         integ = s.integ
     s.integ = sat(integ, 0, p.corr_max_q)
     corr = sat(u, 0, p.corr_max_q)
     du = corr - s.corr
-    if (du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) > abs(s.du_prev) + (p.corr_max_q >> 3):
-        s.kp_off = 1
+    rang = (du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) > abs(s.du_prev) + (p.corr_max_q >> 3)
+    if s.kp_off < 2:
+        s.kp_off = s.kp_off + 1 if rang else 0
     s.corr, s.du_prev = corr, du
 
 

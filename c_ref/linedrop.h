@@ -103,7 +103,7 @@ typedef struct {
     uint8_t status;        /* outcome of the last window, LD_STATUS_* */
     uint8_t clipped;       /* a code sat at a rail in this window (v or i at adc_max, i at 0) */
     uint8_t valid_run;     /* valid windows since init, reset or a forced zero (saturates) */
-    uint8_t kp_off;        /* proportional part off (the correction rang) until a valid window */
+    uint8_t kp_off;        /* ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window */
 } ld_state_t;
 
 void ld_init(const ld_params_t *p, ld_state_t *s);

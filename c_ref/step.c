@@ -103,9 +103,10 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
  * Ring guard: with the load capacitor there, a step of the correction draws its own charging
  * current and the error hardly sees it; without it (capacitor open) the error sees the whole
  * step and a proportional gain above 1 makes the correction swing rail to rail every period.
- * A step that reverses the last one and outgrows it by an eighth of corr_max turns the
- * proportional part off (kp_off) until the next valid window; the integral part alone is
- * stable without the capacitor.
+ * Two steps in a row that each reverse the last one and outgrow it by an eighth of corr_max
+ * turn the proportional part off (kp_off reaches 2) until the next valid window; one such
+ * step alone (the start's first kick can be one) only counts (kp_off 1). The integral part
+ * alone is stable without the capacitor.
  * Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
  * and |du_prev| + corr_max_q / 8 fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
  * 2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
@@ -116,6 +117,7 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
 void ld_correct(const ld_params_t *p, ld_state_t *s)
 {
     int32_t e, corr, du, adu, adu_prev;
+    int rang;
     int64_t integ, kp, u;
 
     if (s->bad_windows >= p->fault_windows) {
@@ -129,7 +131,7 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
     e = s->corr_target - s->corr;
     integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
     kp = 0;
-    if (s->kp_off == 0u) {
+    if (s->kp_off < 2u) {
         kp = ld_rshift_round64((int64_t)s->r_est * p->kc_q, p->r_frac);
         if (kp > p->kp_max_q) {
             kp = p->kp_max_q;
@@ -144,9 +146,10 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
     du = corr - s->corr;
     adu = ld_abs32(du);
     adu_prev = ld_abs32(s->du_prev);
-    if (((du > 0 && s->du_prev < 0) || (du < 0 && s->du_prev > 0)) &&
-        adu - adu_prev > (p->corr_max_q >> 3)) {
-        s->kp_off = 1u;
+    rang = ((du > 0 && s->du_prev < 0) || (du < 0 && s->du_prev > 0)) &&
+           adu - adu_prev > (p->corr_max_q >> 3);
+    if (s->kp_off < 2u) {
+        s->kp_off = rang ? (uint8_t)(s->kp_off + 1u) : 0u;
     }
     s->corr = corr;
     s->du_prev = du;

@@ -112,21 +112,25 @@ def test_gain_margin_follows_the_continuous_time_condition(c_f, tau_ms):
 
 
 def test_unstable_and_stable_configurations_in_the_time_domain():
-    """What the model calls unstable trips the ring guard in simulate; what it calls stable
-    settles without tripping it.
+    """What the model calls unstable rings into the correction clamp in simulate; what it calls
+    stable settles.
 
     Source of the plant behaviour: the harness's exact-ZOH plant (harness.plant.plant) with the
     fixed-point model. A sensing gain error of +30 % makes the measured drop read 30 % high;
     with R*C = 20 ms a 4 ms loop time constant is inside the unstable region and 16 ms is not.
+    (The ring guard, kp_off, is for the period-by-period swing of a missing capacitor; this ring
+    is slower and the guard rightly leaves it alone.)
     """
     cases = [(10e-3, 0.3, 4.0), (10e-3, 0.3, 16.0)]
     scs = [rc_scenario(c, ge, tau_ms=t) for c, ge, t in cases]
     verdicts = [max(analysis(sc, v)[0].spectral_radius for v in (1.5, 2.0)) >= 1.0 for sc in scs]
     assert verdicts == [True, False]
-    run = simulate(scs, backend="model", channels=("correction_v", "kp_off"))
+    run = simulate(scs, backend="model", channels=("correction_v",))
     tail = run.t_s > 0.4
+    headroom = 30.0 - 24.0
     for b, unstable in enumerate(verdicts):
-        tripped = bool(run.channels["kp_off"][:, b].max() > 0)
-        assert tripped == unstable
-        if not unstable:
-            assert np.ptp(run.channels["correction_v"][tail, b]) < 0.1
+        corr = run.channels["correction_v"][tail, b]
+        if unstable:
+            assert np.ptp(corr) > 1.0 and corr.max() > 0.95 * headroom
+        else:
+            assert np.ptp(corr) < 0.1

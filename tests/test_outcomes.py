@@ -93,7 +93,9 @@ def test_an_open_cable_with_current_near_zero_stays_low_swing_and_forces_zero(ba
         s = _at_window_end(trace, SETTLE - 1 + k)
         assert s["status"] == STATUS_LOW_SWING
         assert s["bad_windows"] == k
-        assert s["corr_target"] == 0
+        # The estimate is held and the correction keeps tracking it times the measured current,
+        # which the open cable has taken to about half a code: the drop all but vanishes.
+        assert 0 <= s["corr_target"] <= settled["corr_target"] // 50
         if k < P.fault_windows:
             assert s["corr"] > 0
     assert s["corr"] == 0 and s["r_est"] == 0
@@ -110,8 +112,8 @@ def test_a_voltage_swing_in_antiphase_with_the_current_is_r_low_and_a_fault_wind
         assert s["status"] == STATUS_R_LOW
         assert s["r_raw"] < 0
         assert s["bad_windows"] == k
-        assert s["corr_target"] == 0
         assert s["r_est"] == settled["r_est"]          # not a valid window: estimate untouched
+        assert s["corr_target"] == settled["corr_target"]   # same current, held estimate
 
 
 def test_model_and_c_agree_on_every_field_after_every_sample_of_these_sequences():

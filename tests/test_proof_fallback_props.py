@@ -11,7 +11,8 @@ from hypothesis.stateful import RuleBasedStateMachine, initialize, rule
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import admitted, known_finding, reproducer, run_groups, samples_between, settled_failures, window_ends
+from support.proof_support import (admitted, known_finding, reproducer, run_groups, samples_between,
+                           settle_windows, settled_failures, window_ends)
 
 KINDS = ("cable_open", "cap_open", "both", "load_off")
 
@@ -28,9 +29,10 @@ def _fault_case(draw):
     scs = []
     for n, p in enumerate(batch):
         kind = draw(st.sampled_from(KINDS))
-        at = bd.SETTLE_WINDOWS + draw(st.floats(0.0, 0.999))
+        settle = max(bd.SETTLE_WINDOWS, settle_windows(hs.design_scenario(p, 1)))
+        at = settle + draw(st.floats(0.0, 0.999))
         until = at + bd.LOAD_OFF_WINDOWS + draw(st.integers(0, 8))
-        total = int(math.ceil(until)) + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS
+        total = int(math.ceil(until)) + settle + bd.CHECK_WINDOWS
         if kind == "load_off":
             p = replace(p, load_steps=((at, 0.0), (until, 1.0)))
             faults = ()
@@ -75,7 +77,7 @@ def test_faults_drop_the_correction_to_zero_in_the_stated_windows_and_it_recover
         v_max = float(lr.run.channels["v_load_v"][event_s, b].max())
         if v_max > limit:
             why.append(f"{kind}: load reached {v_max:.6g} V > target + margin {limit:.6g} V")
-        w_back = int(math.ceil(until)) + bd.RECOVER_WINDOWS
+        w_back = int(math.ceil(until)) + max(bd.RECOVER_WINDOWS, settle_windows(sc))
         why += settled_failures(lr, b, sc, w_back, w_back + bd.CHECK_WINDOWS)
         assert not why, reproducer(sc, "; ".join(why))
 
@@ -94,7 +96,11 @@ class FaultMachine(RuleBasedStateMachine):
                        if sc in scs and sc.sensing.sample_rate_hz == min(rates, default=0)]
         assume(self.plants)
         self.win = max(hs.window_s(hs.design_scenario(p, 1)) for p in self.plants)
-        self.now = float(bd.SETTLE_WINDOWS)            # in windows of the slowest plant
+        # Settle (and recovery) bound in windows of the slowest plant: the longest of the plants'.
+        self.settle = max([bd.SETTLE_WINDOWS] + [
+            math.ceil(settle_windows(hs.design_scenario(p, 1)) * hs.window_s(hs.design_scenario(p, 1))
+                      / self.win) for p in self.plants])
+        self.now = float(self.settle)                  # in windows of the slowest plant
         self.open = [dict() for _ in self.plants]      # kind -> opened at (window)
         self.intervals = [[] for _ in self.plants]     # (kind, at, until)
         self.steps = [[] for _ in self.plants]         # (window, factor)
@@ -125,7 +131,7 @@ class FaultMachine(RuleBasedStateMachine):
         for b in range(len(self.plants)):
             for kind, at in self.open[b].items():
                 self.intervals[b].append((kind, at, self.now))
-        end = int(math.ceil(self.now)) + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS
+        end = int(math.ceil(self.now)) + max(bd.RECOVER_WINDOWS, self.settle) + bd.CHECK_WINDOWS
         scs = []
         for b, p in enumerate(self.plants):
             p = replace(p, load_steps=tuple(self.steps[b]))

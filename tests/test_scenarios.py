@@ -1,6 +1,7 @@
 """Every bundled scenario as a regression test: linedrop holds the load and beats every baseline.
 
-The scenarios are invented demo data (harness/scenario/scenarios/*.toml). The 1 % band
+The scenarios are invented demo data (harness/scenario/scenarios/*.toml), run as simulate runs
+them: with design's recommended settings, as they have no [algorithm] table. The 1 % band
 is the issue's acceptance figure for the demo; the baselines run through the
 same plant, sensing and seed.
 """
@@ -8,6 +9,7 @@ import os
 
 import pytest
 
+from harness.design.settings import with_settings
 from harness.loop.closed_loop import COMPENSATIONS, simulate
 from harness.loop.metrics import metrics
 from harness.scenario.read import load_scenario
@@ -18,7 +20,7 @@ SCENARIOS = ["demo_mast", "garden_lamps", "parking_camera", "mast_faults"]
 
 @pytest.fixture(scope="module", params=SCENARIOS)
 def results(request):
-    sc = load_scenario(os.path.join(HERE, request.param + ".toml"))
+    sc, _ = with_settings(load_scenario(os.path.join(HERE, request.param + ".toml")))   # design's
     out = {comp: metrics(simulate([sc], "c", comp)) for comp in COMPENSATIONS}
     return request.param, sc, out
 
@@ -31,9 +33,13 @@ def test_load_is_held_within_one_percent_of_target_after_settling(results):
 
 
 def test_linedrop_beats_every_baseline_but_sense_wires_on_steady_load_error(results):
-    name, _, out = results
+    name, sc, out = results
     mine = abs(out["linedrop"]["load_error_v"])
+    c = sc.cable
+    at_20c = c.temperature_c == 20.0 and c.temperature_end_c in (None, 20.0)
     for comp in ("none", "fixed", "difference"):
+        if comp == "fixed" and at_20c:
+            continue      # its setting was made right at 20 degC: on a 20 degC cable it is exact
         assert mine < abs(out[comp]["load_error_v"]), (name, comp)
 
 

@@ -63,6 +63,10 @@ def test_window_outcomes_count_every_window_of_the_run(capsys, short_demo):
     cfg = algo_config(load_scenario(short_demo))
     n_windows = int(0.3 * cfg.sample_rate_hz) // cfg.window_samples
     assert sum(doc["window_outcomes"].values()) == n_windows
-    assert doc["window_outcomes"]["valid"] >= n_windows - 3    # a steady demo: all but the first few
+    # A steady demo: every window valid but the first (no estimate yet) and the few the start of
+    # the correction flags as transient (its own charging current moves the period sums).
+    outcomes = doc["window_outcomes"]
+    assert outcomes["valid"] >= n_windows - 6
+    assert {k for k, n in outcomes.items() if n and k != "valid"} <= {"transient", "none"}
     baseline = _json(capsys, ["simulate", str(short_demo), "--compensation", "fixed", "--json"])
     assert baseline["window_outcomes"] is None

@@ -17,9 +17,13 @@ Rules (each a plain sizing rule; the ones without a published source are marked 
   which stays stable for an estimate down to LOW_TARGET of the true one; the first is the
   robustness rule tau >~ 2 (GM - 1) R C of the right-half-plane zero a high estimate brings. compensation 1 (the law leaves no steady error), kp_max KP_HEADROOM times the
   nominal gain.
-* The ADC's phase (adc_phase_samples): the lead of the sampled supply voltage over the voltage
-  that drives the cable, from the supply's first-order inner loop sampled at the end of each
-  DAC hold (half a sample for an ideal source, less for a slower one).
+* The ADC's phase (adc_phase_samples): the phase, in samples, of V/I as the sampled supply
+  voltage and current show it over the continuous plant's impedance Z(jw) at the perturbation,
+  from the harness's plant (a zero-order-held command, both channels sampled at the end of each
+  hold; harness.design.loop_model) at the lightest load and the coolest cable. It depends on
+  where the ADC samples relative to the DAC update and on how smooth the plant's response is:
+  about -0.5 for an ideal source into an inductive or capacitive run, near 0 for a resistive
+  one or a slow supply. A real board's trigger timing differs: calibrate it there.
 * Perturbation amplitude: pert_fraction of R*I, floor a current swing of FLOOR_LSB current-ADC
   LSBs, ceiling the smaller of the 10 % rule at the largest load and a load ripple of
   RIPPLE_FRACTION of target_v (peak).
@@ -33,7 +37,7 @@ from dataclasses import replace
 from algo.config import SETTINGS
 from harness.scenario.algo_setup import algo_config
 from harness.scenario.conductors import temperature_scale
-from harness.design.loop_model import analyse
+from harness.design.loop_model import analyse, window_plant
 from harness.design.operating_point import load_values, operating_point
 
 AC_SHORT = 10.0          # capacitor reactance at f at most R_min / this
@@ -145,28 +149,16 @@ def pick_frequency(scenario, fs, r_min):
     return rate / 32, 32, rate
 
 
-def adc_phase(fs, bw_hz, n):
-    """Lead (samples) of the sampled supply voltage's fundamental over the continuous voltage
-    that drives the cable, for a first-order inner loop of bandwidth ``bw_hz`` (0: ideal) fed by
-    a zero-order-held command and sampled at the end of each hold (the harness's timing).
-
-    The samples see the discrete response (1 - a) / (1 - a z^-1), a = exp(-2 pi bw / fs); the
-    cable sees the continuous one, H(jw) times the hold's e^(+jw/2) sinc(w/2) (the value held
-    up to a sample is that sample's). The lead is the phase of their ratio at the perturbation,
-    w = 2 pi / n per sample: -0.5 for an ideal source, near 0 for one much slower than fs.
-    """
-    w = 2 * math.pi / n
-    hold = complex(math.cos(w / 2), math.sin(w / 2)) * math.sin(w / 2) / (w / 2)
-    if bw_hz <= 0:
-        ratio = 1.0 / hold
-    else:
-        a = math.exp(-2 * math.pi * bw_hz / fs)
-        z_1 = complex(math.cos(-w), math.sin(-w))
-        h_d = (1 - a) / (1 - a * z_1)
-        wc = 2 * math.pi * bw_hz / fs
-        h_c = wc / complex(wc, w)
-        ratio = h_d / (h_c * hold)
-    return math.atan2(ratio.imag, ratio.real) / w
+def sampling_phase(scenario, settings):
+    """adc_phase_samples for ``settings`` (a dict of [algorithm] keys) on the scenario's plant:
+    the lead of the samples' V/I over Z(jw) at the lightest load and the coolest cable."""
+    cfg = algo_config(scenario, settings)
+    r_min, _ = resistance_range(scenario)
+    value = min(load_values(scenario.load), key=lambda v: operating_point(scenario, cfg, v, r_min).i_a)
+    op = operating_point(scenario, cfg, value, r_min)
+    wp = window_plant(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a), False,
+                      n_samples=cfg.period_samples)
+    return wp.lead_samples
 
 
 def operating_points(scenario, cfg):
@@ -238,8 +230,8 @@ def recommend(scenario):
     tau = max(TAU_PERIODS * period_s, 3.0 / (2 * math.pi * bw) if bw > 0 else 0.0)
     rec.update(compensation=1.0, corr_frac_bits=CORR_FRAC,
                corr_max_v=_clip("corr_max_v", min(headroom, HEADROOM_FACTOR * r_max * i_max)),
-               capacitance_f=_clip("capacitance_f", le.capacitance_f),
-               adc_phase_samples=_clip("adc_phase_samples", adc_phase(fs, bw, n)))
+               capacitance_f=_clip("capacitance_f", le.capacitance_f))
+    rec["adc_phase_samples"] = _clip("adc_phase_samples", sampling_phase(scenario, dict(rec, sample_rate_hz=fs)))
     best = None
     while tau <= TAU_MAX_S:
         trial = dict(rec, loop_tau_ms=_clip("loop_tau_ms", tau * 1e3),

@@ -63,8 +63,10 @@ class WindowPlant:
     lx: np.ndarray
     lu: float
     ld: float
-    r0_ohm: float        # raw estimate at the operating point: Re(V/I) at the perturbation
+    r0_ohm: float        # estimate at the operating point: Re(V/I) of the samples, turned back by
+                         # the configured adc_phase_samples
     x0_ohm: float        # its quadrature part, ohm
+    lead_samples: float  # phase of the samples' V/I over the continuous plant's Z(jw), samples
     stable: bool         # the plant alone is stable (a constant-power load can make it not)
 
 
@@ -131,6 +133,10 @@ def window_plant(op, cfg, pert_v, leak=True, n_samples=None):
     z = np.exp(1j * theta)
     resp = c @ np.linalg.solve(z * eye - ad, z * bd[:, 0]) + d[:, 0]   # per-sample H(e^{j theta})
     zp = resp[0] / resp[1]
+    jw = 1j * theta * cfg.sample_rate_hz
+    cont = c @ np.linalg.solve(jw * eye - a, b[:, 0]) + d[:, 0]         # continuous H(jw)
+    lead = float(np.angle(zp / (cont[0] / cont[1])) / theta)
+    z_est = zp * np.exp(-1j * theta * cfg.adc_phase_samples)
     q_i = pert_v * w_len * resp[1] / 2j                                # steady demodulated current
     if leak:
         row = (c[0] - zp * c[1]) @ sum_rot / q_i
@@ -138,8 +144,8 @@ def window_plant(op, cfg, pert_v, leak=True, n_samples=None):
     else:
         lx, lin = np.zeros(n), np.zeros(2)
     return WindowPlant(phi=ad_w, gu=gam[:, 0], gd=gam[:, 1], hx=hx, hu=hin[0], hd=hin[1], vx=vx,
-                       vu=vin[0], vd=vin[1], lx=lx, lu=lin[0], ld=lin[1], r0_ohm=float(zp.real),
-                       x0_ohm=float(zp.imag), stable=stable)
+                       vu=vin[0], vd=vin[1], lx=lx, lu=lin[0], ld=lin[1], r0_ohm=float(z_est.real),
+                       x0_ohm=float(z_est.imag), lead_samples=lead, stable=stable)
 
 
 def loop_gains(cfg, wp, scale=1.0):

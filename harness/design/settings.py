@@ -25,15 +25,19 @@ def with_settings(scenario, algorithm_path=None):
 
     ``algorithm_path`` (a TOML file holding only ``[algorithm]``, as ``design --algorithm-out``
     writes it) replaces the scenario's table; without it the scenario's own table is used, and a
-    scenario without one runs the algorithm's defaults, which the line says in plain words.
+    scenario without one runs design's recommendation for its plant, which the line says in plain
+    words (with the sample rate, where the recommendation changes it).
     """
     if algorithm_path:
         return replace(scenario, algorithm=algorithm_table(algorithm_path)), f"settings: {algorithm_path}"
     if scenario.algorithm:
         return scenario, "settings: the scenario's [algorithm] table"
-    return scenario, ("settings: the algorithm's defaults (the scenario has no [algorithm] table; "
-                      "linedrop design --algorithm-out FILE writes settings for this plant, "
-                      "simulate --algorithm FILE runs them)")
+    sc = recommended(scenario)
+    rate = ""
+    if sc.sensing.sample_rate_hz != scenario.sensing.sample_rate_hz:
+        rate = f", at the {sc.sensing.sample_rate_hz:g} Hz sample rate it needs"
+    return sc, ("settings: recommended by linedrop design for this plant (the scenario has no "
+                f"[algorithm] table){rate}; linedrop design --algorithm-out FILE writes them")
 
 
 def recommended(scenario):

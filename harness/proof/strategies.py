@@ -42,6 +42,9 @@ MAX_RATE_HZ = RATES_HZ[-1]
 #: Highest f_lo = AC_SHORT / (2 pi R C) the sizing rules serve: f_lo <= fs / 32 at the top rate.
 F_LO_MAX_HZ = MAX_RATE_HZ / 32
 F_LO_MIN_HZ = design.AC_SHORT / (2 * math.pi * R_RANGE[1] * C_RANGE[1])
+#: Highest perturbation frequency the calculator can reach at all: the top rate, MIN_PERIOD
+#: samples per period. Plants whose f_lo is above it (with an octave's room) are unservable.
+F_REACH_HZ = MAX_RATE_HZ / design.MIN_PERIOD
 #: Largest cable drop as a share of target_v per load kind; constant power stops at the design
 #: calculator's CP_DROP_SHARE warning (a sizing rule, harness.design.report).
 DROP_MAX = {"constant_current": 0.5, "resistive": 0.5, "constant_power": 0.2, "lamp": 0.5}
@@ -120,7 +123,7 @@ def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, s
         f_lo = corner * draw(st.floats(0.7, 1.4))
         f_lo = min(max(f_lo, F_LO_MIN_HZ), F_LO_MAX_HZ)
     else:
-        f_lo = draw(_log(2 * F_LO_MAX_HZ, design.AC_SHORT / (2 * math.pi * R_RANGE[0] * C_RANGE[0])))
+        f_lo = draw(_log(2 * F_REACH_HZ, design.AC_SHORT / (2 * math.pi * R_RANGE[0] * C_RANGE[0])))
     rc = design.AC_SHORT / (2 * math.pi * f_lo)
     r_lo, r_hi = max(R_RANGE[0], rc / C_RANGE[1]), min(R_RANGE[1], rc / C_RANGE[0])
     r = draw(_log(r_lo, r_hi))
