@@ -21,9 +21,9 @@ def _json(capsys, argv):
     return json.loads(capsys.readouterr().out)
 
 
-def test_without_an_algorithm_table_simulate_says_it_runs_the_defaults(capsys, short_demo):
+def test_without_an_algorithm_table_simulate_says_it_runs_designs_recommendation(capsys, short_demo):
     doc = _json(capsys, ["simulate", str(short_demo), "--json"])
-    assert "defaults" in doc["settings"] and "design --algorithm-out" in doc["settings"]
+    assert "recommended by linedrop design" in doc["settings"] and "design --algorithm-out" in doc["settings"]
     assert doc["warnings"] == []                                            # the demo is compensated
 
 
@@ -32,9 +32,10 @@ def test_design_file_runs_through_simulate_and_changes_the_run(capsys, short_dem
     assert main(["design", str(short_demo), "--algorithm-out", str(algo)]) == 0
     capsys.readouterr()
     with_file = _json(capsys, ["simulate", str(short_demo), "--algorithm", str(algo), "--json"])
-    defaults = _json(capsys, ["simulate", str(short_demo), "--json"])
+    recommended = _json(capsys, ["simulate", str(short_demo), "--json"])
     assert with_file["settings"] == f"settings: {algo}"
-    assert with_file["r_estimate_ohm"] != defaults["r_estimate_ohm"]     # other settings, other run
+    # No [algorithm] table: simulate runs design's recommendation, the same settings as the file.
+    assert with_file["r_estimate_ohm"] == recommended["r_estimate_ohm"]
 
 
 def test_an_algorithm_file_may_not_set_what_the_plant_fixes(capsys, short_demo, tmp_path):
