@@ -188,7 +188,7 @@ class BatchModel:
         du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) > np.abs(du_prev) + (cmax >> 3)))
-        forced = s.bad_windows[k] >= p.fault_windows[k]
+        forced = (s.bad_windows[k] >= p.fault_windows[k]) | (s.valid_run[k] < 2)
         upd = on & ~forced
         s.kp_off[k] = np.where(upd, np.where(rang, s.kp_off[k] + 1, 0), s.kp_off[k])
         s.corr_target[k] = np.where(forced, 0, tgt)
@@ -234,13 +234,15 @@ class BatchModel:
         status, r_raw = self._classify(k)
         s.r_raw[k] = r_raw
         valid = status == st.STATUS_VALID
-        # update_estimate: the first valid window is taken as it is, then gains 1/2 ... 2**-r_shift.
+        # update_estimate: the first valid window is taken as it is and waits for a second within
+        # r_step_max to confirm it (else that one replaces it), then gains 1/2 ... 2**-r_shift.
         r_est, run, dmax = s.r_est[k], s.valid_run[k], p.r_step_max_q[k]
         shift = np.minimum(_bit_length(run), p.r_shift[k])
         d = np.clip(_step_toward(r_est, r_raw, shift) - r_est, -dmax, dmax)
-        folded = np.where(run == 0, r_raw, np.clip(r_est + d, 0, p.r_max_q[k]))
+        anew = (run == 0) | ((run == 1) & (np.abs(r_raw - r_est) > dmax))
+        folded = np.where(anew, r_raw, np.clip(r_est + d, 0, p.r_max_q[k]))
         r_est = np.where(valid, folded, r_est)
-        run = np.where(valid, np.minimum(run + 1, 0xFF), run)
+        run = np.where(valid, np.where(anew, 1, np.minimum(run + 1, 0xFF)), run)
         held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
         bad = np.where(valid, 0, np.where(held, s.bad_windows[k],
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))

@@ -119,18 +119,22 @@ def command_base(p, s):
 def update_estimate(p, s, r_raw):
     """Fold a valid window into the estimate.
 
-    The first valid window after init, a reset or a forced zero is taken as it is (valid_run 0:
-    shift 0); then the gain falls as 1, 1/2, 1/4 ... with the count of valid windows, down to the
-    steady 2**-r_shift, and from the second window on a step is at most r_step_max.
+    The first valid window after init, a reset or a forced zero is taken as it is (valid_run 0);
+    the correction starts only once a second valid window confirms it: one within r_step_max of
+    it is averaged in (gain 1/2), one further off replaces it and waits for its own confirmation
+    (a window caught in a recharge or a current limit reads wrong once, not twice alike). Then
+    the gain falls as 1/4, 1/8 ... with the count of valid windows, down to the steady
+    2**-r_shift, each step at most r_step_max.
 
     Scaling and overflow: r_raw and r_est are in [0, r_max_q], so every difference fits int32.
     """
     shift = min(bit_length(s.valid_run), p.r_shift)
-    if s.valid_run == 0:
+    if s.valid_run == 0 or (s.valid_run == 1 and abs(r_raw - s.r_est) > p.r_step_max_q):
         s.r_est = r_raw
-    else:
-        d = step_toward(s.r_est, r_raw, shift) - s.r_est
-        s.r_est = sat(s.r_est + sat(d, -p.r_step_max_q, p.r_step_max_q), 0, p.r_max_q)
+        s.valid_run = 1
+        return
+    d = step_toward(s.r_est, r_raw, shift) - s.r_est
+    s.r_est = sat(s.r_est + sat(d, -p.r_step_max_q, p.r_step_max_q), 0, p.r_max_q)
     s.valid_run = min(s.valid_run + 1, 0xFF)
 
 

@@ -189,7 +189,7 @@ class IdealBatch:
         du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) > np.abs(du_prev) + cmax / 8))
-        forced = self.bad_windows[k] >= self.fault_windows[k]
+        forced = (self.bad_windows[k] >= self.fault_windows[k]) | (self.valid_run[k] < 2)
         upd = on & ~forced
         self.kp_off[k] = np.where(upd, np.where(rang, self.kp_off[k] + 1, 0), self.kp_off[k])
         self.corr_target[k] = np.where(forced, 0.0, tgt)
@@ -224,13 +224,15 @@ class IdealBatch:
         status, r_raw = self._classify(k)
         valid = status == st.STATUS_VALID
         r_est, run = self.r_est[k], self.valid_run[k]
-        # Fast start: the first valid window is taken as it is, then gains 1/2, 1/4 ... 2**-r_shift.
+        # Fast start: the first valid window is taken as it is and waits for a second within
+        # r_step_max to confirm it (else that one replaces it), then gains 1/2 ... 2**-r_shift.
         bits = np.where(run > 0, np.frexp(run)[1], 0)
         g = 2.0 ** -np.minimum(bits, self.r_shift[k])
         d = np.clip((r_raw - r_est) * g, -self.r_step_max[k], self.r_step_max[k])
-        folded = np.where(run == 0, r_raw, np.clip(r_est + d, 0, self.r_max[k]))
+        anew = (run == 0) | ((run == 1) & (np.abs(r_raw - r_est) > self.r_step_max[k]))
+        folded = np.where(anew, r_raw, np.clip(r_est + d, 0, self.r_max[k]))
         r_est = np.where(valid, folded, r_est)
-        run = np.where(valid, np.minimum(run + 1, 0xFF), run)
+        run = np.where(valid, np.where(anew, 1, np.minimum(run + 1, 0xFF)), run)
         held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
         bad = np.where(valid, 0, np.where(held, self.bad_windows[k],
                                           np.minimum(self.bad_windows[k] + 1, 0xFFFF)))

@@ -85,7 +85,8 @@ def correct(p, s):
     with time constant tau, and no steady error is left. The output is
     clamped to [0, corr_max_q]; the integral does not move while the clamp holds and the error
     pushes further into it (conditional integration, the anti-windup). While the fault counter
-    holds the correction at zero, the integral is cleared too.
+    holds the correction at zero, or no second valid window has confirmed the estimate yet
+    (valid_run < 2), the correction and its integral are zero.
 
     Ring guard: with the load capacitor there, a step of the correction draws its own charging
     current and the error hardly sees it; without it (capacitor open) the error sees the whole
@@ -101,7 +102,7 @@ def correct(p, s):
     ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
     before it is stored.
     """
-    if s.bad_windows >= p.fault_windows:
+    if s.bad_windows >= p.fault_windows or s.valid_run < 2:
         s.corr = s.corr_target = s.integ = s.du_prev = 0
         return
     s.corr_target = drop_period(p, s)

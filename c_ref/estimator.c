@@ -161,9 +161,12 @@ int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
 
 /*
  * Fold a valid window into the estimate.
- * The first valid window after init, a reset or a forced zero is taken as it is (valid_run 0:
- * shift 0); then the gain falls as 1, 1/2, 1/4 ... with the count of valid windows, down to the
- * steady 2**-r_shift, and from the second window on a step is at most r_step_max.
+ * The first valid window after init, a reset or a forced zero is taken as it is (valid_run 0);
+ * the correction starts only once a second valid window confirms it: one within r_step_max of
+ * it is averaged in (gain 1/2), one further off replaces it and waits for its own confirmation
+ * (a window caught in a recharge or a current limit reads wrong once, not twice alike). Then
+ * the gain falls as 1/4, 1/8 ... with the count of valid windows, down to the steady
+ * 2**-r_shift, each step at most r_step_max.
  * Scaling and overflow: r_raw and r_est are in [0, r_max_q], so every difference fits int32.
  */
 static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_raw)
@@ -172,9 +175,13 @@ static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_ra
     if (shift > p->r_shift) {
         shift = p->r_shift;
     }
-    if (s->valid_run == 0u) {
+    if (s->valid_run == 0u ||
+        (s->valid_run == 1u && ld_abs32(r_raw - s->r_est) > p->r_step_max_q)) {
         s->r_est = r_raw;
-    } else {
+        s->valid_run = 1u;
+        return;
+    }
+    {
         int32_t d = ld_step_toward(s->r_est, r_raw, shift) - s->r_est;
         d = ld_sat(d, -p->r_step_max_q, p->r_step_max_q);
         s->r_est = ld_sat(s->r_est + d, 0, p->r_max_q);

@@ -99,7 +99,8 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
  * with time constant tau, and no steady error is left. The output is clamped to
  * [0, corr_max_q]; the integral does not move while the clamp holds and the error pushes
  * further into it (conditional integration, the anti-windup). While the fault counter holds
- * the correction at zero, the integral is cleared too.
+ * the correction at zero, or no second valid window has confirmed the estimate yet
+ * (valid_run < 2), the correction and its integral are zero.
  * Ring guard: with the load capacitor there, a step of the correction draws its own charging
  * current and the error hardly sees it; without it (capacitor open) the error sees the whole
  * step and a proportional gain above 1 makes the correction swing rail to rail every period.
@@ -120,7 +121,7 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
     int rang;
     int64_t integ, kp, u;
 
-    if (s->bad_windows >= p->fault_windows) {
+    if (s->bad_windows >= p->fault_windows || s->valid_run < 2u) {
         s->corr = 0;
         s->corr_target = 0;
         s->integ = 0;
