@@ -1,13 +1,17 @@
 """Scenario files: demo files load, and bad input gives one-line errors naming key and range."""
 
+import tomllib
 from pathlib import Path
 
 import pytest
 
+from harness.cli.main import main
 from harness.plant.rig import build_rig
 from harness.errors import InputError
 from algo.config import SETTINGS
 from harness.scenario.read import load_scenario, parse_scenario
+from harness.scenario.specs import restart_voltage
+from harness.scenario.write import scenario_to_toml
 
 SCENARIOS = Path(__file__).resolve().parents[1] / "harness" / "scenario" / "scenarios"
 
@@ -75,6 +79,12 @@ def test_defaults_are_filled_in(tmp_path):
     ('kind = "constant_current"\ncurrent_a = 1.0', 'kind = "constant_power"\npower_w = 70.0',
      ["load.power_w = 70.0", "the most the cable can deliver"]),
     ("[load_end]", "[load_edn]", ["load_edn", "unknown section"]),
+    ("current_a = 1.0", "current_a = 1.0\nrestart_v = 5.0", ["load.restart_v = 5.0", "[6, 24)"]),
+    ("current_a = 1.0", "current_a = 1.0\nrestart_v = 24.0", ["load.restart_v = 24.0", "[6, 24)"]),
+    ("current_a = 1.0", "current_a = 1.0\ncutoff_v = 10.0\nrestart_v = 9.5", ["load.restart_v = 9.5", "[10, 24)"]),
+    ("current_a = 1.0", "current_a = 1.0\nrestart_v = \"high\"", ["load.restart_v = \"high\"", "number"]),
+    ('kind = "constant_current"\ncurrent_a = 1.0', 'kind = "resistive"\nresistance_ohm = 10.0\nrestart_v = 8.0',
+     ["load.restart_v", "unknown key", "resistive"]),
 ])
 def test_bad_values_give_one_line_error_naming_file_key_and_range(tmp_path, old, new, fragments):
     """Brief's error format: ``file: key = value: allowed range`` on one line. Loop resistance
@@ -87,6 +97,30 @@ def test_bad_values_give_one_line_error_naming_file_key_and_range(tmp_path, old,
     assert "\n" not in msg and msg.startswith(str(path) + ": ")
     for frag in fragments:
         assert frag in msg, msg
+
+
+@pytest.mark.parametrize("cutoff, restart", [(6.0, 6.6), (20.0, 22.0), (23.0, 23.5)])
+def test_default_restart_is_a_tenth_above_the_cutoff_capped_halfway_to_the_target(tmp_path, cutoff, restart):
+    """Documented default (harness/scenario/SCENARIO_KEYS.md): min(1.1 cutoff_v, (cutoff_v + target_v) / 2)
+    at target_v = 24 V; the plant uses it."""
+    sc = load_scenario(_write(tmp_path, BASE.replace("current_a = 1.0", f"current_a = 1.0\ncutoff_v = {cutoff}")))
+    assert sc.load.restart_v is None
+    assert restart_voltage(sc.load, sc.supply.target_v) == pytest.approx(restart, rel=1e-12)
+    assert build_rig([sc]).plant.loads.restart_v[0] == pytest.approx(restart, rel=1e-12)
+
+
+def test_restart_v_is_read_and_written_back(tmp_path):
+    """scenario_to_toml round trip (harness/scenario/write.py's contract): restart_v survives it."""
+    sc = load_scenario(_write(tmp_path, BASE.replace("current_a = 1.0", "current_a = 1.0\nrestart_v = 9.25")))
+    assert sc.load.restart_v == 9.25
+    assert parse_scenario(tomllib.loads(scenario_to_toml(sc)), sc.source).load == sc.load
+
+
+def test_bad_restart_v_exits_with_status_2_and_one_line(capsys, tmp_path):
+    path = _write(tmp_path, BASE.replace("current_a = 1.0", "current_a = 1.0\nrestart_v = 30.0"))
+    assert main(["design", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "load.restart_v = 30.0" in err and "[6, 24)" in err, err
 
 
 def test_profile_csv_is_read_relative_to_scenario(tmp_path):

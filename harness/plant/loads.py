@@ -3,6 +3,8 @@
 import numpy as np
 from scipy.optimize import brentq
 
+from harness.scenario.specs import restart_voltage
+
 #: Filament cold-to-hot resistance ratio (about 1/15 for tungsten lamps, from memory).
 LAMP_COLD_RATIO = 1.0 / 15.0
 #: Exponent of tungsten resistance vs absolute temperature, R ~ T**1.2 (from memory).
@@ -53,24 +55,35 @@ class LoadBank:
 
     Each sample the plant asks for a Norton companion ``i = i_n + g * v`` valid near the
     present load-end voltage: exact for resistive loads, the tangent of ``i = P / v`` for a
-    constant-power load, ``g = 0`` for a constant-current load. Below ``cutoff_v`` constant
-    current and constant power loads turn resistive (the resistance they show at the cut-off),
-    so a discharged load end draws no current from nothing. A lamp is a resistance
-    ``R = R_hot * u**1.2`` set by its normalised filament temperature ``u``, which follows the
-    power balance ``tc * du/dt = (v**2 / R) / rated_w - loss(u)`` with radiated loss ~ u**4,
-    ``tc`` chosen so the small-signal time constant at the rated point is ``thermal_tau_s``.
+    constant-power load, ``g = 0`` for a constant-current load. Constant-current and
+    constant-power loads with a ``cutoff_v`` have an undervoltage lockout with hysteresis: an
+    on load turns off when its load-end voltage falls below ``cutoff_v``, an off load turns on
+    when it rises to ``restart_v`` or above, and an off load draws nothing (``g = 0``,
+    ``i_n = 0``). The on/off flag is state, updated once per sample by :meth:`update_lockout`.
+    A lamp is a resistance ``R = R_hot * u**1.2`` set by its normalised filament temperature
+    ``u``, which follows the power balance ``tc * du/dt = (v**2 / R) / rated_w - loss(u)`` with
+    radiated loss ~ u**4, ``tc`` chosen so the small-signal time constant at the rated point is
+    ``thermal_tau_s``.
 
     Parameters
     ----------
     loads : sequence of harness.scenario.specs.LoadSpec
         One load per scenario.
+    target_v : sequence of float, optional
+        supply.target_v of each scenario, V: caps the default restart voltage (see
+        harness.scenario.specs.restart_voltage); no cap when omitted.
     """
 
-    def __init__(self, loads):
+    def __init__(self, loads, target_v=None):
         self.specs = list(loads)
         n = len(self.specs)
         self.kind = np.array([_KIND_CODE[s.kind] for s in self.specs])
         self.cutoff_v = np.array([s.cutoff_v for s in self.specs], dtype=float)
+        caps = [np.inf] * n if target_v is None else list(target_v)
+        self.restart_v = np.array([restart_voltage(s, t) for s, t in zip(self.specs, caps)], dtype=float)
+        #: Loads with an undervoltage lockout, and whether each load is on (always, without one).
+        self.lockout = ((self.kind == _CC) | (self.kind == _CP)) & (self.cutoff_v > 0)
+        self.on = np.ones(n, dtype=bool)
         self.value = np.array([s.value for s in self.specs], dtype=float)
         rated_v = np.array([s.rated_v or 1.0 for s in self.specs], dtype=float)
         self.rated_w = np.where(self.kind == _LAMP, self.value, 1.0)
@@ -85,10 +98,9 @@ class LoadBank:
         self._profiles = _padded([s.profile for s in self.specs])
         edges = [p[0] for s in self.specs for p in (*s.steps, *s.profile)]
         self.edges_s = np.unique(np.array(edges + [np.inf], dtype=float))
-        self._vc = np.where(self.cutoff_v > 0, self.cutoff_v, 1.0)
         self._cp = _selector(self.kind == _CP)
         self._lamp = _selector(self.kind == _LAMP)
-        self._has_cutoff = bool((self.cutoff_v > 0).any())
+        self._has_lockout = bool(self.lockout.any())
         self._win = (np.inf, -np.inf)
 
     def _window(self, t_s):
@@ -120,12 +132,11 @@ class LoadBank:
         self._statics(self._base)
 
     def _statics(self, val):
-        """Companion parts that depend only on the load values: above and below the cut-off."""
+        """Companion parts of on loads that depend only on the load values."""
         self._val = val
-        cc, res, cp = self.kind == _CC, self.kind == _RES, self.kind == _CP
+        cc, res = self.kind == _CC, self.kind == _RES
         self._g_hi = np.where(res, 1.0 / np.where(res, val, 1.0), 0.0)
         self._i_hi = np.where(cc, val, 0.0)
-        self._g_lo = np.where(cc, val / self._vc, np.where(cp, val / self._vc**2, self._g_hi))
         self._neg_p = -val[self._cp]
         self._two_p = 2.0 * val[self._cp]
 
@@ -151,7 +162,9 @@ class LoadBank:
         return self.r_hot * self.u**LAMP_R_EXPONENT
 
     def companion(self, t_s, v_load):
-        """Norton companion of each load near ``v_load``.
+        """Norton companion of each load near ``v_load``, in its present on/off state.
+
+        Does not change the on/off state, so it may be called with trial voltages.
 
         Parameters
         ----------
@@ -177,11 +190,9 @@ class LoadBank:
             with np.errstate(divide="ignore", invalid="ignore"):
                 g[cp] = self._neg_p / v_cp**2
                 i_n[cp] = self._two_p / v_cp
-        if self._has_cutoff:
-            low = v < self.cutoff_v
-            if low.any():
-                g = np.where(low, self._g_lo, g)
-                i_n = np.where(low, 0.0, i_n)
+        if self._has_lockout and not self.on.all():
+            g = np.where(self.on, g, 0.0)
+            i_n = np.where(self.on, i_n, 0.0)
         if lamp is not None:
             g = g.copy() if g is self._g_hi else g
             g[lamp] = 1.0 / (self.r_hot[lamp] * self.u[lamp] ** LAMP_R_EXPONENT)
@@ -202,28 +213,42 @@ class LoadBank:
         du = (p - _lamp_loss(u)) / self.lamp_tc[lamp]
         self.u[lamp] = np.maximum(u + dt_s * du, LAMP_U_AMBIENT)
 
-    def set_steady(self, v_load):
-        """Set lamp filament temperatures to their steady values at ``v_load`` (V), (B,)."""
+    def update_lockout(self, v_load):
+        """Take up the load-end voltage ``v_load`` (V, (B,)) at the end of a sample: on loads
+        below their cut-off turn off, off loads at or above their restart voltage turn on.
+
+        Call exactly once per plant sample, with the voltage the next sample starts from."""
+        if not self._has_lockout:
+            return
+        v = np.asarray(v_load, dtype=float)
+        self.on = np.where(self.on, v >= self.cutoff_v, v >= self.restart_v) | ~self.lockout
+
+    def set_steady(self, v_load, on=None):
+        """Set lamp filament temperatures to their steady values at ``v_load`` (V), (B,), and
+        the lockout state: ``on`` (bool, (B,)) where given, else on at or above the cut-off."""
         for b in np.flatnonzero(self.kind == _LAMP):
             self.u[b] = lamp_steady_u(max(float(v_load[b]), 0.0) / self.rated_v[b])
+        if on is None:
+            on = np.asarray(v_load, dtype=float) >= self.cutoff_v
+        self.on = np.asarray(on, dtype=bool) | ~self.lockout
 
     def set_cold(self):
-        """Set every lamp filament to ambient temperature."""
+        """Set every lamp filament to ambient temperature and every load with a lockout off."""
         self.u[:] = LAMP_U_AMBIENT
+        self.on = ~self.lockout
 
-    def steady_current(self, t_s, v_load, b):
-        """Steady-state current (A) of load ``b`` at ``v_load`` (V), lamps at thermal equilibrium."""
+    def steady_current(self, t_s, v_load, b, on=True):
+        """Steady-state current (A) of load ``b`` at ``v_load`` (V), lamps at thermal equilibrium;
+        ``on`` False: the load is held off by its lockout (ignored for loads without one)."""
         if self.kind[b] == _LAMP:
             u = lamp_steady_u(max(v_load, 0.0) / self.rated_v[b])
             return v_load / (self.r_hot[b] * u**LAMP_R_EXPONENT)
         val = float(self.value_at(t_s)[b])
-        kind, cutoff = self.kind[b], self.cutoff_v[b]
-        vc = cutoff if cutoff > 0 else 1.0
-        low = v_load < cutoff
+        kind = self.kind[b]
+        if not on and self.lockout[b]:
+            return 0.0 + 0.0 * v_load
         if kind == _RES:
             return 0.0 + 1.0 / val * v_load
         if kind == _CC:
-            return 0.0 + val / vc * v_load if low else val + 0.0 * v_load
-        if low:
-            return 0.0 + val / (vc * vc) * v_load
+            return val + 0.0 * v_load
         return 2.0 * val / v_load + -val / (v_load * v_load) * v_load

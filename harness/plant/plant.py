@@ -40,7 +40,10 @@ class Observation:
 
 
 def _highest_root(f, lo, hi, n=1000):
-    """Highest root of ``f`` in [lo, hi], scanning down from ``hi``; ``f(hi) >= 0`` returns hi."""
+    """Highest root of ``f`` in [lo, hi], scanning down from ``hi``; ``f(hi) >= 0`` returns hi,
+    None when the scan finds no sign change (or ``hi < lo``)."""
+    if hi < lo:
+        return None
     if f(hi) >= 0.0:
         return hi
     grid = np.linspace(hi, lo, n)
@@ -49,7 +52,7 @@ def _highest_root(f, lo, hi, n=1000):
         if f(v) >= 0.0:
             return brentq(f, v, prev, xtol=1e-13, rtol=1e-13)
         prev = v
-    return lo
+    return None
 
 
 class Plant:
@@ -92,7 +95,7 @@ class Plant:
         self.target_v = arr(lambda s: s.supply.target_v)
         self.i_lim = arr(lambda s: np.inf if s.supply.current_limit_a is None else s.supply.current_limit_a)
         self._limited = bool(np.isfinite(self.i_lim).any())
-        self.loads = LoadBank([s.load for s in self.scenarios])
+        self.loads = LoadBank([s.load for s in self.scenarios], self.target_v)
         self.faults = FaultSchedule([s.faults for s in self.scenarios])
         self.systems = DiscreteSystems(n, self.dt_s)
         # z = [v_int, i_cable, v_cap, v_cmd, i_src, i_lim] per scenario: the product's right side.
@@ -192,36 +195,61 @@ class Plant:
         v_supply : float or ndarray of shape (B,), optional
             Supply output voltage, V; defaults to each scenario's ``supply.target_v``. Faults are
             ignored for the operating point. A constant-power load takes the higher of its two
-            operating points. Returns the Observation at t = 0.
+            operating points. A load with an undervoltage lockout starts on where it has an
+            operating point at or above its cut-off, else off. Returns the Observation at t = 0.
         """
         n = self.n_batch
         vs = np.broadcast_to(self.target_v if v_supply is None else np.asarray(v_supply, float), (n,)).copy()
         vs = np.clip(vs, 0.0, self.max_v)
         x, y = np.zeros((n, N_STATE)), np.zeros((n, 3))
-        mode = np.zeros(n, dtype=bool)
+        mode, on = np.zeros(n, dtype=bool), np.ones(n, dtype=bool)
         r0 = self.cables.r_at(0.0)
         solved = {}  # identical scenarios share one operating point
         for b in range(n):
             key = (vs[b], r0[b], self.g_leak[b], self.i_lim[b], self.loads.specs[b])
             if key not in solved:
                 solved[key] = self._operating_point(b, vs[b], r0[b])
-            mode[b], x[b], y[b] = solved[key]
-        self.loads.set_steady(y[:, 2])
+            mode[b], on[b], x[b], y[b] = solved[key]
+        self.loads.set_steady(y[:, 2], on)
         return self._start(x, mode, y[:, 2].copy(), y)
 
     def _operating_point(self, b, vs, r):
         """DC operating point of scenario ``b`` at supply ``vs`` (V) and loop resistance ``r`` (ohm):
-        (current-limited, state, outputs)."""
-        def i_total(v):
-            return self.loads.steady_current(0.0, v, b) + self.g_leak[b] * v
+        (current-limited, load on, state, outputs).
 
-        v_load = _highest_root(lambda v: vs - v - r * i_total(v), 0.0, vs)
+        A load with an undervoltage lockout is on if it has an operating point at or above its
+        cut-off, else off; a load without one is on (at 0 V where it has no operating point)."""
+        if self.loads.lockout[b]:
+            point = self._branch_point(b, vs, r, True, self.loads.cutoff_v[b])
+            on = point is not None
+            if not on:
+                point = self._branch_point(b, vs, r, False, 0.0)    # an off load always has one
+        else:
+            on, point = True, self._branch_point(b, vs, r, True, 0.0, missing=0.0)
+        return (point[0], on) + point[1:]
+
+    def _branch_point(self, b, vs, r, on, lo, missing=None):
+        """Operating point of scenario ``b`` with its load held ``on`` or off and the load-end
+        voltage at or above ``lo`` (V): (current-limited, state, outputs), None where there is
+        none (or the load-end voltage ``missing`` in its place, when given)."""
+        def i_total(v):
+            return self.loads.steady_current(0.0, v, b, on) + self.g_leak[b] * v
+
+        def root(f, hi):
+            v = _highest_root(f, lo, hi)
+            return missing if v is None else v
+
+        v_load = root(lambda v: vs - v - r * i_total(v), vs)
+        if v_load is None:
+            return None
         i = i_total(v_load)
         v_term = vs
         limited = bool(i > self.i_lim[b])
         if limited:
             i = self.i_lim[b]
-            v_load = _highest_root(lambda v: i - i_total(v), 0.0, max(vs - r * i, 0.0))
+            v_load = root(lambda v: i - i_total(v), max(vs - r * i, 0.0))
+            if v_load is None:
+                return None
             v_term = r * i + v_load
         return limited, (vs, i, v_load), (v_term, i, v_load)
 
@@ -260,6 +288,7 @@ class Plant:
         self.loads.advance(v_load, self.dt_s)
         self._x[...] = out[:N_STATE]
         self.v_load = out[4]
+        self.loads.update_lockout(self.v_load)
         self.k = k + 1
         r = self.cables.r_const if self.cables.ramps.size == 0 else self.cables.r_at
         self.last = Observation((k + 1) * self.dt_s, out[3], out[1], out[4], r, mode, t)

@@ -52,7 +52,8 @@ def parse_load(source, table, target_v, r_loop_ohm, duration_s):
     table : dict
         The parsed table.
     target_v : float
-        supply.target_v, V (default cut-off and the deliverable-power check).
+        supply.target_v, V (default cut-off, upper bound of the restart voltage and the
+        deliverable-power check).
     r_loop_ohm : float
         Cable loop resistance at the start, ohm.
     duration_s : float
@@ -76,15 +77,16 @@ def parse_load(source, table, target_v, r_loop_ohm, duration_s):
     else:
         value = sec.number(key, lo, hi, lo_open=lo_open)
     steps = () if kind == "lamp" else _steps(sec, lo, hi, lo_open, duration_s)
-    rated_v, tau, cutoff = None, DEFAULT_LAMP_TAU_S, 0.0
+    rated_v, tau, cutoff, restart = None, DEFAULT_LAMP_TAU_S, 0.0, None
     if kind == "lamp":
         allowed = (allowed - {"steps"}) | {"rated_v", "thermal_tau_s"}
         rated_v = sec.number("rated_v", 0.0, 1000.0, lo_open=True)
         tau = sec.number("thermal_tau_s", 0.0, 100.0, lo_open=True, default=DEFAULT_LAMP_TAU_S)
     if kind in ("constant_current", "constant_power"):
-        allowed |= {"cutoff_v"}
+        allowed |= {"cutoff_v", "restart_v"}
         cutoff = sec.number("cutoff_v", 0.0, target_v, lo_open=True, hi_open=True,
                             default=CUTOFF_FRACTION * target_v)
+        restart = sec.number("restart_v", cutoff, target_v, hi_open=True, default=None)
     if kind == "constant_power":
         p_max = target_v**2 / (4.0 * r_loop_ohm)
         for where, p in [(key, value)] + [(f"steps[{n}][1]", v) for n, (_, v) in enumerate(steps)]:
@@ -93,4 +95,4 @@ def parse_load(source, table, target_v, r_loop_ohm, duration_s):
                          "the most the cable can deliver", p)
     sec.finish(allowed, why=f' for load.kind = {show(kind)}')
     return LoadSpec(kind=kind, value=value, rated_v=rated_v, thermal_tau_s=tau, cutoff_v=cutoff,
-                    steps=steps, profile=profile, profile_csv=profile_csv)
+                    steps=steps, profile=profile, profile_csv=profile_csv, restart_v=restart)

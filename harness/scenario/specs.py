@@ -14,6 +14,11 @@ DEFAULT_INDUCTANCE_H_PER_M = 0.6e-6
 #: Load resistance while a ``load_short`` fault is active, ohm.
 LOAD_SHORT_OHM = 0.01
 
+#: Default restart voltage of a load's undervoltage lockout, as a multiple of its cut-off.
+RESTART_FRACTION = 1.1
+#: The default restart voltage is capped at this fraction of the way from cut-off to target_v.
+RESTART_CAP_FRACTION = 0.5
+
 LOAD_KINDS = ("constant_current", "resistive", "constant_power", "lamp")
 FAULT_KINDS = ("cable_open", "cap_open", "load_short", "adc_stuck")
 
@@ -61,6 +66,9 @@ class LoadSpec:
     ``value`` is the kind's main quantity (current_a, resistance_ohm or power_w; rated_w for a
     lamp). ``steps`` are (time_s, value) pairs that replace ``value`` from time_s on.
     ``profile`` is (time_s, current_a) pairs for a constant-current load from a CSV file.
+    A constant-current or constant-power load with ``cutoff_v`` > 0 turns off below
+    ``cutoff_v`` and back on at ``restart_v`` or above (V); ``restart_v`` None derives it from
+    ``cutoff_v`` (see restart_voltage).
     """
 
     kind: str
@@ -71,6 +79,19 @@ class LoadSpec:
     steps: tuple = ()
     profile: tuple = ()
     profile_csv: Optional[str] = None
+    restart_v: Optional[float] = None
+
+
+def restart_voltage(load, target_v=float("inf")):
+    """Restart voltage (V) of ``load``'s undervoltage lockout under supply.target_v ``target_v`` (V).
+
+    The given ``load.restart_v``, else RESTART_FRACTION * cutoff_v capped at RESTART_CAP_FRACTION
+    of the way from cutoff_v to target_v, so it stays in [cutoff_v, target_v).
+    """
+    if load.restart_v is not None:
+        return load.restart_v
+    cap = load.cutoff_v + RESTART_CAP_FRACTION * (target_v - load.cutoff_v)
+    return min(RESTART_FRACTION * load.cutoff_v, cap)
 
 
 @dataclass(frozen=True)

@@ -46,7 +46,7 @@ def scenario_to_toml(sc, comment=None):
     else:
         load += [("steps", [list(p) for p in ld.steps]) if ld.steps else ("steps", None)]
     if ld.kind in ("constant_current", "constant_power"):
-        load += [("cutoff_v", ld.cutoff_v)]
+        load += [("cutoff_v", ld.cutoff_v), ("restart_v", ld.restart_v)]
     if ld.profile_csv is not None:
         raise ValueError("a scenario with load.profile_csv is written by hand, not by scenario_to_toml")
     out += _table("load", load)
