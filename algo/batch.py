@@ -113,6 +113,7 @@ class BatchModel:
         v = np.minimum(np.maximum(np.asarray(adc_v, dtype=np.int64), 0), p.adc_max)
         i = np.minimum(np.maximum(np.asarray(adc_i, dtype=np.int64), 0), p.adc_max)
         s.clipped[(v == p.adc_max) | (i == p.adc_max) | (i == 0)] = 1
+        s.i_zero[i == 0] = 1
         ph = s.phase
         sn = self._flat.take(self._base + ph)
         cs = self._flat.take(self._base + ((ph + self._quarter) & self._pmask))
@@ -146,6 +147,7 @@ class BatchModel:
         self._period_end(k)
         self._correct(k)
         s.psum[k] = 0
+        s.i_zero[k] = 0
         count = s.count[k]
         h = k[count == self._half_window[k]]
         if h.size:
@@ -176,13 +178,14 @@ class BatchModel:
         drop = _sat32(_rsr(r_c * s.psum[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
         tgt = np.clip(_rsr(drop * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k]),
                       0, S32_MAX)
+        tgt = np.where(s.i_zero[k] != 0, 0, tgt)
         e = tgt - corr0
         integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
         kp = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
         on = s.kp_off[k] < 2
         kp = np.where(on, kp, 0)
         u = _rsr(kp * e, GAIN_FRAC) + integ
-        hold = ((u > cmax) & (e > 0)) | ((u < 0) & (e < 0))
+        hold = (u > cmax) & (e > 0)
         integ = np.where(hold, integ0, integ)
         corr = np.clip(u, 0, cmax)
         du = corr - corr0
@@ -219,9 +222,9 @@ class BatchModel:
         xnum = vq * ii - vi * iq
         r_raw = np.where(low, 0, _sat32(_div_trunc(num << p.r_frac[k], den)))
         status = np.select(
-            [low, s.clipped[k] != 0, s.transient[k] != 0, r_raw > p.r_max_q[k], r_raw < 0,
+            [low, s.clipped[k] != 0, r_raw > p.r_max_q[k], s.transient[k] != 0, r_raw < 0,
              np.abs(xnum) << p.r_frac[k] > p.x_max_q[k] * den],
-            [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_TRANSIENT, st.STATUS_R_HIGH,
+            [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_R_HIGH, st.STATUS_TRANSIENT,
              st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
         valid = status == st.STATUS_VALID

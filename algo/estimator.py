@@ -38,8 +38,11 @@ def classify(p, s):
     """Return ``(status, r_raw)`` for the finished window.
 
     Order: too little current swing first (a cable open with the current near
-    code 0 stays a fault), then a code at a rail, a load step, and the
-    real-part and quadrature limits. A valid window also leaves its (detrended) current swing for
+    code 0 stays a fault), then a code at a rail, a real part above r_max, a load step, and
+    the remaining real-part and quadrature limits. A real part above r_max outranks a load step:
+    with the capacitor gone the correction's own steps move the current and read as load steps
+    every window, while a load step with the capacitor there leaves the detrended real part near
+    the loop's, far below r_max; as a load step it would never count toward the forced zero. A valid window also leaves its (detrended) current swing for
     the load-step detector.
 
     Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
@@ -66,10 +69,10 @@ def classify(p, s):
     r_raw = sat_s32(div_trunc(num << p.r_frac, den))
     if s.clipped:
         return st.STATUS_CLIPPED, r_raw
-    if s.transient:
-        return st.STATUS_TRANSIENT, r_raw
     if r_raw > p.r_max_q:
         return st.STATUS_R_HIGH, r_raw
+    if s.transient:
+        return st.STATUS_TRANSIENT, r_raw
     if r_raw < 0:
         return st.STATUS_R_LOW, r_raw
     if abs(xnum) << p.r_frac > p.x_max_q * den:

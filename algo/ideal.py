@@ -131,6 +131,7 @@ class IdealBatch:
         v = np.clip(np.asarray(adc_v, dtype=np.float64), 0, self.adc_max)
         i = np.clip(np.asarray(adc_i, dtype=np.float64), 0, self.adc_max)
         self.clipped[(v == self.adc_max) | (i == self.adc_max) | (i == 0)] = 1
+        self.i_zero[i == 0] = 1
         ph = self.phase.astype(np.int64)
         sn = self.sin[self._idx, ph]
         cs = self.sin[self._idx, (ph + self.period // 4) % self.period]
@@ -166,6 +167,7 @@ class IdealBatch:
         self.have_prev[k] = 1
         self._correct(k)
         self.psum[k] = 0
+        self.i_zero[k] = 0
         h = k[self.count[k] == self.window[k] // 2]
         self.isum_h[h], self.vsum_h[h] = self.isum[h], self.vsum[h]
         w = k[self.count[k] == self.window[k]]
@@ -179,12 +181,13 @@ class IdealBatch:
         r_est, corr0, integ0, cmax = self.r_est[k], self.corr[k], self.integ[k], self.corr_max[k]
         du_prev = self.du_prev[k]
         tgt = np.maximum(r_est - self.esr[k], 0) * self.psum[k] / self.period[k] * self.corr_gain[k]
+        tgt = np.where(self.i_zero[k] != 0, 0.0, tgt)
         e = tgt - corr0
         integ = integ0 + self.ki[k] * e
         on = self.kp_off[k] < 2
         kp = np.where(on, np.minimum(r_est * self.kc[k], self.kp_max[k]), 0.0)
         u = kp * e + integ
-        integ = np.where(((u > cmax) & (e > 0)) | ((u < 0) & (e < 0)), integ0, integ)
+        integ = np.where((u > cmax) & (e > 0), integ0, integ)
         corr = np.clip(u, 0, cmax)
         du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
@@ -212,9 +215,9 @@ class IdealBatch:
         r_raw = np.where(low, 0.0, (vi * ii + vq * iq) / den)
         x_raw = (vq * ii - vi * iq) / den
         status = np.select(
-            [low, self.clipped[k] != 0, self.transient[k] != 0, r_raw > self.r_max[k],
+            [low, self.clipped[k] != 0, r_raw > self.r_max[k], self.transient[k] != 0,
              r_raw < 0, np.abs(x_raw) > self.x_max[k]],
-            [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_TRANSIENT, st.STATUS_R_HIGH,
+            [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_R_HIGH, st.STATUS_TRANSIENT,
              st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
         self.swing[k] = np.where(status == st.STATUS_VALID, m, self.swing[k])

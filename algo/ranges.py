@@ -22,7 +22,7 @@ STATE_TYPES = {
     "cmd_base": S32, "swing": S32, "windows": (0, (1 << 32) - 1), "phase": (0, 0xFFFF),
     "count": (0, 0xFFFF), "bad_windows": (0, 0xFFFF), "cmd": (0, 0xFFFF), "have_prev": (0, 0xFF),
     "transient": (0, 0xFF), "status": (0, 0xFF), "clipped": (0, 0xFF), "valid_run": (0, 0xFF),
-    "kp_off": (0, 0xFF),
+    "kp_off": (0, 0xFF), "i_zero": (0, 0xFF),
 }
 
 
@@ -76,7 +76,7 @@ def state_bounds(p: Params):
         "r_est": (0, p.r_max_q), "r_raw": S32,
         "corr": (0, p.corr_max_q), "integ": (0, p.corr_max_q), "corr_target": (0, S32[1]),
         "du_prev": (-p.corr_max_q, p.corr_max_q),
-        "swing": (0, S32[1]), "valid_run": (0, 0xFF), "kp_off": (0, 2),
+        "swing": (0, S32[1]), "valid_run": (0, 0xFF), "kp_off": (0, 2), "i_zero": (0, 1),
         "pert_amp": (p.pert_min, p.pert_max),
         "windows": (0, (1 << 32) - 1),
         "phase": (0, per - 1), "count": (0, win - 1),

@@ -48,6 +48,7 @@ class State:
     clipped: int = 0      # uint8: a code sat at a rail in this window (v or i at adc_max, i at 0)
     valid_run: int = 0    # uint8: valid windows since init, reset or a forced zero (saturates)
     kp_off: int = 0       # uint8: ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window
+    i_zero: int = 0       # uint8: a current code 0 in this period (the load draws less than the swing)
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

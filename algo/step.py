@@ -83,10 +83,22 @@ def correct(p, s):
     e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
     ki = T_period / tau: the zero at R-hat * C cancels the cable-capacitor lag, the loop closes
     with time constant tau, and no steady error is left. The output is
-    clamped to [0, corr_max_q]; the integral does not move while the clamp holds and the error
-    pushes further into it (conditional integration, the anti-windup). While the fault counter
+    clamped to [0, corr_max_q]; the integral does not move while the output sits above
+    corr_max_q and the error pushes further up (conditional integration, the anti-windup). At
+    the floor it moves freely: it is itself kept in [0, corr_max_q], so it cannot wind below
+    zero, and holding it there would undo a load dump: the proportional part takes the output
+    to 0, the held integral brings it straight back the next period, and the correction
+    swings between 0 and its old value every period. While the fault counter
     holds the correction at zero, or no second valid window has confirmed the estimate yet
     (valid_run < 2), the correction and its integral are zero.
+
+    A period with a current code at 0 tracks a drop of zero: the load draws less than the
+    perturbation's current swing, the ADC cannot show the negative half, and the period sum of
+    what it does show reads high. Tracking it would let each correction step's charging current
+    (seen when positive, clipped when negative) ratchet the correction up. With the target at
+    zero the correction can only fall while the current clips; the load then sits low by at most
+    (R - ESR) times a current below the swing, until the window's `clipped` outcome has halved
+    the perturbation enough for the current to clear code 0.
 
     Ring guard: with the load capacitor there, a step of the correction draws its own charging
     current and the error hardly sees it; without it (capacitor open) the error sees the whole
@@ -105,12 +117,12 @@ def correct(p, s):
     if s.bad_windows >= p.fault_windows or s.valid_run < 2:
         s.corr = s.corr_target = s.integ = s.du_prev = 0
         return
-    s.corr_target = drop_period(p, s)
+    s.corr_target = 0 if s.i_zero else drop_period(p, s)
     e = s.corr_target - s.corr
     integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
     kp = 0 if s.kp_off >= 2 else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
     u = rshift_round(kp * e, GAIN_FRAC) + integ
-    if (u > p.corr_max_q and e > 0) or (u < 0 and e < 0):
+    if u > p.corr_max_q and e > 0:
         integ = s.integ
     s.integ = sat(integ, 0, p.corr_max_q)
     corr = sat(u, 0, p.corr_max_q)
@@ -134,6 +146,8 @@ def step(p, s, adc_v, adc_i):
     i = sat(adc_i, 0, p.adc_max)
     if v == p.adc_max or i == p.adc_max or i == 0:
         s.clipped = 1
+    if i == 0:
+        s.i_zero = 1
     n = p.period - 1
     sn = p.ref_tab[s.phase]
     cs = p.ref_tab[(s.phase + (p.period >> 2)) & n]
@@ -150,6 +164,7 @@ def step(p, s, adc_v, adc_i):
         _period_end(p, s)
         correct(p, s)
         s.psum = 0
+        s.i_zero = 0
         if s.count == p.window >> 1:
             s.isum_h, s.vsum_h = s.isum, s.vsum
         if s.count == p.window:

@@ -50,8 +50,12 @@ static inline unsigned ld_bit_length64(int64_t u)
 /*
  * Return the status of the finished window and set *r_raw.
  * Order: too little current swing first (a cable open with the current near
- * code 0 stays a fault), then a code at a rail, a load step, and the
- * real-part and quadrature limits. A valid window also leaves its (detrended) current swing for
+ * code 0 stays a fault), then a code at a rail, a real part above r_max, a load step, and
+ * the remaining real-part and quadrature limits. A real part above r_max outranks a load step:
+ * with the capacitor gone the correction's own steps move the current and read as load steps
+ * every window, while a load step with the capacitor there leaves the detrended real part near
+ * the loop's, far below r_max; as a load step it would never count toward the forced zero.
+ * A valid window also leaves its (detrended) current swing for
  * the load-step detector.
  * Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
  * within 2**33 in magnitude. The current pair is shifted right by sh so its larger
@@ -94,11 +98,11 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     if (s->clipped != 0u) {
         return LD_STATUS_CLIPPED;
     }
-    if (s->transient != 0u) {
-        return LD_STATUS_TRANSIENT;
-    }
     if (*r_raw > p->r_max_q) {
         return LD_STATUS_R_HIGH;
+    }
+    if (s->transient != 0u) {
+        return LD_STATUS_TRANSIENT;
     }
     if (*r_raw < 0) {
         return LD_STATUS_R_LOW;

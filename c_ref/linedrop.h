@@ -13,7 +13,7 @@
 
 #define LD_VERSION_MAJOR 0
 #define LD_VERSION_MINOR 4
-#define LD_VERSION_PATCH 0
+#define LD_VERSION_PATCH 1
 
 #define LD_TAB_MAX 256   /* longest perturbation period, samples */
 #define LD_GAIN_FRAC 16  /* fraction bits of corr_gain_q, pert_gain_q, ki_q, kc_q, kp_max_q */
@@ -104,6 +104,7 @@ typedef struct {
     uint8_t clipped;       /* a code sat at a rail in this window (v or i at adc_max, i at 0) */
     uint8_t valid_run;     /* valid windows since init, reset or a forced zero (saturates) */
     uint8_t kp_off;        /* ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window */
+    uint8_t i_zero;        /* a current code 0 in this period (the load draws less than the swing) */
 } ld_state_t;
 
 void ld_init(const ld_params_t *p, ld_state_t *s);

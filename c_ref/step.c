@@ -97,10 +97,21 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
  * e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
  * ki = T_period / tau: the zero at R-hat * C cancels the cable-capacitor lag, the loop closes
  * with time constant tau, and no steady error is left. The output is clamped to
- * [0, corr_max_q]; the integral does not move while the clamp holds and the error pushes
- * further into it (conditional integration, the anti-windup). While the fault counter holds
+ * [0, corr_max_q]; the integral does not move while the output sits above corr_max_q and the
+ * error pushes further up (conditional integration, the anti-windup). At the floor it moves
+ * freely: it is itself kept in [0, corr_max_q], so it cannot wind below zero, and holding it
+ * there would undo a load dump: the proportional part takes the output to 0, the held
+ * integral brings it straight back the next period, and the correction swings between 0 and
+ * its old value every period. While the fault counter holds
  * the correction at zero, or no second valid window has confirmed the estimate yet
  * (valid_run < 2), the correction and its integral are zero.
+ * A period with a current code at 0 tracks a drop of zero: the load draws less than the
+ * perturbation's current swing, the ADC cannot show the negative half, and the period sum of
+ * what it does show reads high. Tracking it would let each correction step's charging current
+ * (seen when positive, clipped when negative) ratchet the correction up. With the target at
+ * zero the correction can only fall while the current clips; the load then sits low by at most
+ * (R - ESR) times a current below the swing, until the window's `clipped` outcome has halved
+ * the perturbation enough for the current to clear code 0.
  * Ring guard: with the load capacitor there, a step of the correction draws its own charging
  * current and the error hardly sees it; without it (capacitor open) the error sees the whole
  * step and a proportional gain above 1 makes the correction swing rail to rail every period.
@@ -128,7 +139,7 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
         s->du_prev = 0;
         return;
     }
-    s->corr_target = ld_drop_period(p, s);
+    s->corr_target = s->i_zero != 0u ? 0 : ld_drop_period(p, s);
     e = s->corr_target - s->corr;
     integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
     kp = 0;
@@ -139,7 +150,7 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
         }
     }
     u = ld_rshift_round64(kp * e, LD_GAIN_FRAC) + integ;
-    if ((u > p->corr_max_q && e > 0) || (u < 0 && e < 0)) {
+    if (u > p->corr_max_q && e > 0) {
         integ = s->integ;
     }
     s->integ = (int32_t)ld_sat64(integ, 0, p->corr_max_q);
@@ -178,6 +189,9 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
     if (v == p->adc_max || i == p->adc_max || i == 0) {
         s->clipped = 1u;
     }
+    if (i == 0) {
+        s->i_zero = 1u;
+    }
     s->acc_vi += (v * sn + half) >> ds;
     s->acc_vq += (v * cs + half) >> ds;
     s->acc_ii += (i * sn + half) >> ds;
@@ -191,6 +205,7 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
         ld_period_end(p, s);
         ld_correct(p, s);
         s->psum = 0;
+        s->i_zero = 0u;
         if (s->count == (uint16_t)(1u << p->window_log2 >> 1)) {
             s->isum_h = s->isum;
             s->vsum_h = s->vsum;

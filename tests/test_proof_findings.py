@@ -1,10 +1,12 @@
-"""Reproducers of the design failures the proof suite found (harness/proof/PROOFS.md, "Open findings").
+"""Regression tests: the design failures the proof suite found (harness/proof/PROOFS.md, "Findings").
 
-Each scenario file in tests/proof_findings/ is a plant the sizing rules admit on which the
-recommended configuration does not converge. They are strict xfails: the day the design is
-fixed the test XPASSes, strict makes that a failure, and the finding's predicate in
-tests/support/proof_support.py (which keeps the property tests from re-finding it meanwhile) is deleted
-together with the marker. Replay one with ``linedrop simulate tests/proof_findings/<file>``.
+Each scenario file in tests/proof_findings/ is a plant the sizing rules admit on which an
+earlier design did not converge or broke a bound. All are fixed; each is run here with the
+settings `linedrop design` recommends for it, as a user would, and must settle. A new finding
+gets its reproducer here as a strict xfail (raises=AssertionError) until it is fixed; the
+property tests draw the full plant ranges and never filter it out. Replay one with
+``linedrop simulate tests/proof_findings/<file>`` (no [algorithm] table: simulate runs design's
+recommendation).
 """
 import math
 from dataclasses import replace
@@ -14,62 +16,50 @@ import pytest
 
 from harness.design.calculator import recommend
 from harness.scenario.read import load_scenario
-from support.proof_support import KNOWN_FINDINGS, run_groups, settle_windows, settled_failures
+from support.proof_support import run_groups, settle_windows, settled_failures
 from harness.proof import bounds as bd
 
 HERE = Path(__file__).parent / "proof_findings"
 FILES = sorted(HERE.glob("*.toml"))
-STEP_FINDINGS = ("d7", "d10")       # broken promise: the transient bound, not convergence
-CALCULATOR_FINDINGS = ("d1", "d2", "d3", "d4")   # findings in the design calculator's choices
-FIXED = ("d1", "d2", "d4")          # fixed in the calculator (fc379ac): regression tests now
-# Fixed in the calculator by keeping the cable's wL below R / 3 (design.L_SHORT); the rest of
-# D3 (x_max leaves out wL) stays open.
-FIXED_FILES = ("d3_inductive_reactance_noisy_estimate",)
+# Fixed in the design calculator (fc379ac, and x_max and the wL rule since 0.4.0: D3), and in
+# the algorithm (D6: the floor of the correction's integral and the zero-current period in 0.4.1;
+# D8: r_low fault windows since 0.3.0), and in the plant (D9: a constant-power load below its
+# cut-off locks out and restarts with hysteresis instead of turning into a resistor that latched
+# on the low branch): regression tests now, run with design's own settings.
+FIXED = ("d1", "d2", "d3", "d4", "d6", "d8", "d9")
 FIXED_STEP = ("d10", "d7")          # fixed in the algorithm: load-step windows do not count as
                                     # faults (d10); the trend removal and the swing-relative step
                                     # detector of 0.4.0 keep a spread-out step out of the estimate (d7)
 
 
 def _fixed(p):
-    return p.stem.split("_")[0] in FIXED or p.stem in FIXED_FILES
-
-
-OPEN = [p for p in FILES if p.stem.split("_")[0] not in STEP_FINDINGS and not _fixed(p)]
-RECOGNISED = [p for p in FILES if not _fixed(p) and p.stem.split("_")[0] not in FIXED_STEP]
-
-
-@pytest.mark.parametrize("path", RECOGNISED, ids=[p.stem for p in RECOGNISED])
-def test_finding_is_still_recognised_by_its_predicate(path):
-    sc = load_scenario(path)
-    assert KNOWN_FINDINGS[path.stem.split('_')[0].upper()](sc)
+    return p.stem.split("_")[0] in FIXED
 
 
 def _converges(path):
+    """The reproducer settles with design's own settings (every finding is judged with what
+    `linedrop design` recommends for its plant, as a user would run it)."""
     sc = load_scenario(path)
-    if path.stem.split("_")[0] in CALCULATOR_FINDINGS:      # re-design: the fix is in the calculator
-        rec, fs = recommend(replace(sc, algorithm={}))
-        sc = replace(sc, algorithm=rec, sensing=replace(sc.sensing, sample_rate_hz=fs))
+    rec, fs = recommend(replace(sc, algorithm={}))
+    sc = replace(sc, algorithm=rec, sensing=replace(sc.sensing, sample_rate_hz=fs))
     (lr, b), = run_groups([sc])
     total = int(lr.trace["windows"][-1, b])
     n = min(settle_windows(sc), total - bd.CHECK_WINDOWS)
+    win = rec["period_samples"] * rec["periods_per_window"] / fs
     if sc.load.steps:       # a short reproducer: check after its last load step, not across it
-        win = sc.algorithm["period_samples"] * sc.algorithm["periods_per_window"] / sc.sensing.sample_rate_hz \
-            if sc.algorithm else None
-        if win:
-            after = int(math.ceil(max(t for t, _ in sc.load.steps) / win)) + 1
-            n = max(n, min(after, total - 2))
+        after = int(math.ceil(max(t for t, _ in sc.load.steps) / win)) + 1
+        n = max(n, min(after, total - 2))
+    ends = [f.until_s for f in sc.faults if f.until_s is not None and math.isfinite(f.until_s)]
+    if ends:                # a fault that ends: the run must come back once it has settled again
+        after = int(math.ceil(max(ends) / win)) + settle_windows(sc)
+        assert after + bd.CHECK_WINDOWS <= total, f"{path.name}: run too short to check recovery"
+        n = max(n, after)
     assert settled_failures(lr, b, lr.run.scenarios[b], n, min(n + bd.CHECK_WINDOWS, total)) == []
 
 
 @pytest.mark.parametrize("path", [p for p in FILES if _fixed(p)],
                          ids=[p.stem for p in FILES if _fixed(p)])
 def test_fixed_finding_converges_with_the_recommended_settings(path):
-    _converges(path)
-
-
-@pytest.mark.xfail(strict=True, reason="open design findings D3, D6, D8, D9, reported to the algo owner")
-@pytest.mark.parametrize("path", OPEN, ids=[p.stem for p in OPEN])
-def test_open_finding_scenario_converges(path):
     _converges(path)
 
 
@@ -84,8 +74,8 @@ def _estimate_holds_through_the_steps(path):
     assert float(abs(r[first:] - r[first - 1]).max()) <= allowed
 
 
-# No load-step finding is open (D7 was the last): the strict xfail for them went with it. A new
-# one would get back a strict xfail here, parametrised over its reproducers.
+# No finding is open: the strict xfails went with them. A new one gets back a strict xfail here,
+# parametrised over its reproducers.
 
 
 @pytest.mark.parametrize("path", [p for p in FILES if p.stem.split("_")[0] in FIXED_STEP],

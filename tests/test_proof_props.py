@@ -12,7 +12,7 @@ from hypothesis import Phase, given, note, settings
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import admitted, reproducer, run_groups, settle_windows, settled_failures, settled_load_v
+from support.proof_support import reproducer, run_groups, settle_windows, settled_failures, settled_load_v
 
 BATCH = 8
 
@@ -32,7 +32,7 @@ def test_converges_from_a_steady_start_within_the_stated_windows(batch):
     for n, p in enumerate(batch):
         sc = hs.design_scenario(p, bd.SETTLE_WINDOWS, seed=n)
         scs.append(hs.design_scenario(p, settle_windows(sc) + bd.CHECK_WINDOWS, seed=n))
-    for lr, b in run_groups(admitted(scs)):
+    for lr, b in run_groups(scs):
         sc = lr.run.scenarios[b]
         cfg = algo_config(sc)
         n_settle = settle_windows(sc)

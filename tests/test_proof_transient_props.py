@@ -8,7 +8,7 @@ from hypothesis import Phase, given, settings
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import admitted, reproducer, run_groups, samples_between, settled_failures, window_ends
+from support.proof_support import reproducer, run_groups, samples_between, settled_failures, window_ends
 
 STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.proof.strategies.plants)
 
@@ -25,7 +25,7 @@ def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_over
     total = bd.SETTLE_WINDOWS + STEP_SPAN + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS
     scs = [hs.design_scenario(p, total, seed=n) for n, p in enumerate(batch) if p.load_steps]
     scs = [replace(sc, source=repr(p.load_current_a)) for p, sc in zip([p for p in batch if p.load_steps], scs)]
-    for lr, b in run_groups(admitted(scs)):
+    for lr, b in run_groups(scs):
         sc = lr.run.scenarios[b]
         cfg = algo_config(sc)
         win = hs.window_s(sc)

@@ -143,7 +143,7 @@ static void ld_tv_print(uint16_t cmd)
 {
     const ld_state_t *s = &ld_tv_s;
     printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu "
-           "%u %u %u %u %u %u %u %u %u %u\n",
+           "%u %u %u %u %u %u %u %u %u %u %u\n",
            (unsigned)cmd, (long)s->acc_vi, (long)s->acc_vq, (long)s->acc_ii, (long)s->acc_iq,
            (long)s->isum, (long)s->vsum, (long)s->isum_h, (long)s->vsum_h,
            (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
@@ -151,7 +151,8 @@ static void ld_tv_print(uint16_t cmd)
            (long)s->pert_amp, (long)s->cmd_base, (long)s->swing, (unsigned long)s->windows,
            (unsigned)s->phase, (unsigned)s->count, (unsigned)s->bad_windows, (unsigned)s->cmd,
            (unsigned)s->have_prev, (unsigned)s->transient, (unsigned)s->status,
-           (unsigned)s->clipped, (unsigned)s->valid_run, (unsigned)s->kp_off);
+           (unsigned)s->clipped, (unsigned)s->valid_run, (unsigned)s->kp_off,
+           (unsigned)s->i_zero);
 }
 
 int main(int argc, char **argv)

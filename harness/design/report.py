@@ -12,8 +12,6 @@ ELV_LIMIT_V = 60.0
 #: Constant-power load: warn when the cable drop exceeds this share of the load voltage (the
 #: loop model's gain margin falls with it; common practice, no published source).
 CP_DROP_SHARE = 0.2
-#: Warn when the perturbation floor's current swing exceeds this share of the lightest load.
-LIGHT_LOAD_SHARE = 0.5
 #: Warn when ESR exceeds this share of the cable resistance.
 ESR_SHARE = 0.2
 #: Supply bandwidth: warn when f is above bandwidth / this.
@@ -63,7 +61,7 @@ def _warnings(sc, cfg, fig):
     i_min = min(x["current_a"] for x in fig["loads"])
     w = 2 * math.pi * f
     z = abs(r + esr + 1j * w * sc.cable.inductance_h + 1 / (1j * w * c))
-    if cfg.pert_min_v / z > LIGHT_LOAD_SHARE * i_min:
+    if cfg.pert_min_v / z > d.LIGHT_LOAD_SHARE * i_min:
         out.append(f"the lightest load ({i_min:.3g} A) is below twice the perturbation floor's current "
                    f"swing ({cfg.pert_min_v / z:.3g} A): the current swings near zero, the current "
                    "ADC clips it and the estimate reads high; use a finer current ADC or a heavier "

@@ -8,6 +8,9 @@ configuration under test.
 """
 import math
 
+import numpy as np
+
+from harness.design.calculator import LIGHT_LOAD_SHARE
 from harness.scenario.algo_setup import algo_config
 
 #: Windows from a steady start (supply at target, estimate and correction zero) within which the
@@ -114,6 +117,37 @@ def settle_s(scenario, window_s):
     if scenario.load.kind == "lamp":
         t = max(t, LAMP_SETTLE_TAUS * scenario.load.thermal_tau_s)
     return t
+
+
+def light_load_a(cfg, scenario, r_ohm):
+    """Current (A) below which the load is light for the method: the perturbation floor's
+    current swing is more than LIGHT_LOAD_SHARE of it, the unipolar current ADC clips the swing
+    at code 0 and the correction falls back toward zero (a period with a current code 0 tracks a
+    zero drop). `linedrop design` warns about such loads in the same terms. Below it the
+    settled load is promised only between the uncompensated voltage and the expected one
+    (settled checks in tests/support/proof_support.py), never above.
+
+    Parameters
+    ----------
+    cfg : AlgoConfig
+    scenario : harness.scenario.specs.Scenario
+    r_ohm : float
+        Loop resistance at the check (R_cable + ESR), ohm.
+    """
+    w = 2 * math.pi * cfg.perturbation_hz
+    le = scenario.load_end
+    z = abs(r_ohm + 1j * w * scenario.cable.inductance_h + 1 / (1j * w * le.capacitance_f))
+    return cfg.pert_min_v / z / LIGHT_LOAD_SHARE
+
+
+def bare_load_v(cfg, pert_v, r_cable_ohm, i_a):
+    """Load voltage (V) with no correction and the perturbation running at amplitude ``pert_v``
+    (V): target_v less the cable drop, less what the supply's ceiling max_v cuts off the top of
+    the perturbation when it is larger than the headroom (the mean of min(A sin, headroom) over a
+    period, on a fine grid)."""
+    theta = 2 * math.pi * (np.arange(4096) + 0.5) / 4096
+    clipped = np.minimum(pert_v * np.sin(theta), cfg.max_v - cfg.target_v)
+    return cfg.target_v + float(clipped.mean()) - r_cable_ohm * i_a
 
 
 def r_lsb_ohm(cfg):

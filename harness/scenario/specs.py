@@ -1,5 +1,6 @@
 """Frozen dataclasses describing one simulated scenario (what a scenario file parses into)."""
 
+import math
 from dataclasses import dataclass, field
 from typing import Optional
 
@@ -14,10 +15,9 @@ DEFAULT_INDUCTANCE_H_PER_M = 0.6e-6
 #: Load resistance while a ``load_short`` fault is active, ohm.
 LOAD_SHORT_OHM = 0.01
 
-#: Default restart voltage of a load's undervoltage lockout, as a multiple of its cut-off.
-RESTART_FRACTION = 1.1
-#: The default restart voltage is capped at this fraction of the way from cut-off to target_v.
-RESTART_CAP_FRACTION = 0.5
+#: Default restart voltage of a load's undervoltage lockout: this fraction of the way from its
+#: cut-off to target_v.
+RESTART_SHARE = 0.5
 
 LOAD_KINDS = ("constant_current", "resistive", "constant_power", "lamp")
 FAULT_KINDS = ("cable_open", "cap_open", "load_short", "adc_stuck")
@@ -85,13 +85,16 @@ class LoadSpec:
 def restart_voltage(load, target_v=float("inf")):
     """Restart voltage (V) of ``load``'s undervoltage lockout under supply.target_v ``target_v`` (V).
 
-    The given ``load.restart_v``, else RESTART_FRACTION * cutoff_v capped at RESTART_CAP_FRACTION
-    of the way from cutoff_v to target_v, so it stays in [cutoff_v, target_v).
+    The given ``load.restart_v``, else RESTART_SHARE of the way from cutoff_v to
+    target_v, so it stays in [cutoff_v, target_v). A restart just above the cut-off would turn a
+    heavy constant-power load on where its current pulls the load end straight back below the
+    cut-off (below the lower, unstable root of V = V_s - R P / V), and it would hiccup for ever.
     """
     if load.restart_v is not None:
         return load.restart_v
-    cap = load.cutoff_v + RESTART_CAP_FRACTION * (target_v - load.cutoff_v)
-    return min(RESTART_FRACTION * load.cutoff_v, cap)
+    if not math.isfinite(target_v):
+        return load.cutoff_v
+    return load.cutoff_v + RESTART_SHARE * (target_v - load.cutoff_v)
 
 
 @dataclass(frozen=True)

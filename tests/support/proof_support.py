@@ -106,6 +106,16 @@ def settled_load_v(lr, b, sc, w_from, w_to):
     return bd.expected_load_v(cfg, r_end, bd.measured_r_ohm(sc, r_end, cfg.perturbation_hz, g), i_mean)
 
 
+def _count(label):
+    """hypothesis.event(label) inside a property test, nothing outside one."""
+    from hypothesis import event
+    from hypothesis.errors import InvalidArgument
+    try:
+        event(label)
+    except InvalidArgument:
+        pass
+
+
 def settled_failures(lr, b, sc, w_from, w_to):
     """Reasons (list of str) the run is not settled over windows [w_from, w_to) (bounds.py)."""
     cfg = algo_config(sc)
@@ -126,14 +136,23 @@ def settled_failures(lr, b, sc, w_from, w_to):
     r_meas = bd.measured_r_ohm(sc, r_end, cfg.perturbation_hz, g)
     r_hat = float(ch["r_estimate_ohm"][sl.stop - 1])
     tol = bd.r_tolerance_ohm(cfg, r_meas, drift)
-    if abs(r_hat - r_meas) > tol:
-        out.append(f"estimate {r_hat:.6g} ohm vs Re(Z) {r_meas:.6g} ohm (R_cable+ESR {r_true:.6g}): off by "
-                   f"more than {tol:.3g} ohm")
     want = bd.expected_load_v(cfg, r_end, r_meas, i_mean)
     ltol = bd.load_tolerance_v(cfg, sc.sensing, r_true, i_mean) + cfg.compensation * drift * i_mean
-    if abs(v_mean - want) > ltol:
-        out.append(f"load {v_mean:.6g} V vs expected {want:.6g} V (target {cfg.target_v:.6g}, drop "
-                   f"{drop:.4g}): off by more than {ltol:.3g} V")
+    light = i_mean < bd.light_load_a(cfg, sc, r_true)
+    _count("light load: the fallback bound" if light else "load above the light-load current")
+    if light:               # the estimate may be held or unset; the load between bare and expected
+        pert_v = float(lr.trace["pert_amp"][sl.stop - 1, b]) * bd.dac_lsb_v(cfg)
+        bare = bd.bare_load_v(cfg, pert_v, r_end, i_mean)
+        if not bare - ltol <= v_mean <= want + ltol:
+            out.append(f"light load {i_mean:.4g} A: load {v_mean:.6g} V outside [{bare:.6g}, {want:.6g}] V "
+                       f"(uncompensated, expected) by more than {ltol:.3g} V")
+    else:
+        if abs(r_hat - r_meas) > tol:
+            out.append(f"estimate {r_hat:.6g} ohm vs Re(Z) {r_meas:.6g} ohm (R_cable+ESR {r_true:.6g}): off "
+                       f"by more than {tol:.3g} ohm")
+        if abs(v_mean - want) > ltol:
+            out.append(f"load {v_mean:.6g} V vs expected {want:.6g} V (target {cfg.target_v:.6g}, drop "
+                       f"{drop:.4g}): off by more than {ltol:.3g} V")
     n = cfg.period_samples
     v = ch["v_load_v"][sl]
     v = v[: len(v) // n * n].reshape(-1, n).mean(axis=1)   # period means: the ripple removed
@@ -145,94 +164,3 @@ def settled_failures(lr, b, sc, w_from, w_to):
     return out
 
 
-# -- Known design failures, reported to the algorithm owner (harness/proof/PROOFS.md, "Open findings").
-# Each predicate names a plant the design currently fails on; the property tests skip those
-# draws (counted with hypothesis.event) and the strict-xfail reproducers in
-# tests/test_proof_findings.py turn into failures as soon as the design is fixed, which is the
-# signal to delete the predicate here.
-
-def finding_d3_x_max_ignores_inductance(sc):
-    """D3: x_max_ohm = max(3 / (w C), R_max / 2) leaves out the cable's w L; where w L dominates
-    the quadrature part every window is REACTIVE and the correction never starts."""
-    cfg = algo_config(sc)
-    w = 2 * math.pi * cfg.perturbation_hz
-    x = w * sc.cable.inductance_h - 1.0 / (w * sc.load_end.capacitance_f)
-    # Also where w L outgrows R + ESR, short of x_max: the in-phase part is then a small
-    # projection of a large quadrature one, and ADC noise makes the estimate wander by 10-25 %.
-    return abs(x) > 0.9 * cfg.x_max_ohm or w * sc.cable.inductance_h > sc.cable.resistance_ohm + sc.load_end.esr_ohm
-
-
-def finding_d6_light_load_clips_the_current_swing(sc):
-    """D6: at a load lighter than the perturbation's current swing, the supply current swings
-    negative and the (unipolar) current ADC clips it at code 0; the demodulated current halves and
-    the estimate reads up to twice R_cable + ESR, VALID, so the next load step overcorrects."""
-    cfg = algo_config(sc)
-    ld = sc.load
-    values = [ld.value] + [v for _, v in ld.steps]
-    v = sc.supply.target_v
-    if ld.kind == "constant_current":
-        currents = values
-    elif ld.kind == "resistive":
-        currents = [v / x for x in values]
-    elif ld.kind == "constant_power":
-        currents = [p / v for p in values]
-    else:
-        currents = [current_at_target(sc)]
-    r = sc.cable.resistance_ohm + sc.load_end.esr_ohm
-    w = 2 * math.pi * cfg.perturbation_hz
-    z = abs(complex(r, -1.0 / (w * sc.load_end.capacitance_f)))
-    return any(i < 1.2 * max(cfg.pert_min_v, cfg.pert_fraction * r * i) / z for i in currents)
-
-
-def finding_d8_cap_open_constant_power(sc):
-    """D8: capacitor open with a constant-power load: the real part R + (-V**2/P) is negative or
-    small, the windows are VALID (r_raw clamps to 0), so bad_windows never counts and the
-    correction is not forced to zero; with a heavy load the plant itself diverges (inf V)."""
-    return sc.load.kind == "constant_power" and any(f.kind == "cap_open" for f in sc.faults)
-
-
-def finding_d9_constant_power_restart(sc):
-    """D9: after a cable-open fault a constant-power load restarts below its cut-off (resistive),
-    latches on the low-voltage branch, and the headroom cannot pull it back: no re-convergence."""
-    return sc.load.kind == "constant_power" and any(f.kind == "cable_open" for f in sc.faults)
-
-
-def current_at_target(sc):
-    ld = sc.load
-    values = [ld.value] + [v for _, v in ld.steps]
-    v = sc.supply.target_v
-    if ld.kind == "constant_current":
-        return max(values)
-    if ld.kind == "resistive":
-        return v / min(values)
-    if ld.kind == "constant_power":
-        return max(values) / v
-    return ld.value / ld.rated_v
-
-
-# D1 (pert_min below one DAC code), D2 (corr_max from the uncompensated current) and D4 (perturbation
-# floor below the voltage ADC's LSB) were fixed in the design calculator (commit fc379ac); their
-# reproducers stay as regression tests in tests/test_proof_findings.py. D10 (TRANSIENT windows
-# counted toward fault_windows) was fixed in the algorithm: load-step windows no longer count. D7
-# (a step the cable and capacitor spread over several periods moved the estimate) was fixed in
-# algorithm 0.4.0 by the trend removal and the swing-relative step detector.
-KNOWN_FINDINGS = {"D3": finding_d3_x_max_ignores_inductance,
-                  "D6": finding_d6_light_load_clips_the_current_swing,
-                  "D8": finding_d8_cap_open_constant_power, "D9": finding_d9_constant_power_restart}
-
-
-def known_finding(sc):
-    """Name of the first known design finding ``sc`` falls under, or None."""
-    return next((k for k, f in KNOWN_FINDINGS.items() if f(sc)), None)
-
-
-def admitted(scenarios):
-    """The scenarios no known finding covers; each draw is counted with hypothesis.event."""
-    from hypothesis import event
-    kept = []
-    for sc in scenarios:
-        finding = known_finding(sc)
-        event(f"known finding {finding}" if finding else "admitted")
-        if finding is None:
-            kept.append(sc)
-    return kept
