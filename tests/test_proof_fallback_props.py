@@ -73,7 +73,8 @@ def test_faults_drop_the_correction_to_zero_in_the_stated_windows_and_it_recover
                            f"(max {int(corr_q[held].max())} LSB)")
         event_s = samples_between(lr, b, w_fault, len(ends))
         limit = bd.overshoot_limit_v(cfg, corr_before, 0.0, i_load if kind == "load_off" else 0.0,
-                                     sc.cable.inductance_h, sc.load_end.capacitance_f)
+                                     sc.cable.inductance_h, sc.load_end.capacitance_f,
+                                     ripple_v=bd.ripple_excess_v(cfg, sc))
         v_max = float(lr.run.channels["v_load_v"][event_s, b].max())
         if v_max > limit:
             why.append(f"{kind}: load reached {v_max:.6g} V > target + margin {limit:.6g} V")
@@ -153,7 +154,7 @@ class FaultMachine(RuleBasedStateMachine):
                                f"after {cfg.fault_windows + bd.FAULT_EXTRA_WINDOWS} windows")
             peak = float(lr.run.channels["correction_v"][:, b].max())
             lim = bd.overshoot_limit_v(cfg, peak, 0.0, float(sc.source), sc.cable.inductance_h,
-                                       sc.load_end.capacitance_f)
+                                       sc.load_end.capacitance_f, ripple_v=bd.ripple_excess_v(cfg, sc))
             v = float(lr.run.channels["v_load_v"][:, b].max())
             if v > lim:
                 why.append(f"load reached {v:.6g} V > {lim:.6g} V")

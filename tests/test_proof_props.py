@@ -41,7 +41,8 @@ def test_converges_from_a_steady_start_within_the_stated_windows(batch):
         i = float(lr.run.channels["i_supply_a"][:, b].mean())
         r = sc.cable.resistance_ohm + sc.load_end.esr_ohm - cfg.esr_allowance_ohm
         settled = settled_load_v(lr, b, sc, n_settle, n_settle + bd.CHECK_WINDOWS)
-        limit = bd.overshoot_limit_v(cfg, 0.0, bd.sensing_bias_v(cfg, sc.sensing, r, i), settled_v=settled)
+        limit = bd.overshoot_limit_v(cfg, 0.0, bd.sensing_bias_v(cfg, sc.sensing, r, i), settled_v=settled,
+                                     ripple_v=bd.ripple_excess_v(cfg, sc))
         if v_max > limit:
             why.append(f"load reached {v_max:.6g} V, above target + margin {limit:.6g} V")
         note(f"plant {sc.load.kind} R={sc.cable.resistance_ohm:.4g} C={sc.load_end.capacitance_f:.4g}")

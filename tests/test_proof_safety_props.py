@@ -101,7 +101,7 @@ def test_nothing_winds_up_while_the_correction_is_clamped(batch, data):
         corr_v = float(lr.run.channels["correction_v"][ends[heavy - 1], b])
         d_i = float(sc.source.split()[2])
         limit = bd.overshoot_limit_v(cfg, corr_v, 0.0, d_i, sc.cable.inductance_h,
-                                     sc.load_end.capacitance_f)
+                                     sc.load_end.capacitance_f, ripple_v=bd.ripple_excess_v(cfg, sc))
         v_max = float(lr.run.channels["v_load_v"][after, b].max())
         if v_max > limit:
             why.append(f"after the clamp was released the load reached {v_max:.6g} V > {limit:.6g} V")

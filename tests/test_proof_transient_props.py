@@ -1,14 +1,16 @@
 """Proof property 4: load steps landing anywhere in a window never move the settled estimate by more
 than TRANSIENT_R_REL and never push the load above target + the overshoot margin; the loop settles
-again within RECOVER_WINDOWS. Model and C in lock step (harness.loop.lockstep)."""
+again within RECOVER_WINDOWS, or the R*C-scaled settle time where that is longer. Model and C in lock step (harness.loop.lockstep)."""
 from dataclasses import replace
 
-from hypothesis import Phase, given, settings
+from hypothesis import Phase, event, given, settings
 
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
+from harness.design.operating_point import load_current
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import reproducer, run_groups, samples_between, settled_failures, window_ends
+from support.proof_support import (reproducer, run_groups, samples_between, settle_windows, settled_failures,
+                                   window_ends)
 
 STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.proof.strategies.plants)
 
@@ -22,8 +24,12 @@ def _examples(fraction):
 @given(hs.plant_batches(size=6, kinds=("constant_current", "resistive", "constant_power"), max_steps=2,
                         steps_after=float(bd.SETTLE_WINDOWS)))
 def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_overshoot(batch):
-    total = bd.SETTLE_WINDOWS + STEP_SPAN + bd.RECOVER_WINDOWS + bd.CHECK_WINDOWS
-    scs = [hs.design_scenario(p, total, seed=n) for n, p in enumerate(batch) if p.load_steps]
+    total = bd.SETTLE_WINDOWS + STEP_SPAN + bd.CHECK_WINDOWS
+    scs = []
+    for n, p in enumerate(batch):
+        if p.load_steps:    # the recovery after a step, like the settling, scales with R*C
+            sc = hs.design_scenario(p, bd.SETTLE_WINDOWS, seed=n)
+            scs.append(hs.design_scenario(p, total + max(bd.RECOVER_WINDOWS, settle_windows(sc)), seed=n))
     scs = [replace(sc, source=repr(p.load_current_a)) for p, sc in zip([p for p in batch if p.load_steps], scs)]
     for lr, b in run_groups(scs):
         sc = lr.run.scenarios[b]
@@ -39,14 +45,23 @@ def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_over
         allowed = bd.TRANSIENT_R_REL * (sc.cable.resistance_ohm + sc.load_end.esr_ohm) \
             + bd.R_LSB_SLACK * bd.r_lsb_ohm(cfg)
         why = []
-        if move > allowed:
+        # A step to a light load (bounds.light_load_a) leaves no measurable current swing: the
+        # windows clip or, while the capacitor feeds back into the supply, read no swing at all,
+        # and the estimate may be dropped with the correction (the fallback). The overshoot and
+        # settled checks below still hold it.
+        r_loop = sc.cable.resistance_ohm + sc.load_end.esr_ohm
+        light = any(load_current(sc.load, v, cfg.target_v)[0] < bd.light_load_a(cfg, sc, r_loop)
+                    for _, v in sc.load.steps)
+        event("a step to a light load: estimate not held" if light else "estimate held through the steps")
+        if move > allowed and not light:
             why.append(f"a load step moved the estimate by {move:.4g} ohm (> {allowed:.4g} ohm) from {r_before:.5g}")
         i0 = float(sc.source)
         corr_before = float(ch["correction_v"][:ends[first - 1] + 1, b].max())
-        limit = bd.overshoot_limit_v(cfg, corr_before, 0.0, 1.5 * i0, sc.cable.inductance_h, sc.load_end.capacitance_f)
+        limit = bd.overshoot_limit_v(cfg, corr_before, 0.0, 1.5 * i0, sc.cable.inductance_h, sc.load_end.capacitance_f,
+                                     ripple_v=bd.ripple_excess_v(cfg, sc))
         v_max = float(ch["v_load_v"][after, b].max())
         if v_max > limit:
             why.append(f"the load reached {v_max:.6g} V after a step (> target + margin {limit:.6g} V)")
-        w_back = int(sc.load.steps[-1][0] / win) + 1 + bd.RECOVER_WINDOWS
+        w_back = int(sc.load.steps[-1][0] / win) + 1 + max(bd.RECOVER_WINDOWS, settle_windows(sc))
         why += settled_failures(lr, b, sc, w_back, w_back + bd.CHECK_WINDOWS)
         assert not why, reproducer(sc, "; ".join(why))

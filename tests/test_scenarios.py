@@ -10,6 +10,8 @@ import os
 import pytest
 
 from harness.design.settings import with_settings
+from harness.proof import bounds as bd
+from harness.scenario.algo_setup import algo_config
 from harness.loop.closed_loop import COMPENSATIONS, simulate
 from harness.loop.metrics import metrics
 from harness.scenario.read import load_scenario
@@ -33,14 +35,20 @@ def test_load_is_held_within_one_percent_of_target_after_settling(results):
 
 
 def test_linedrop_beats_every_baseline_but_sense_wires_on_steady_load_error(results):
+    """Unless both it and the baseline sit within DAC_LSB_SLACK codes of target: below the
+    command's resolution the two are equal (the floor issue 10 sets for small drops)."""
     name, sc, out = results
     mine = abs(out["linedrop"]["load_error_v"])
+    floor = bd.DAC_LSB_SLACK * bd.dac_lsb_v(algo_config(sc))
     c = sc.cable
     at_20c = c.temperature_c == 20.0 and c.temperature_end_c in (None, 20.0)
     for comp in ("none", "fixed", "difference"):
         if comp == "fixed" and at_20c:
             continue      # its setting was made right at 20 degC: on a 20 degC cable it is exact
-        assert mine < abs(out[comp]["load_error_v"]), (name, comp)
+        theirs = abs(out[comp]["load_error_v"])
+        if max(mine, theirs) <= floor:
+            continue      # both within the command's resolution of target
+        assert mine < theirs, (name, comp)
 
 
 def test_estimate_lands_on_cable_plus_esr_minus_allowance(results):

@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from harness.design.calculator import LIGHT_LOAD_SHARE
+from harness.design.calculator import LIGHT_LOAD_SHARE, RIPPLE_FRACTION
 from harness.scenario.algo_setup import algo_config
 
 #: Windows from a steady start (supply at target, estimate and correction zero) within which the
@@ -93,7 +93,8 @@ LOAD_OFF_WINDOWS = 24
 #: Overshoot margin: the load never exceeds target (or the settled voltage, where a load-shunted
 #: ESR leaves it above target) + the correction in force before the event +
 #: this share of target (perturbation ripple, at most harness.design.calculator.RIPPLE_FRACTION, and
-#: settling) + the passive LC ring of a load step, |dI| * sqrt(L / C). Proved by
+#: settling) + the passive LC ring of a load step, |dI| * sqrt(L / C) + the ripple the converters'
+#: floor forces beyond RIPPLE_FRACTION (ripple_excess_v; `linedrop design` warns about it). Proved by
 #: test_proof_fallback_props.py and test_proof_transient_props.py.
 OVERSHOOT_REL = 0.01
 
@@ -216,7 +217,23 @@ def sensing_bias_v(cfg, sensing, r_ohm, i_a):
     return cfg.compensation * r_ohm * (abs(sensing.gain_error) * i_a + abs(sensing.offset_lsb) * i_lsb)
 
 
-def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, c_f=1.0, settled_v=0.0):
+def ripple_excess_v(cfg, scenario):
+    """Perturbation ripple at the load (V peak) beyond RIPPLE_FRACTION of target_v, 0 if none.
+
+    The design sizes the perturbation so its ripple at the load stays within RIPPLE_FRACTION of
+    target (part of OVERSHOOT_REL); where the converters' floor (pert_min_v) needs more, the
+    excess is added to the overshoot margin. The ripple is pert_max_v divided between the loop and
+    the capacitor branch: pert * |ESR + 1/(jwC)| / |R + ESR + jwL + 1/(jwC)|.
+    """
+    w = 2 * math.pi * cfg.perturbation_hz
+    le = scenario.load_end
+    zc = le.esr_ohm + 1 / (1j * w * le.capacitance_f)
+    z = scenario.cable.resistance_ohm + 1j * w * scenario.cable.inductance_h + zc
+    return max(0.0, cfg.pert_max_v * abs(zc) / abs(z) - RIPPLE_FRACTION * cfg.target_v)
+
+
+def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, c_f=1.0, settled_v=0.0,
+                      ripple_v=0.0):
     """Highest load voltage allowed around an event, V (OVERSHOOT_REL, module docstring).
 
     The base is target_v, or the settled load voltage ``settled_v`` (expected_load_v) where the
@@ -231,7 +248,9 @@ def overshoot_limit_v(cfg, corr_before_v, bias_v=0.0, d_current_a=0.0, l_h=0.0, 
         sensing_bias_v at the operating point, V.
     d_current_a, l_h, c_f : float
         Load step (A), loop inductance (H) and load capacitance (F) for the passive LC ring.
+    ripple_v : float
+        ripple_excess_v of the configuration, V.
     """
     ring = abs(d_current_a) * math.sqrt(l_h / c_f) if l_h > 0 else 0.0
     return (max(cfg.target_v, settled_v) + max(corr_before_v, 0.0) + bias_v + OVERSHOOT_REL * cfg.target_v + ring
-            + DAC_LSB_SLACK * dac_lsb_v(cfg))
+            + DAC_LSB_SLACK * dac_lsb_v(cfg) + ripple_v)
