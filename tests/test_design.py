@@ -2,6 +2,7 @@
 import json
 import math
 
+import numpy as np
 import pytest
 
 from algo.params import derive
@@ -206,3 +207,29 @@ def test_recommended_frequency_keeps_the_cable_inductance_small(tmp_path):
     f = rep["perturbation_hz"]
     assert 2 * math.pi * f * 20e-6 <= 0.5 / 3
     assert not any("inductive" in w for w in rep["warnings"]), rep["warnings"]
+
+
+def test_first_order_filter_trails_a_ramp_by_d_times_1_minus_a_over_a():
+    """The steady lag drift_lag_v uses: x[k] = x[k-1] + a (r[k] - x[k-1]) on r[k] = k d trails it by
+    d (1 - a) / a (final-value theorem; computed here with scipy.signal.lfilter)."""
+    from scipy.signal import lfilter
+    a, d = 0.25, 0.01
+    r = d * np.arange(400)
+    x = lfilter([a], [1.0, a - 1.0], r)
+    assert r[-1] - x[-1] == pytest.approx(d * (1 - a) / a, rel=1e-9)
+
+
+def test_prediction_counts_the_lag_behind_a_warming_cable(tmp_path):
+    """A 2 ohm copper loop warming 20 -> 45 degC over 1 s ramps at 2 * 0.00393 * 25 ohm/s (IEC 60028);
+    the load error it leaves is that rate times (4 windows + loop_tau) times the current (r_filter_shift 2)."""
+    base = plant(tmp_path)
+    text = BASE.format(target=24.0, max_v=30.0, bw=0.0, r=2.0, l=0.0, c=22e-3, esr=0.0, kind="constant_current",
+                       key="current_a", value=1.5, gain_error=0.0, algorithm="")
+    rep = design_report(load_scenario(write(tmp_path, text.replace("inductance_h", "temperature_c = 20.0\n"
+                                                                   "temperature_end_c = 45.0\ninductance_h"))))
+    rho = 2.0 * 0.00393 * 25.0
+    lag_s = 4 * rep["window_s"] + 1e-3 * rep["loop_tau_ms"]
+    assert rep["drift_lag_error_v"] == pytest.approx(rho * lag_s * 1.5, rel=1e-3)
+    assert design_report(base)["drift_lag_error_v"] == 0.0
+    assert rep["predicted_load_error_v"] == pytest.approx(
+        abs(rep["load_error_steady_v"]) + rep["quantisation_error_v"] + rep["drift_lag_error_v"], rel=1e-12)

@@ -10,12 +10,13 @@ uncompensated_drop_v, perturbation_hz, period_samples, periods_per_window, windo
 sample_rate_hz, recommended_sample_rate_hz, rc_corner_hz, capacitor_reactance_ohm,
 min_capacitance_f, compensation, loop_tau_ms (closed-loop time constant of the correction),
 capacitance_f (the C its proportional gain assumes), adc_phase_samples, r_max_ohm, corr_max_v,
-headroom_v,
-correction_needed_v, pert_min_v, pert_max_v, word_lengths {adc_bits, table_bits, acc_bits,
+headroom_v, compensated_current_a (largest supply current with the load at target_v),
+correction_needed_v (at that current), pert_min_v, pert_max_v, word_lengths {adc_bits, table_bits, acc_bits,
 r_frac_bits, corr_frac_bits}, stability_margin (1 - spectral radius of the period-rate loop),
 spectral_radius, gain_margin (factor on the estimate to instability), convergence_windows,
 convergence_s, dominant_poles [[re, im]], predicted_load_error_v (steady error plus
-quantisation bound), load_error_steady_v, quantisation_error_v, ripple_load_v_pp,
+quantisation bound plus the lag behind a drifting cable), load_error_steady_v, quantisation_error_v,
+drift_lag_error_v, ripple_load_v_pp,
 current_swing_a, warnings [str], configuration ("scenario" or "recommended"), algorithm
 (recommended [algorithm] keys), from_plant (the settings [supply]/[sensing] fix).
 
@@ -101,7 +102,8 @@ def report_text(rep):
             f"r_frac {w['r_frac_bits']}, corr_frac {w['corr_frac_bits']} bits",
             f"Predicted load error: {1e3 * rep['predicted_load_error_v']:.3g} mV "
             f"(steady {1e3 * rep['load_error_steady_v']:.3g} mV + quantisation "
-            f"{1e3 * rep['quantisation_error_v']:.3g} mV)",
+            f"{1e3 * rep['quantisation_error_v']:.3g} mV"
+            + (f" + drift lag {1e3 * rep['drift_lag_error_v']:.3g} mV" if rep["drift_lag_error_v"] else "") + ")",
             f"Perturbation ripple at the load: {1e3 * rep['ripple_load_v_pp']:.3g} mV p-p",
             f"Loop: stability margin {rep['stability_margin']:.3f} (spectral radius "
             f"{rep['spectral_radius']:.3f}), gain margin x{rep['gain_margin']:.3g}, "

@@ -254,18 +254,38 @@ def pert_ripple(scenario, cfg, r_est, i_a):
     return 2 * d_i * abs(zc), d_i
 
 
+def drift_lag_v(scenario, cfg, i_a):
+    """Load error (V) the estimate's lag behind a drifting cable leaves at current ``i_a`` (A).
+
+    With temperature_end_c the loop resistance ramps linearly over the run at rho ohm/s. The
+    estimate's steady filter (gain a = 2**-r_filter_shift per window) trails a ramp of rho*T per
+    window by rho*T*(1 - a)/a (the steady error of a first-order recursion on a ramp); the
+    window's reading is half a window old when it lands and is held a further window, half a
+    window on average: 2**r_filter_shift windows in all. The correction follows the estimate
+    with its time constant loop_tau_ms (a first-order lag on a ramp trails it by tau). The
+    error is rho * (2**r_filter_shift * T + tau) * i_a; 0 without a drift.
+    """
+    r0, r1 = resistance_range(scenario)
+    if r1 == r0:
+        return 0.0
+    rho = (r1 - r0) / scenario.run.duration_s
+    window_s = cfg.window_samples / cfg.sample_rate_hz
+    return rho * ((1 << cfg.r_filter_shift) * window_s + cfg.loop_tau_s) * i_a
+
+
 def predict(scenario, cfg):
     """Predicted steady figures of configuration ``cfg`` on ``scenario`` (dict, units in keys).
 
     The load error is target_v - V_load at the compensated operating point, from the
     estimate the loop settles to (cable + ESR + the load's share, harness.design.loop_model), plus a
-    quantisation bound: half a DAC LSB plus one estimate LSB times the current.
+    quantisation bound: half a DAC LSB plus one estimate LSB times the current, plus the lag
+    behind a drifting cable (drift_lag_v) at the largest current.
     """
     sense_gain = 1.0 + scenario.sensing.gain_error
     dac_lsb = cfg.dac_full_scale_v / (1 << cfg.dac_bits)
     r_lsb = cfg.v_full_scale_v / cfg.i_full_scale_a / (1 << cfg.r_frac_bits)
     corr_max = min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v))
-    err, quant, ripple, swing = 0.0, 0.0, 0.0, 0.0
+    err, quant, ripple, swing, i_top = 0.0, 0.0, 0.0, 0.0, 0.0
     for op in operating_points(scenario, cfg):
         an = analyse(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a), sense_gain=sense_gain)
         r0 = an.plant.r0_ohm
@@ -275,8 +295,11 @@ def predict(scenario, cfg):
         if abs(e) > abs(err):
             err = e
         quant = max(quant, dac_lsb / 2 + r_lsb * op.i_a)
+        i_top = max(i_top, op.i_a)
         rp, sw = pert_ripple(scenario, cfg, r0, op.i_a)
         ripple, swing = max(ripple, rp), max(swing, sw)
-    return {"predicted_load_error_v": float(abs(err) + quant), "load_error_steady_v": float(err),
-            "quantisation_error_v": float(quant), "ripple_load_v_pp": float(ripple),
+    lag = drift_lag_v(scenario, cfg, i_top)
+    return {"predicted_load_error_v": float(abs(err) + quant + lag), "load_error_steady_v": float(err),
+            "quantisation_error_v": float(quant), "drift_lag_error_v": float(lag),
+            "ripple_load_v_pp": float(ripple),
             "current_swing_a": float(swing)}

@@ -45,6 +45,15 @@ def load_current(load, value, v_load):
     return v / r, 1.0 / r
 
 
+def current_at(scenario, value, v_load):
+    """Supply current (A) at load ``value`` with the load end at ``v_load`` (V): the load's own
+    current plus the capacitor's leakage. At ``v_load = target_v`` it is the current the load
+    draws once compensated (a lamp or a resistor more than at its sagging uncompensated voltage,
+    a constant-power load less)."""
+    leak = scenario.load_end.leakage_ohm
+    return load_current(scenario.load, value, v_load)[0] + (v_load / leak if leak else 0.0)
+
+
 def _load_voltage(load, value, vs, r, g_leak):
     """Highest load-end voltage (V) that satisfies vs - r * I(V) = V; 0 when none does."""
     def f(v):

@@ -4,6 +4,7 @@ from dataclasses import replace
 
 from harness.scenario.algo_setup import FROM_PLANT, algo_config
 from harness.design import calculator as d
+from harness.design.operating_point import current_at, load_values
 
 
 #: Extra-low-voltage limit, V DC (SELV, about 60 V DC per the design brief; IEC 61140 class III
@@ -14,14 +15,48 @@ ELV_LIMIT_V = 60.0
 CP_DROP_SHARE = 0.2
 #: Warn when ESR exceeds this share of the cable resistance.
 ESR_SHARE = 0.2
-#: Supply bandwidth: warn when f is above bandwidth / this.
 #: R*C corner: warn when f is below this multiple of the corner.
 CORNER_WARN = 3.0
+#: r_max_ohm at least this multiple of the hottest cable plus ESR: room for a window read high by
+#: noise or a sensing gain error (the calculator's gain-margin room, GM_TARGET; the recommended
+#: r_max_ohm is R_MAX_FACTOR = 2 times it).
+R_MAX_ROOM = d.GM_TARGET
+
+
+def _limit_warnings(sc, cfg, fig):
+    """Warnings where a limit (estimate range, supply current, converter full scale) is below what
+    the plant needs; ``fig`` carries the compensated current and the current swing."""
+    out = []
+    r_hot = fig["r_cable_range_ohm"][1] + sc.load_end.esr_ohm
+    if cfg.r_max_ohm < R_MAX_ROOM * r_hot:
+        out.append(f"r_max_ohm = {cfg.r_max_ohm:.3g} ohm leaves no room above the loop resistance the "
+                   f"estimate reads, {r_hot:.3g} ohm (hottest cable plus ESR): windows are rejected as "
+                   f"r_high and the load is left uncompensated; set r_max_ohm to at least "
+                   f"{R_MAX_ROOM * r_hot:.3g} ohm")
+    i_peak = fig["compensated_current_a"] + fig["current_swing_a"]
+    limit = sc.supply.current_limit_a
+    if limit is not None and i_peak > limit:
+        out.append(f"the load draws up to {fig['compensated_current_a']:.3g} A at the target voltage "
+                   f"({i_peak:.3g} A with the perturbation), above the supply's current_limit_a = "
+                   f"{limit:g} A: the supply limits, the load sags and the estimate fails; raise the "
+                   "limit or lighten the load")
+    sen = sc.sensing
+    i_top = sen.i_full_scale_a * (1 - 2.0 ** -sen.adc_bits)
+    if i_peak > i_top:
+        out.append(f"the current ADC reads up to {i_top:.3g} A (i_full_scale_a = {sen.i_full_scale_a:g} A) "
+                   f"but the supply carries up to {i_peak:.3g} A with the perturbation: the current "
+                   "clips, no window is valid and nothing is corrected; raise i_full_scale_a")
+    if sen.v_full_scale_v < sc.supply.max_v:
+        out.append(f"the voltage ADC reads up to {sen.v_full_scale_v:g} V (v_full_scale_v) but the supply "
+                   f"may output up to max_v = {sc.supply.max_v:g} V: a raised output clips the voltage "
+                   "reading, and windows with a code at the rail hold the estimate instead of "
+                   "measuring it, so it cannot start or follow the cable; raise v_full_scale_v above max_v")
+    return out
 
 
 def _warnings(sc, cfg, fig):
     """Plain-language warnings for configuration ``cfg`` on scenario ``sc`` given figures ``fig``."""
-    out = []
+    out = _limit_warnings(sc, cfg, fig)
     f, c, r = cfg.perturbation_hz, sc.load_end.capacitance_f, fig["r_cable_range_ohm"][0]
     xc = 1.0 / (2 * math.pi * f * c)
     if xc > r / d.AC_SHORT:
@@ -42,9 +77,10 @@ def _warnings(sc, cfg, fig):
         out.append(f"the perturbation frequency {f:.4g} Hz is above the supply's loop bandwidth "
                    f"{bw:.4g} Hz: the swing shrinks; keep it at or below {bw:.4g} Hz")
     if fig["correction_needed_v"] > fig["headroom_v"]:
-        out.append(f"the correction would need up to {fig['correction_needed_v']:.3g} V but the supply has "
-                   f"only {fig['headroom_v']:.3g} V of headroom (max_v - target_v): the load will sag at "
-                   "high current")
+        out.append(f"the correction would need up to {fig['correction_needed_v']:.3g} V (at the "
+                   f"{fig['compensated_current_a']:.3g} A the load draws at the target voltage) but the "
+                   f"supply has only {fig['headroom_v']:.3g} V of headroom (max_v - target_v): the load "
+                   "will sag at high current")
     if sc.supply.max_v > ELV_LIMIT_V:
         out.append(f"the supply may output up to max_v = {sc.supply.max_v:g} V, above the {ELV_LIMIT_V:g} V DC "
                    "extra-low-voltage limit: the supply and load voltages could pass it")
@@ -84,7 +120,7 @@ def design_report(sc):
     r_min, r_max = d.resistance_range(sc)
     le = sc.load_end
     loads = d.uncompensated(sc, algo_config(replace(sc, algorithm={})), r_max)
-    i_max = max(x["current_a"] for x in loads)
+    i_comp = max(current_at(sc, v, sc.supply.target_v) for v in load_values(sc.load))
     f = cfg.perturbation_hz
     loop = d.loop_summary(sc, cfg)
     fig = {
@@ -111,7 +147,8 @@ def design_report(sc):
         "r_max_ohm": cfg.r_max_ohm,
         "corr_max_v": min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v)),
         "headroom_v": max(0.0, sc.supply.max_v - sc.supply.target_v),
-        "correction_needed_v": cfg.compensation * max(r_max + le.esr_ohm - cfg.esr_allowance_ohm, 0) * i_max,
+        "compensated_current_a": i_comp,
+        "correction_needed_v": cfg.compensation * max(r_max + le.esr_ohm - cfg.esr_allowance_ohm, 0) * i_comp,
         "pert_min_v": cfg.pert_min_v,
         "pert_max_v": cfg.pert_max_v,
         "word_lengths": {"adc_bits": _adc_bits(sc, cfg), "table_bits": cfg.table_bits,
