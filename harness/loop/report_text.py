@@ -74,8 +74,10 @@ def definitions(sc, since_s):
         "i.e. how many times smaller the error is than the drop left alone; 1 = no better than no "
         "compensation, higher is better.",
         f"- `ripple_load_v_pp` (load ripple, V peak to peak): highest minus lowest load voltage over {tail}.",
-        "- `max_load_v`, `min_load_v` (V): highest and lowest load voltage over the whole run, "
-        "faults and load steps included.",
+        "- `max_load_v` (max load, V): highest load voltage over the whole run, faults and load steps "
+        "included.",
+        "- `min_load_v` (min load, V): lowest load voltage over the whole run, faults and load steps "
+        "included.",
         f"- `settling_s` (settling, ms): time after {since} from which the load voltage stays within "
         f"the {plain(SETTLE_BAND * 100)} % band of target ({plain(target)} V +- {band:.3f} V) to the end of the "
         "run; \"never\" when it is outside the band at the end.",
