@@ -1,4 +1,5 @@
 """report.md of `linedrop simulate --out`: every figure defined, faults, outcomes, settings, version."""
+import csv
 import json
 import re
 import tomllib
@@ -42,7 +43,7 @@ def faults_report(tmp_path_factory):
                  faults=(FaultSpec("cable_open", 0.2, 0.35), FaultSpec("cap_open", 0.45, 0.6)))
     path = tmp / "mast_short.toml"
     path.write_text(scenario_to_toml(sc))
-    assert main(["simulate", str(path), "--out", str(tmp / "report")]) == 0
+    assert main(["simulate", str(path), "--out", str(tmp / "report"), "--waveform", str(tmp / "wave.csv")]) == 0
     assert main(["design", str(path), "--algorithm-out", str(tmp / "rec.toml")]) == 0
     return tmp
 
@@ -56,7 +57,8 @@ def test_every_figure_is_defined_with_its_sign_and_unit(faults_report):
     # With no compensation the load sits a cable drop R*I below target (Ohm's law), so the
     # defined sign makes its load error positive and about the uncompensated drop.
     none = doc["none"]
-    assert none["load_error_v"] == pytest.approx(none["uncompensated_drop_v"], rel=0.02) and none["load_error_v"] > 0
+    assert none["load_error_v"] > 0
+    assert none["load_error_v"] == pytest.approx(none["uncompensated_drop_v"], rel=0.02)
     for name in ("linedrop", "none", "fixed", "difference", "sense"):
         assert re.search(rf"^- `{name}`: \S", text, re.M), name
 
@@ -70,6 +72,17 @@ def test_fault_figures_are_reported_in_sentences(faults_report):
                 f"{f['correction_before_v']:.3f} V before the fault and {f['correction_at_end_v']:.3f} V "
                 "at its end") in text
         assert f"{f['fall_time_s'] * 1e3:.1f} ms after the fault began" in text
+
+
+def test_time_at_the_current_limit_matches_the_waveform(faults_report):
+    text, _ = _report(faults_report / "report")
+    with open(faults_report / "wave.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    at_limit = sum(float(r["i_supply_a"]) >= 3.0 for r in rows)        # mast_faults: 3 A limit
+    total_ms = 1e3 * at_limit * float(rows[0]["t_s"])                   # samples times 1 / rate
+    found = re.search(r"With linedrop, the supply current sat at its 3 A limit for ([\d.]+) ms in all", text)
+    assert at_limit > 0 and found and float(found.group(1)) == pytest.approx(total_ms, abs=0.1)
+    assert "No load step." in text
 
 
 def test_a_correction_that_never_fell_says_never_in_a_sentence():
@@ -131,7 +144,8 @@ def test_settings_table_names_the_scenario_table_or_the_algorithm_file(tmp_path,
     scenario.write_text(scenario_to_toml(sc) + table)
     algo_file = tmp_path / "algo.toml"
     algo_file.write_text("[algorithm]\nloop_tau_ms = 4.5\nfault_windows = 9\n")
-    argv = ["simulate", str(scenario), "--out", str(tmp_path / "r")] + (["--algorithm", str(algo_file)] if flag else [])
+    argv = ["simulate", str(scenario), "--out", str(tmp_path / "r")]
+    argv += ["--algorithm", str(algo_file)] if flag else []
     assert main(argv) == 0
     text = _report(tmp_path / "r")[0]
     rows = _settings_rows(text)

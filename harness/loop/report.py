@@ -1,4 +1,4 @@
-"""Report folder of a simulation: PNG plots, report.md (figures defined, settings, outcomes, faults, cautions), metrics.json."""
+"""Report folder of a simulation: plots, report.md (figures defined, faults, outcomes, settings), metrics.json."""
 import json
 import os
 

@@ -149,15 +149,17 @@ def events(run, b=0):
     if limit is None:
         return out + " The supply has no current limit."
     spans = current_limit_spans(run.t_s, run.channels["i_supply_a"][:, b], limit)
+    who = f" With {run.compensation}, the supply current"
     if not spans:
-        return out + f" The supply current never reached its {plain(limit)} A limit."
+        return out + f"{who} never reached its {plain(limit)} A limit."
     total = sum(e - a for a, e in spans)
-    return out + (f" The supply current sat at its {plain(limit)} A limit for {millis(total)} in all, "
-                  f"in {len(spans)} spells ({run.compensation}).")
+    spells = "1 spell" if len(spans) == 1 else f"{len(spans)} spells"
+    return out + f"{who} sat at its {plain(limit)} A limit for {millis(total)} in all, in {spells}."
 
 
 def header(sc, run, version):
     """Title and the lines naming the scenario, the tool version and what ran."""
     return [f"# linedrop simulation: {os.path.basename(sc.source)}", "",
-            f"Scenario file: `{sc.source}`; {plain(sc.run.duration_s)} s at {plain(run.cfgs[0].sample_rate_hz)} Hz. "
+            f"Scenario file: `{sc.source}`; {plain(sc.run.duration_s)} s at "
+            f"{plain(run.cfgs[0].sample_rate_hz)} Hz. "
             f"Tool: {version}. Algorithm backend: {run.backend}.", ""]
