@@ -6,27 +6,16 @@ import sys
 from algo.config import ConfigError
 from harness.errors import InputError
 from harness.cli import bench, check_port, design, replay, simulate, tune, vectors
+from harness.cli.version import tool_version
 
 COMMANDS = [simulate, replay, bench, design, tune, vectors, check_port]
-
-
-def _version():
-    """Package and algorithm versions (the algorithm's is the one the C reference checks)."""
-    from importlib.metadata import PackageNotFoundError, version
-
-    from algo import VERSION
-    try:
-        pkg = version("linedrop")
-    except PackageNotFoundError:
-        pkg = "not installed"
-    return f"linedrop {pkg} (algorithm {VERSION})"
 
 
 def build_parser():
     parser = argparse.ArgumentParser(
         prog="linedrop",
         description="Sense-wire-free line-drop compensation: model, C reference and harness.")
-    parser.add_argument("--version", action="version", version=_version())
+    parser.add_argument("--version", action="version", version=tool_version())
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for mod in COMMANDS:
         mod.add_parser(sub)

@@ -4,11 +4,13 @@ import json
 import os
 
 from harness.atomic import atomic_folder, atomic_write, check_file_target, check_folder_target
+from harness.cli.version import tool_version
 from harness.design.settings import with_settings
 from harness.loop.backends import BACKENDS
 from harness.loop.cautions import voltage_cautions
 from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, simulate
 from harness.loop.metrics import metrics
+from harness.loop.report_text import fault_sentence
 from harness.scenario.read import DEMO, load_scenario
 
 #: Runs with more scenario-samples than this show a progress bar.
@@ -73,12 +75,18 @@ def _print_summary(name, m, warn):
     if m["window_outcomes"]:
         print(f"  {'window_outcomes':22s} " + ", ".join(f"{n} {c}" for n, c in m["window_outcomes"].items()))
     for f in m["faults"]:
-        fall = "never" if f["fall_time_s"] is None else f"{f['fall_time_s'] * 1e3:.1f} ms"
-        print(f"  fault {f['kind']} [{f['at_s']}, {f['until_s']}) s: correction "
-              f"{f['correction_before_v']:.3f} V before, {f['correction_at_end_v']:.3f} V at end, "
-              f"fell below 5 % in {fall}")
+        print(f"  fault {fault_sentence(f)}")
     for line in warn:
         print(line)
+
+
+def _table_source(as_written, algorithm_path):
+    """Where the [algorithm] table a run uses came from, in words (as with_settings decides it)."""
+    if algorithm_path:
+        return f"--algorithm {algorithm_path}"
+    if as_written.algorithm:
+        return "the scenario's [algorithm] table"
+    return "linedrop design's recommendation"
 
 
 def run(args):
@@ -88,7 +96,8 @@ def run(args):
         check_folder_target(args.out, "--out", REPORT_FILES)
     if args.waveform:
         check_file_target(args.waveform, "--waveform")
-    sc, settings = with_settings(load_scenario(path), args.algorithm)
+    as_written = load_scenario(path)
+    sc, settings = with_settings(as_written, args.algorithm)
     samples = sc.run.duration_s * sc.sensing.sample_rate_hz
     progress = samples > PROGRESS_SAMPLES and not args.json
     main = simulate([sc], args.backend, args.compensation, progress=progress)
@@ -100,8 +109,10 @@ def run(args):
                 runs[comp] = simulate([sc], args.backend, comp, progress=progress)
                 all_m[comp] = metrics(runs[comp])
         from harness.loop.report import REPORT_FILES, write_report
+        what_ran = {"version": tool_version(), "as_written": as_written, "line": settings,
+                    "table_source": _table_source(as_written, args.algorithm)}
         with atomic_folder(args.out, REPORT_FILES) as folder:
-            write_report(folder, runs, all_m)
+            write_report(folder, runs, all_m, settings=what_ran)
     if args.waveform:
         _write_waveform(args.waveform, main)
     warnings = _warnings(sc, m)

@@ -1,78 +1,24 @@
-"""Report folder of a simulation: PNG plots, a metrics table and the cautions."""
+"""Report folder of a simulation: plots, report.md (figures defined, faults, outcomes, settings), metrics.json."""
 import json
 import os
 
-import matplotlib
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
+from harness.atomic import atomic_write
+from harness.loop.cautions import CAUTIONS, voltage_cautions
+from harness.loop.metrics import last_event_s
+from harness.loop.report_plots import plot_comparison, plot_run
+from harness.loop.report_text import (COMPENSATION_LINES, definitions, events, fault_lines, header, outcome_table,
+                                      ratio, settings_table)
 
-from harness.atomic import atomic_write  # noqa: E402
-from harness.loop.cautions import CAUTIONS, voltage_cautions  # noqa: E402
-
-PANELS = (("v_load_v", "load voltage (V)"), ("v_supply_v", "supply voltage (V)"),
-          ("i_supply_a", "supply current (A)"), ("r_estimate_ohm", "resistance estimate (ohm)"),
-          ("correction_v", "correction (V)"))
-ROWS = (("load_error_v", "load error (V)", "{:+.4f}"), ("improvement", "improvement (x)", "{:.1f}"),
-        ("ripple_load_v_pp", "load ripple (V pp)", "{:.4f}"), ("max_load_v", "max load (V)", "{:.3f}"),
-        ("min_load_v", "min load (V)", "{:.3f}"), ("settling_s", "settling (s)", "{:.3f}"),
-        ("r_estimate_ohm", "final estimate (ohm)", "{:.4f}"))
-
-
-def _shade_faults(ax, scenario):
-    for f in scenario.faults:
-        ax.axvspan(f.at_s, min(f.until_s, scenario.run.duration_s), color="tab:red", alpha=0.12,
-                   label=f"fault: {f.kind}")
-
-
-def _save(fig, path):
-    with atomic_write(path, "wb") as f:
-        fig.savefig(f, format="png", dpi=110)
-    plt.close(fig)
-
-
-def plot_run(run, path, b=0):
-    """Five stacked panels of one scenario over time, faults shaded."""
-    sc = run.scenarios[b]
-    fig, axes = plt.subplots(len(PANELS), 1, figsize=(10, 11), sharex=True)
-    for ax, (name, label) in zip(axes, PANELS):
-        ax.plot(run.t_s, run.channels[name][:, b], lw=0.8)
-        ax.set_ylabel(label)
-        ax.grid(alpha=0.3)
-        _shade_faults(ax, sc)
-    axes[0].axhline(sc.supply.target_v, color="k", ls="--", lw=0.8, label="target")
-    axes[3].axhline(run.r_cable_ohm[b] + sc.load_end.esr_ohm, color="k", ls="--", lw=0.8,
-                    label="cable + ESR (end of run)")
-    for ax in (axes[0], axes[3]):
-        handles, labels = ax.get_legend_handles_labels()
-        uniq = dict(zip(labels, handles))
-        ax.legend(uniq.values(), uniq.keys(), loc="lower right", fontsize=8)
-    axes[-1].set_xlabel("time (s)")
-    fig.suptitle(f"{os.path.basename(sc.source)}: {run.compensation} ({run.backend})")
-    fig.tight_layout()
-    _save(fig, path)
-
-
-def plot_comparison(runs, path, b=0):
-    """Load voltage of every compensation on the same scenario, overlaid; below, a +-3 % zoom."""
-    sc = next(iter(runs.values())).scenarios[b]
-    target = sc.supply.target_v
-    fig, axes = plt.subplots(2, 1, figsize=(10, 8), sharex=True)
-    for ax in axes:
-        for name, run in runs.items():
-            ax.plot(run.t_s, run.channels["v_load_v"][:, b], lw=0.9, label=name)
-        ax.axhline(target, color="k", ls="--", lw=0.8, label="target")
-        _shade_faults(ax, sc)
-        ax.set_ylabel("load voltage (V)")
-        ax.grid(alpha=0.3)
-    axes[1].set_ylim(0.97 * target, 1.03 * target)
-    axes[1].set_title("zoom: target +-3 %", fontsize=9)
-    axes[1].set_xlabel("time (s)")
-    handles, labels = axes[0].get_legend_handles_labels()
-    uniq = dict(zip(labels, handles))
-    axes[0].legend(uniq.values(), uniq.keys(), fontsize=8)
-    axes[0].set_title("load voltage: linedrop against the baselines")
-    fig.tight_layout()
-    _save(fig, path)
+#: Rows of the metrics table: metrics key, label with unit, formatter of a value that is not None.
+ROWS = (("load_error_v", "load error (V)", "{:+.4f}".format),
+        ("improvement", "improvement (ratio)", ratio),
+        ("ripple_load_v_pp", "load ripple (V peak to peak)", "{:.4f}".format),
+        ("max_load_v", "max load (V)", "{:.3f}".format),
+        ("min_load_v", "min load (V)", "{:.3f}".format),
+        ("settling_s", "settling (ms)", lambda s: f"{s * 1e3:.1f}"),
+        ("r_estimate_ohm", "final estimate (ohm)", "{:.4f}".format))
+#: What a None value of a row means, in the table.
+NONE_CELLS = {"settling_s": "never"}
 
 
 def metrics_table(all_metrics):
@@ -80,10 +26,8 @@ def metrics_table(all_metrics):
     names = list(all_metrics)
     lines = ["| figure | " + " | ".join(names) + " |", "|---" * (len(names) + 1) + "|"]
     for key, label, fmt in ROWS:
-        cells = []
-        for n in names:
-            v = all_metrics[n][key]
-            cells.append("n/a" if v is None else fmt.format(v))
+        cells = [NONE_CELLS.get(key, "n/a") if all_metrics[n][key] is None else fmt(all_metrics[n][key])
+                 for n in names]
         lines.append(f"| {label} | " + " | ".join(cells) + " |")
     return "\n".join(lines) + "\n"
 
@@ -92,30 +36,59 @@ def metrics_table(all_metrics):
 REPORT_FILES = ("waveforms.png", "comparison.png", "report.md", "metrics.json")
 
 
-def write_report(out_dir, runs, all_metrics, b=0):
-    """Write plots, metrics.md, metrics.json into ``out_dir`` (created if needed).
-
-    ``runs`` and ``all_metrics`` are dicts keyed by compensation name; the first is linedrop's.
-    """
-    os.makedirs(out_dir, exist_ok=True)
+def _body(runs, all_metrics, b, settings):
     main = next(iter(runs))
+    run, m = runs[main], all_metrics[main]
+    sc = run.scenarios[b]
+    text = header(sc, run, settings["version"])
+    text += [f"True loop resistance at the end of the run: {m['r_cable_ohm']:.4f} ohm; "
+             f"ESR {sc.load_end.esr_ohm:.4f} ohm; uncompensated drop {m['uncompensated_drop_v']:.3f} V.",
+             "", events(run, b), "", "## Figures", "", metrics_table(all_metrics)]
+    text += definitions(sc, last_event_s(sc)) + ["", "Compensations compared:", ""]
+    text += [f"- `{n}`: {COMPENSATION_LINES[n]}" for n in all_metrics] + [""]
+    if m["faults"]:
+        text += [f"## Faults ({main})", "",
+                 "The correction before a fault is its value at the last sample before the fault "
+                 "began; at its end, at the last sample inside it (V).", ""]
+        text += fault_lines(m["faults"]) + [""]
+    if "linedrop" in runs:
+        algo_run = runs["linedrop"]
+        text += ["## Windows by outcome (linedrop)", ""]
+        text += outcome_table(all_metrics["linedrop"]["window_outcomes"]) + [""]
+        text += ["## Algorithm settings", "", settings["line"], "",
+                 f"Every setting linedrop's algorithm ran with; \"{settings['table_source']}\" marks "
+                 "the keys of the [algorithm] table in force:", ""]
+        text += settings_table(algo_run.cfgs[b], algo_run.scenarios[b], settings["as_written"],
+                               settings["table_source"]) + [""]
+    text += ["![waveforms](waveforms.png)", "",
+             "Shaded: faults (red), the supply at its current limit (purple), and along the foot of "
+             "each panel the windows the algorithm rejected, one colour per outcome; dotted lines: "
+             "load steps.", ""]
+    if len(runs) > 1:
+        text += ["![comparison](comparison.png)", ""]
+    return text
+
+
+def write_report(out_dir, runs, all_metrics, b=0, settings=None):
+    """Write plots, report.md and metrics.json into ``out_dir`` (created if needed).
+
+    ``runs`` and ``all_metrics`` are dicts keyed by compensation name; the first is the one the
+    user asked for. ``settings`` says what ran: ``version`` (the tool's, in words),
+    ``as_written`` (the scenario as its file has it, before design's recommendation changed it)
+    ``table_source`` (where the [algorithm] table came from, a few words) and ``line`` (the
+    sentence simulate prints about it); by default the scenario run and "the scenario".
+    Returns the voltage cautions.
+    """
+    main = next(iter(runs))
+    settings = dict({"version": "unknown", "as_written": runs[main].scenarios[b],
+                     "table_source": "the scenario", "line": ""}, **(settings or {}))
+    os.makedirs(out_dir, exist_ok=True)
     plot_run(runs[main], os.path.join(out_dir, "waveforms.png"), b)
     if len(runs) > 1:
         plot_comparison(runs, os.path.join(out_dir, "comparison.png"), b)
-    m = all_metrics[main]
     warn = voltage_cautions(max(x["max_load_v"] for x in all_metrics.values()),
                             max(x["max_supply_v"] for x in all_metrics.values()))
-    sc = runs[main].scenarios[b]
-    text = [f"# linedrop simulation: {os.path.basename(sc.source)}", "",
-            f"True loop resistance at the end of the run: {m['r_cable_ohm']:.4f} ohm; "
-            f"ESR {sc.load_end.esr_ohm:.4f} ohm; uncompensated drop {m['uncompensated_drop_v']:.3f} V.",
-            "", metrics_table(all_metrics), ""]
-    if m.get("window_outcomes"):
-        text += ["Windows by outcome (linedrop's algorithm): "
-                 + ", ".join(f"{n} {c}" for n, c in m["window_outcomes"].items()) + ".", ""]
-    text += ["![waveforms](waveforms.png)", ""]
-    if len(runs) > 1:
-        text += ["![comparison](comparison.png)", ""]
+    text = _body(runs, all_metrics, b, settings)
     text += warn + ([""] if warn else []) + ["## Cautions", ""] + [f"- {c}" for c in CAUTIONS]
     with atomic_write(os.path.join(out_dir, "report.md")) as f:
         f.write("\n".join(text) + "\n")
