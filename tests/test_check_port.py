@@ -97,7 +97,7 @@ def test_one_line_change_is_reported_at_its_true_first_wrong_sample(vec_dir, tmp
     assert truth is not None, "the change does not show in the vectors"
     assert main(["check-port", str(vec_dir), "--c-dir", str(port)]) == 1
     out = capsys.readouterr().out
-    assert f"first divergence in {truth[0]} at sample {truth[1]} " in out
+    assert f"first divergence in {truth[0]} at row {truth[1] + 2} " in out   # header: row 1
     rows = parse_vector_csv(truth[0], (vec_dir / truth[0]).read_text())
     assert f"inputs: adc_v={rows[truth[1], 0]} adc_i={rows[truth[1], 1]}" in out
     assert f"differs: {', '.join(truth[2])}\n" in out
@@ -120,7 +120,7 @@ def test_log_made_by_the_model_passes_and_a_tampered_one_fails_at_the_edit(vec_d
     log.write_text("\n".join(lines) + "\n")
     assert main(["check-port", str(vec_dir), "--log", str(log)]) == 1
     out = capsys.readouterr().out
-    assert f"at sample {row} " in out and re.search(r"^  \* r_est ", out, flags=re.M)
+    assert f"at row {row + 2} " in out and re.search(r"^  \* r_est ", out, flags=re.M)
 
 
 def test_log_params_can_come_from_an_algorithm_config(vec_dir, tmp_path, capsys):
@@ -177,7 +177,7 @@ def test_broken_port_exits_2_with_a_clear_first_line(vec_dir, tmp_path, capsys, 
     (["{tmp}/none", "--c-dir", "{tmp}"], "no such directory of vectors"),
     (["{tmp}", "--c-dir", "{tmp}"], "no vector set"),
     (["{vec}", "--log", "{tmp}/none.csv"], "cannot read log"),
-    (["{vec}", "--log", "{vec}/demo_mast-params.h"], "header must be adc_v,adc_i,command,"),
+    (["{vec}", "--log", "{vec}/demo_mast-params.h"], "row 1: unknown column"),
     (["--log", "{vec}/demo_mast-normal.csv"], "give VECTORS_DIR or --config"),
 ])
 def test_bad_arguments_exit_2_with_one_line(vec_dir, tmp_path, capsys, args, message):
@@ -194,3 +194,60 @@ def test_tampered_vector_file_is_refused_before_building(vec_dir, tmp_path, caps
     path.write_text(path.read_text().replace("\n2", "\n3", 1))
     assert main(["check-port", str(copy), "--c-dir", str(tmp_path)]) == 2
     assert "differ from the hash" in capsys.readouterr().err
+
+
+def _columns(lines, names):
+    """The vector CSV ``lines`` cut down to the columns ``names`` (in that order)."""
+    idx = [COLUMNS.index(n) for n in names]
+    return [",".join(line.split(",")[i] for i in idx) for line in lines]
+
+
+def test_minimal_log_is_checked_on_its_cmd_column_and_reports_the_row_an_editor_shows(vec_dir, tmp_path, capsys):
+    lines = (vec_dir / "demo_mast-load_step.csv").read_text().splitlines()
+    log = tmp_path / "device.csv"
+    minimal = _columns(lines, ["adc_v", "adc_i", "cmd"])
+    log.write_text("\n".join(minimal) + "\n")
+    assert main(["check-port", str(vec_dir), "--log", str(log)]) == 0
+    assert f"bit-exact on {len(lines) - 1} samples (1 file; column cmd after" in capsys.readouterr().out
+    # A changed command in the file's 1001st line (row 1001, header = row 1) is found there.
+    cells = minimal[1000].split(",")
+    minimal[1000] = ",".join(cells[:2] + [str(int(cells[2]) + 1)])
+    log.write_text("\n".join(minimal) + "\n")
+    assert main(["check-port", str(vec_dir), "--log", str(log)]) == 1
+    out = capsys.readouterr().out
+    assert "at row 1001 (" in out and re.search(r"^  \* cmd ", out, flags=re.M)
+    assert not re.search(r"^  [* ] r_est ", out, flags=re.M), "a column the log lacks was shown as compared"
+
+
+def test_log_columns_in_any_order_are_all_compared(vec_dir, tmp_path, capsys):
+    lines = (vec_dir / "demo_mast-normal.csv").read_text().splitlines()
+    names = ["r_est", "adc_i", "cmd", "adc_v", "status"]
+    cut = _columns(lines, names)
+    log = tmp_path / "device.csv"
+    log.write_text("\n".join(cut) + "\n")
+    assert main(["check-port", str(vec_dir), "--log", str(log)]) == 0
+    capsys.readouterr()
+    cells = cut[300].split(",")
+    cells[4] = str(int(cells[4]) ^ 1)          # the status column, last in this file
+    cut[300] = ",".join(cells)
+    log.write_text("\n".join(cut) + "\n")
+    assert main(["check-port", str(vec_dir), "--log", str(log)]) == 1
+    out = capsys.readouterr().out
+    assert "at row 301 (" in out and "differs: status\n" in out
+
+
+@pytest.mark.parametrize("text, message", [
+    ("adc_v,adc_i,cmd,volts\n1,2,3,4\n", "row 1: unknown column 'volts'; allowed: adc_v,adc_i,command,acc_vi,"),
+    ("adc_v,adc_i\n1,2\n", "row 1: missing column 'cmd'; a log holds at least adc_v,adc_i,cmd"),
+    ("adc_v,adc_i,cmd,cmd\n1,2,3,3\n", "row 1: column 'cmd' given twice"),
+    ("adc_v,adc_i,cmd\n1,2,3\n4,5\n", "row 3: 2 fields, the header has 3"),
+    ("adc_v,adc_i,cmd\n1,2,3\n\n4,5,6,7\n", "row 4: 4 fields, the header has 3"),
+    ("adc_v,adc_i,cmd\n1,2,3\n4,x,6\n", "row 3, column adc_i: 'x' is not an integer"),
+    ("adc_v,adc_i,cmd\n1,2,3\n70000,5,6\n", "row 3: ADC codes must be in [0, 65535]"),
+])
+def test_bad_log_is_one_line_naming_file_and_row(vec_dir, tmp_path, capsys, text, message):
+    log = tmp_path / "device.csv"
+    log.write_text(text)
+    assert main(["check-port", str(vec_dir), "--log", str(log)]) == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1 and f"{log}: {message}" in err, err

@@ -14,7 +14,8 @@ def add_parser(sub):
     p.add_argument("--c-dir", metavar="DIR",
                    help="the port: every *.c in DIR, with linedrop.h in DIR (the c_ref API)")
     p.add_argument("--log", metavar="FILE.csv",
-                   help="check a device log with the vector columns instead of building C")
+                   help="check a device log instead of building C: header adc_v,adc_i,cmd, plus any other "
+                        "vector column to compare (rows are numbered with the header as row 1)")
     p.add_argument("--config", metavar="ALGO.toml",
                    help="params for --log from an [algorithm] table (default: the vector set's)")
     p.set_defaults(func=run)
@@ -35,9 +36,10 @@ def run(args):
         result = port_check.check_port(args.vectors, args.c_dir)
         what, got_label = f"port {args.c_dir}", "port"
     if result.divergence is None:
+        columns = (f"command and {len(port_check.STATE_FIELDS)} state fields" if result.compared is None
+                   else f"column{'' if len(result.compared) == 1 else 's'} {','.join(result.compared)}")
         print(f"{what}: bit-exact on {result.samples} samples ({result.files} file"
-              f"{'' if result.files == 1 else 's'}; command and {len(port_check.STATE_FIELDS)} state fields "
-              f"after every sample)")
+              f"{'' if result.files == 1 else 's'}; {columns} after every sample)")
         return 0
     print(f"{what}: NOT bit-exact")
     print(port_check.format_divergence(result.divergence, got_label))

@@ -1,4 +1,8 @@
-"""Read ADC-code CSV files (header ``adc_v,adc_i``) with one-line errors naming row and column."""
+"""Read integer-code CSV files (ADC codes, device logs) with one-line errors naming file, row and column.
+
+Rows are numbered as a text editor numbers the file's lines: the header is row 1, the
+first sample row 2. Every message of ``replay`` and ``check-port`` uses this numbering.
+"""
 import csv
 
 import numpy as np
@@ -6,6 +10,62 @@ import numpy as np
 from harness.errors import InputError
 
 COLUMNS = ("adc_v", "adc_i")
+
+
+def read_rows(path, what="file", check_header=None):
+    """Header (names stripped) and data rows ``[(row number, cells), ...]`` of a CSV file.
+
+    ``check_header(header)``, if given, may raise on a bad header before any row is read.
+    Blank rows are skipped; every other row must have as many fields as the header.
+    """
+    try:
+        f = open(path, newline="", encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read {what}: {exc.strerror}") from None
+    rows = []
+    try:
+        with f:
+            reader = csv.reader(f)
+            header = next(reader, None)
+            if header is None:
+                raise InputError(f"{path}: empty file; expected a header row")
+            header = [h.strip() for h in header]
+            if check_header is not None:
+                check_header(header)
+            for row in reader:
+                if not row or all(not c.strip() for c in row):
+                    continue
+                if len(row) != len(header):
+                    raise InputError(f"{path}: row {reader.line_num}: {len(row)} fields, the header has "
+                                     f"{len(header)} ({','.join(header)})")
+                rows.append((reader.line_num, row))
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{path}: not UTF-8 text (byte {exc.start})") from None
+    except csv.Error as exc:
+        raise InputError(f"{path}: row {reader.line_num}: not valid CSV ({exc})") from None
+    if not rows:
+        raise InputError(f"{path}: no data rows after the header")
+    return header, rows
+
+
+def int_cells(path, header, rows, cols, rule):
+    """The columns ``cols`` (header indices) of ``rows`` as an int64 array (T, len(cols)).
+
+    A cell that is not an integer is an error naming its row and column; ``rule`` says what
+    is allowed (e.g. ``"an integer code in [0, 4095]"``).
+    """
+    try:
+        return np.array([[int(r[c]) for c in cols] for _, r in rows], dtype=np.int64).reshape(len(rows), len(cols))
+    except (ValueError, OverflowError):
+        pass
+    for row_no, r in rows:      # slow path, only to name the bad cell
+        for c in cols:
+            try:
+                np.int64(int(r[c]))
+            except (ValueError, OverflowError):
+                raise InputError(f"{path}: row {row_no}, column {header[c]}: {r[c].strip()!r} is not "
+                                 f"{rule}") from None
+    raise AssertionError("unreachable: every cell converted")
 
 
 def read_adc_csv(path, adc_bits):
@@ -19,41 +79,20 @@ def read_adc_csv(path, adc_bits):
         ADC resolution; codes must be in [0, 2**adc_bits - 1].
     """
     hi = (1 << adc_bits) - 1
-    try:
-        f = open(path, newline="")
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read: {exc.strerror}") from exc
-    with f:
-        reader = csv.reader(f)
-        header = next(reader, None)
-        if header is None:
-            raise InputError(f"{path}: empty file; expected a header line 'adc_v,adc_i'")
-        header = [h.strip() for h in header]
+
+    def check_header(header):
         for col in COLUMNS:
             if col not in header:
                 raise InputError(f"{path}: row 1: missing column '{col}' (header must hold adc_v,adc_i)")
-        cols = [header.index(c) for c in COLUMNS]
-        values = []
-        for row_no, row in enumerate(reader, start=2):
-            if not row or all(not c.strip() for c in row):
-                continue
-            if len(row) != len(header):
-                raise InputError(f"{path}: row {row_no}: {len(row)} fields, the header has "
-                                 f"{len(header)} ({','.join(header)})")
-            pair = []
-            for col, name in zip(cols, COLUMNS):
-                cell = row[col].strip() if col < len(row) else ""
-                try:
-                    code = int(cell)
-                except ValueError:
-                    raise InputError(f"{path}: row {row_no}, column {name}: {cell!r} is not an "
-                                     f"integer code in [0, {hi}]") from None
-                if not 0 <= code <= hi:
-                    raise InputError(f"{path}: row {row_no}, column {name}: {code} is outside "
-                                     f"[0, {hi}] for a {adc_bits}-bit ADC")
-                pair.append(code)
-            values.append(pair)
-    if not values:
-        raise InputError(f"{path}: no data rows after the header")
-    arr = np.array(values, dtype=np.uint16)
+
+    header, rows = read_rows(path, check_header=check_header)
+    cols = [header.index(c) for c in COLUMNS]
+    codes = int_cells(path, header, rows, cols, f"an integer code in [0, {hi}]")
+    bad = np.flatnonzero(((codes < 0) | (codes > hi)).any(axis=1))
+    if bad.size:
+        k = int(bad[0])
+        c = int(np.flatnonzero((codes[k] < 0) | (codes[k] > hi))[0])
+        raise InputError(f"{path}: row {rows[k][0]}, column {COLUMNS[c]}: {codes[k, c]} is outside "
+                         f"[0, {hi}] for a {adc_bits}-bit ADC")
+    arr = codes.astype(np.uint16)
     return arr[:, 0], arr[:, 1]

@@ -1,8 +1,9 @@
 """Check a firmware port against golden vectors bit for bit: its C sources, or a log from the device.
 
-Both checks compare, after every sample, the command ld_step returned and
-every state field, with no tolerance, and stop at the first sample where
-anything differs.
+A port check compares, after every sample, the command ld_step returned and
+every state field; a log check compares the columns the log holds (at least
+``adc_v,adc_i,cmd``). Both use no tolerance and stop at the first sample where
+anything differs; it is reported by its CSV row (the header is row 1).
 """
 from dataclasses import dataclass
 
@@ -10,7 +11,8 @@ import numpy as np
 
 from algo.state import STATE_FIELDS, STATUS_NAMES
 from harness.errors import InputError
-from harness.port.vector_files import find_sets, params_from_note, parse_vector_csv, read_note, read_set
+from harness.loop.adc_csv import int_cells, read_rows
+from harness.port.vector_files import COLUMNS, find_sets, params_from_note, read_note, read_set
 from harness.loop.replay import model_trace
 
 #: Samples shown before a divergence.
@@ -18,23 +20,34 @@ CONTEXT = 3
 #: Labels of the compared columns (``cmd`` is both the return value and a state field).
 LABELS = ["command"] + list(STATE_FIELDS)
 U16_MAX = 0xFFFF
+#: Columns a device log must hold; it may add any other of COLUMNS (``command`` is ld_step's
+#: return value, ``cmd`` the state field: the same number).
+LOG_REQUIRED = ("adc_v", "adc_i", "cmd")
 
 
 @dataclass
 class Divergence:
-    """First sample of ``file`` where ``got`` differs from ``rows`` (expected, COLUMNS layout)."""
+    """First sample of ``file`` where ``got`` differs from ``rows`` (expected, COLUMNS layout).
+
+    ``got`` holds the compared columns ``compared`` (indices into LABELS; all of them for a
+    port); ``row_numbers`` the CSV row of every sample.
+    """
     file: str
     index: int
     rows: np.ndarray
     got: np.ndarray
+    row_numbers: np.ndarray
+    compared: tuple = tuple(range(len(LABELS)))
 
 
 @dataclass
 class Result:
-    """Outcome of a check: samples and files compared, and the first divergence if any."""
+    """Outcome of a check: samples and files compared, the first divergence if any, and the
+    compared columns (names; None: the command and every state field)."""
     samples: int
     files: int
     divergence: object = None
+    compared: tuple = None
 
 
 def first_divergence(expected, got):
@@ -43,11 +56,16 @@ def first_divergence(expected, got):
     return int(np.argmax(bad)) if bad.any() else None
 
 
-def _check_inputs(path, rows):
+def vector_rows(n):
+    """CSV row numbers of the ``n`` samples of a vector file (header row 1, no blank rows)."""
+    return np.arange(2, n + 2)
+
+
+def _check_inputs(path, rows, row_numbers):
     bad = np.flatnonzero((rows[:, :2] < 0).any(axis=1) | (rows[:, :2] > U16_MAX).any(axis=1))
     if bad.size:
         k = int(bad[0])
-        raise InputError(f"{path}: line {k + 2}: ADC codes must be in [0, {U16_MAX}], got "
+        raise InputError(f"{path}: row {row_numbers[k]}: ADC codes must be in [0, {U16_MAX}], got "
                          f"adc_v={rows[k, 0]} adc_i={rows[k, 1]}")
 
 
@@ -62,11 +80,11 @@ def check_port(vec_dir, c_dir):
     samples = files = 0
     for note, (params, vectors) in sets:
         for name, rows in vectors:
-            _check_inputs(name, rows)
+            _check_inputs(name, rows, vector_rows(len(rows)))
             got = port.trace(params, rows[:, 0], rows[:, 1], STATE_FIELDS)
             k = first_divergence(rows[:, 2:], got)
             if k is not None:
-                return Result(samples + k, files, Divergence(name, k, rows, got))
+                return Result(samples + k, files, Divergence(name, k, rows, got, vector_rows(len(rows))))
             samples, files = samples + len(rows), files + 1
     return Result(samples, files)
 
@@ -90,48 +108,73 @@ def log_params(vec_dir=None, config=None):
     return found.popitem()[1]
 
 
+def _check_log_header(log_path, header):
+    unknown = [h for h in header if h not in COLUMNS]
+    if unknown:
+        raise InputError(f"{log_path}: row 1: unknown column {unknown[0]!r}; allowed: {','.join(COLUMNS)}")
+    twice = [h for n, h in enumerate(header) if h in header[:n]]
+    if twice:
+        raise InputError(f"{log_path}: row 1: column {twice[0]!r} given twice")
+    missing = [c for c in LOG_REQUIRED if c not in header]
+    if missing:
+        raise InputError(f"{log_path}: row 1: missing column {missing[0]!r}; a log holds at least "
+                         f"{','.join(LOG_REQUIRED)}")
+
+
+def read_log(log_path):
+    """A device log: (names of its compared columns, ADC codes (T, 2), compared values (T, K), row numbers).
+
+    The header must hold adc_v, adc_i and cmd and may add any other vector column, in any order.
+    """
+    header, rows = read_rows(log_path, "log", lambda header: _check_log_header(log_path, header))
+    names = [h for h in header if h not in ("adc_v", "adc_i")]
+    cols = [header.index("adc_v"), header.index("adc_i")] + [header.index(h) for h in names]
+    values = int_cells(log_path, header, rows, cols, "an integer")
+    return names, values[:, :2], values[:, 2:], np.array([n for n, _ in rows])
+
+
 def check_log(log_path, params):
-    """Replay a device log's ADC codes through the model and compare its commands and state."""
-    try:
-        with open(log_path, encoding="utf-8") as f:
-            text = f.read()
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{log_path}: cannot read log: {getattr(exc, 'strerror', None) or exc}") from None
-    rows = parse_vector_csv(log_path, text)
-    _check_inputs(log_path, rows)
-    want = model_trace(params, rows[:, 0], rows[:, 1])
-    k = first_divergence(want, rows[:, 2:])
+    """Replay a device log's ADC codes through the model and compare the columns the log holds."""
+    names, adc, got, row_numbers = read_log(log_path)
+    _check_inputs(log_path, adc, row_numbers)
+    want = model_trace(params, adc[:, 0], adc[:, 1])
+    compared = tuple(LABELS.index(n) for n in names)
+    k = first_divergence(want[:, compared], got)
     if k is not None:
         # For a log the model is the reference and the device what was "got".
-        expected = np.column_stack([rows[:, :2], want])
-        return Result(k, 0, Divergence(log_path, k, expected, rows[:, 2:]))
-    return Result(len(rows), 1)
+        expected = np.column_stack([adc, want])
+        return Result(k, 0, Divergence(log_path, k, expected, got, row_numbers, compared), tuple(names))
+    return Result(len(adc), 1, compared=tuple(names))
 
 
 def format_divergence(d, got_label="got"):
-    """Human-readable report: where, the inputs, every compared value, the samples before it."""
-    k, exp, got = d.index, d.rows[d.index, 2:], d.got[d.index]
-    differ = [LABELS[c] for c in range(len(LABELS)) if exp[c] != got[c]]
+    """Human-readable report: the CSV row, the inputs, every compared value, the samples before it."""
+    k, exp = d.index, d.rows[d.index, 2:]
+    got = dict(zip(d.compared, d.got[k]))
+    differ = [LABELS[c] for c in d.compared if exp[c] != got[c]]
     col = {f: 3 + n for n, f in enumerate(STATE_FIELDS)}
     window = int(d.rows[k - 1, col["windows"]]) if k else 0
     pos = int(d.rows[k - 1, col["count"]]) if k else 0
     where = f"sample {pos} of window {window}" + (", the window end" if d.rows[k, col["count"]] == 0 else "")
-    lines = [f"first divergence in {d.file} at sample {k} ({where}; {k} samples bit-exact before it)",
+    lines = [f"first divergence in {d.file} at row {d.row_numbers[k]} ({where}; {k} samples bit-exact "
+             f"before it)",
              f"  inputs: adc_v={d.rows[k, 0]} adc_i={d.rows[k, 1]}",
              f"  differs: {', '.join(differ)}",
              f"    {'field':<16}{'expected':>14}{got_label:>14}"]
-    for c, label in enumerate(LABELS):
+    for c in d.compared:
         mark = "*" if exp[c] != got[c] else " "
         note = "   <-- differs" if exp[c] != got[c] else ""
-        lines.append(f"  {mark} {label:<16}{exp[c]:>14}{got[c]:>14}{note}")
+        lines.append(f"  {mark} {LABELS[c]:<16}{exp[c]:>14}{got[c]:>14}{note}")
+    if len(d.compared) < len(LABELS):
+        lines.append(f"  ({len(LABELS) - len(d.compared)} of the {len(LABELS)} columns are not in the "
+                     f"{got_label} and were not compared)")
     status = exp[1 + STATE_FIELDS.index("status")]
     lines.append(f"  (expected status after this sample: {STATUS_NAMES.get(int(status), status)})")
     if k:
-        lines.append(f"  the {min(k, CONTEXT)} samples before it (bit-exact):")
-        lines.append(f"    {'sample':>8}{'adc_v':>8}{'adc_i':>8}{'cmd':>8}{'count':>8}{'status':>8}")
+        lines.append(f"  the {min(k, CONTEXT)} samples before it (bit-exact; expected values):")
+        lines.append(f"    {'row':>8}{'adc_v':>8}{'adc_i':>8}{'cmd':>8}{'count':>8}{'status':>8}")
         for j in range(max(0, k - CONTEXT), k):
             r = d.rows[j]
-            lines.append(f"    {j:>8}{r[0]:>8}{r[1]:>8}{r[2]:>8}"
-                         f"{r[3 + STATE_FIELDS.index('count')]:>8}{r[3 + STATE_FIELDS.index('status')]:>8}")
+            lines.append(f"    {d.row_numbers[j]:>8}{r[0]:>8}{r[1]:>8}{r[2]:>8}"
+                         f"{r[col['count']]:>8}{r[col['status']]:>8}")
     return "\n".join(lines)
-

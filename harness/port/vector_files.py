@@ -132,7 +132,7 @@ def parse_vector_csv(path, text):
     """
     lines = text.splitlines()
     if not lines or [h.strip() for h in lines[0].split(",")] != COLUMNS:
-        raise InputError(f"{path}: line 1: header must be {','.join(COLUMNS)}")
+        raise InputError(f"{path}: row 1: header must be {','.join(COLUMNS)}")
     if len(lines) < 2:
         raise InputError(f"{path}: no samples after the header")
     try:
@@ -141,15 +141,15 @@ def parse_vector_csv(path, text):
             return cells.reshape(len(lines) - 1, len(COLUMNS))
     except (ValueError, OverflowError):
         pass
-    for n, line in enumerate(lines[1:], 2):     # slow path, only to name the bad line
+    for n, line in enumerate(lines[1:], 2):     # slow path, only to name the bad row (header: row 1)
         values = line.split(",")
         if len(values) != len(COLUMNS):
-            raise InputError(f"{path}: line {n}: {len(values)} values, expected {len(COLUMNS)}")
+            raise InputError(f"{path}: row {n}: {len(values)} values, expected {len(COLUMNS)}")
         for col, value in zip(COLUMNS, values):
             try:
                 int(value)
             except ValueError:
-                raise InputError(f"{path}: line {n}: {col} = {value!r} is not an integer") from None
+                raise InputError(f"{path}: row {n}: {col} = {value!r} is not an integer") from None
     raise InputError(f"{path}: a value does not fit int64")
 
 

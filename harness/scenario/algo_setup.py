@@ -1,6 +1,7 @@
 """The algorithm settings of a scenario: its [algorithm] table plus what [supply] and [sensing] fix."""
 from algo.config import ConfigError, from_mapping
 from harness.errors import InputError
+from harness.scenario.algo_toml import config_message
 
 #: Settings a scenario takes from its plant sections, never from [algorithm].
 FROM_PLANT = {
@@ -28,7 +29,6 @@ def algo_config(scenario, overrides=None):
         if exc.key in FROM_PLANT and exc.key not in (overrides or {}):
             # Name the key the user wrote: the plant section's, with the algorithm's range.
             section, name = FROM_PLANT[exc.key]
-            rule = str(exc).split(": ", 1)[1]
-            rule = " " + rule if rule.startswith("= ") else ": " + rule
-            raise InputError(f"{scenario.source}: {section}.{name}{rule} (the algorithm's range)") from None
-        raise InputError(f"{scenario.source}: algorithm.{exc}") from None
+            raise InputError(f"{scenario.source}: {config_message(exc, f'{section}.{name}')} "
+                             f"(the algorithm's range)") from None
+        raise InputError(f"{scenario.source}: {config_message(exc, f'algorithm.{exc.key}')}") from None

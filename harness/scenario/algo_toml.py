@@ -4,6 +4,12 @@ from harness.errors import InputError
 from harness.scenario.toml_file import read_toml
 
 
+def config_message(exc, name):
+    """The text of a ConfigError with its key spelled ``name``: ``name = value: rule`` or ``name: rule``."""
+    rule = str(exc).split(": ", 1)[1]
+    return name + (" " + rule if rule.startswith("= ") else ": " + rule)
+
+
 def config_from_table(table, path, section="algorithm"):
     """AlgoConfig from a mapping; errors name ``path`` and ``section.key``."""
     if not isinstance(table, dict):
@@ -11,7 +17,7 @@ def config_from_table(table, path, section="algorithm"):
     try:
         return from_mapping(table)
     except ConfigError as exc:
-        raise InputError(f"{path}: {section}.{exc}") from None
+        raise InputError(f"{path}: {config_message(exc, f'{section}.{exc.key}')}") from None
 
 
 def load_algo_config(path):

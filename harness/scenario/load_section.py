@@ -3,24 +3,19 @@
 from pathlib import Path
 
 from harness.scenario.profile import read_profile
-from harness.scenario.specs import LOAD_KINDS, LoadSpec
+from harness.scenario.keys import KEYS, LOAD_KIND_KEYS, MAIN_KEY
+from harness.scenario.specs import LoadSpec
 from harness.scenario.validate import Section, interval, show
 
-#: Main key of each load kind and its allowed range (lo, hi, lo_open).
-MAIN_KEY = {
-    "constant_current": ("current_a", 0.0, 1000.0, False),
-    "resistive": ("resistance_ohm", 0.0, 1e6, True),
-    "constant_power": ("power_w", 0.0, 1e5, False),
-    "lamp": ("rated_w", 0.0, 1e5, True),
-}
 #: Fraction of supply.target_v used as the default load.cutoff_v (constant current / power).
 CUTOFF_FRACTION = 0.25
 DEFAULT_LAMP_TAU_S = 0.05
 
 
-def _steps(sec, lo, hi, lo_open, duration_s):
+def _steps(sec, main, duration_s):
+    r = KEYS["load"][main]
+    lo, hi, lo_open = r.lo, r.hi, r.lo_open
     raw = sec.table.get("steps", [])
-    sec.used.add("steps")
     if not isinstance(raw, list):
         sec.fail("steps", "must be a list of [time_s, value] pairs", raw)
     out, prev = [], None
@@ -59,13 +54,11 @@ def parse_load(source, table, target_v, r_loop_ohm, duration_s):
     duration_s : float
         run.duration_s, s (step times must lie within it).
     """
-    sec = Section(str(source), "load", table)
-    kind = sec.choice("kind", LOAD_KINDS)
-    key, lo, hi, lo_open = MAIN_KEY[kind]
-    allowed = {"kind", key, "steps"}
+    sec = Section(str(source), "load", table, KEYS["load"])
+    kind = sec.choice("kind")
+    key = MAIN_KEY[kind]
     profile, profile_csv = (), None
     if kind == "constant_current" and sec.has("profile_csv"):
-        allowed |= {"profile_csv"}
         if sec.has(key):
             sec.fail("profile_csv", f"give either load.{key} or load.profile_csv, not both", table["profile_csv"])
         if sec.has("steps"):
@@ -75,24 +68,21 @@ def parse_load(source, table, target_v, r_loop_ohm, duration_s):
         profile = read_profile(path, shown=str(path))
         value = profile[0][1]
     else:
-        value = sec.number(key, lo, hi, lo_open=lo_open)
-    steps = () if kind == "lamp" else _steps(sec, lo, hi, lo_open, duration_s)
+        value = sec.number(key)
+    steps = () if kind == "lamp" else _steps(sec, key, duration_s)
     rated_v, tau, cutoff, restart = None, DEFAULT_LAMP_TAU_S, 0.0, None
     if kind == "lamp":
-        allowed = (allowed - {"steps"}) | {"rated_v", "thermal_tau_s"}
-        rated_v = sec.number("rated_v", 0.0, 1000.0, lo_open=True)
-        tau = sec.number("thermal_tau_s", 0.0, 100.0, lo_open=True, default=DEFAULT_LAMP_TAU_S)
+        rated_v = sec.number("rated_v")
+        tau = sec.number("thermal_tau_s", default=DEFAULT_LAMP_TAU_S)
     if kind in ("constant_current", "constant_power"):
-        allowed |= {"cutoff_v", "restart_v"}
-        cutoff = sec.number("cutoff_v", 0.0, target_v, lo_open=True, hi_open=True,
-                            default=CUTOFF_FRACTION * target_v)
-        restart = sec.number("restart_v", cutoff, target_v, hi_open=True, default=None)
+        cutoff = sec.number("cutoff_v", default=CUTOFF_FRACTION * target_v, hi=target_v)
+        restart = sec.number("restart_v", default=None, lo=cutoff, hi=target_v)
     if kind == "constant_power":
         p_max = target_v**2 / (4.0 * r_loop_ohm)
         for where, p in [(key, value)] + [(f"steps[{n}][1]", v) for n, (_, v) in enumerate(steps)]:
             if p >= p_max:
                 sec.fail(where, f"must be below supply.target_v**2 / (4 * loop resistance) = {p_max:.4g} W, "
                          "the most the cable can deliver", p)
-    sec.finish(allowed, why=f' for load.kind = {show(kind)}')
+    sec.finish(LOAD_KIND_KEYS[kind], why=f' for load.kind = {show(kind)}')
     return LoadSpec(kind=kind, value=value, rated_v=rated_v, thermal_tau_s=tau, cutoff_v=cutoff,
                     steps=steps, profile=profile, profile_csv=profile_csv, restart_v=restart)

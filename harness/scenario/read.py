@@ -2,12 +2,12 @@
 
 from pathlib import Path
 
-from algo.config import SETTINGS
 from harness.scenario import conductors
+from harness.scenario.keys import FAULT_KIND_KEYS, KEYS
 from harness.scenario.toml_file import read_toml
 from harness.errors import InputError
 from harness.scenario.load_section import parse_load
-from harness.scenario.specs import (DEFAULT_INDUCTANCE_H_PER_M, FAULT_KINDS, CableSpec, FaultSpec, LoadEndSpec, RunSpec,
+from harness.scenario.specs import (DEFAULT_INDUCTANCE_H_PER_M, CableSpec, FaultSpec, LoadEndSpec, RunSpec,
                            Scenario, SensingSpec, SupplySpec)
 from harness.scenario.validate import REQUIRED, Section, show
 
@@ -26,103 +26,93 @@ ADC_I_FS_FACTOR = 1.25
 DEFAULT_I_FS_A = 10.0
 
 
-def _algo_range(key):
-    """The algorithm's range for a converter setting the plant sections fix (one range, one place)."""
-    s = SETTINGS[key]
-    return (int(s.lo), int(s.hi)) if s.kind is int else (s.lo, s.hi)
-
-
 def _supply(src, t):
-    s = Section(src, "supply", t)
-    target = s.number("target_v", 0.0, 1000.0, lo_open=True)
-    max_v = s.number("max_v", 0.0, 1000.0, lo_open=True, default=MAX_V_FACTOR * target)
-    min_v = s.number("min_v", 0.0, 1000.0, default=0.0)
+    s = Section(src, "supply", t, KEYS["supply"])
+    target = s.number("target_v")
+    max_v = s.number("max_v", default=MAX_V_FACTOR * target)
+    min_v = s.number("min_v", default=0.0)
     if min_v > max_v:
         s.fail("min_v", f"must be <= supply.max_v = {max_v:g}", min_v)
     if not min_v <= target <= max_v:
         s.fail("target_v", f"must be in [supply.min_v, supply.max_v] = [{min_v:g}, {max_v:g}]", target)
-    bw = s.number("loop_bandwidth_hz", 0.0, 1e6, default=0.0)
-    limit = s.number("current_limit_a", 0.0, 1000.0, lo_open=True, default=None)
-    bits = s.integer("dac_bits", *_algo_range("dac_bits"), default=12)
-    dac_fs = s.number("dac_full_scale_v", max_v, 2000.0, default=DAC_FS_FACTOR * max_v)
+    bw = s.number("loop_bandwidth_hz", default=0.0)
+    limit = s.number("current_limit_a", default=None)
+    bits = s.integer("dac_bits", default=12)
+    dac_fs = s.number("dac_full_scale_v", default=DAC_FS_FACTOR * max_v, lo=max_v)
     s.finish()
     return SupplySpec(target_v=target, max_v=max_v, min_v=min_v, loop_bandwidth_hz=bw, current_limit_a=limit,
                       dac_bits=bits, dac_full_scale_v=dac_fs)
 
 
 def _cable(src, t):
-    s = Section(src, "cable", t)
-    r_given = s.number("resistance_ohm", 0.0, 1000.0, lo_open=True, default=None)
+    s = Section(src, "cable", t, KEYS["cable"])
+    r_given = s.number("resistance_ohm", default=None)
     need = REQUIRED if r_given is None else None
     if r_given is None and not (s.has("conductor_mm2") or s.has("awg")):
         s.fail("conductor_mm2", f"missing; give cable.conductor_mm2 in (0, 1000] or cable.awg in "
                f"[{conductors.AWG_MIN}, {conductors.AWG_MAX}], or cable.resistance_ohm")
-    length = s.number("length_m", 0.0, 10000.0, lo_open=True, default=need)
+    length = s.number("length_m", default=need)
     if s.has("conductor_mm2") and s.has("awg"):
         s.fail("awg", "give either cable.conductor_mm2 or cable.awg, not both", t["awg"])
-    awg = s.integer("awg", conductors.AWG_MIN, conductors.AWG_MAX, default=None)
-    area = s.number("conductor_mm2", 0.0, 1000.0, lo_open=True,
-                    default=need if awg is None else conductors.awg_area_mm2(awg))
-    material = s.choice("material", tuple(conductors.MATERIALS), default="copper")
-    temp = s.number("temperature_c", -60.0, 250.0, default=20.0)
-    temp_end = s.number("temperature_end_c", -60.0, 250.0, default=None)
+    awg = s.integer("awg", default=None)
+    area = s.number("conductor_mm2", default=need if awg is None else conductors.awg_area_mm2(awg))
+    material = s.choice("material", default="copper")
+    temp = s.number("temperature_c", default=20.0)
+    temp_end = s.number("temperature_end_c", default=None)
     if r_given is None:
         r = float(conductors.loop_resistance_ohm(length, area, material, temp))
     else:
         r = r_given
     l_default = DEFAULT_INDUCTANCE_H_PER_M * length if length else 0.0
-    inductance = s.number("inductance_h", 0.0, 1.0, default=l_default)
+    inductance = s.number("inductance_h", default=l_default)
     s.finish()
     return CableSpec(resistance_ohm=r, material=material, temperature_c=temp, temperature_end_c=temp_end,
                      inductance_h=inductance, length_m=length, conductor_mm2=area, awg=awg)
 
 
 def _load_end(src, t):
-    s = Section(src, "load_end", t)
-    c = s.number("capacitance_f", 0.0, 10.0, lo_open=True)
-    esr = s.number("esr_ohm", 0.0, 100.0, default=0.0)
-    leak = s.number("leakage_ohm", 0.0, 1e12, lo_open=True, default=None)
+    s = Section(src, "load_end", t, KEYS["load_end"])
+    c = s.number("capacitance_f")
+    esr = s.number("esr_ohm", default=0.0)
+    leak = s.number("leakage_ohm", default=None)
     s.finish()
     return LoadEndSpec(capacitance_f=c, esr_ohm=esr, leakage_ohm=leak)
 
 
 def _sensing(src, t, supply):
-    s = Section(src, "sensing", t)
-    bits = s.integer("adc_bits", *_algo_range("adc_bits"), default=12)
-    v_fs = s.number("v_full_scale_v", supply.target_v, 2000.0, lo_open=True,
-                    default=ADC_V_FS_FACTOR * supply.max_v)
+    s = Section(src, "sensing", t, KEYS["sensing"])
+    bits = s.integer("adc_bits", default=12)
+    v_fs = s.number("v_full_scale_v", default=ADC_V_FS_FACTOR * supply.max_v, lo=supply.target_v)
     i_default = DEFAULT_I_FS_A if supply.current_limit_a is None else ADC_I_FS_FACTOR * supply.current_limit_a
-    i_fs = s.number("i_full_scale_a", 0.0, 1000.0, lo_open=True, default=i_default)
-    noise = s.number("noise_lsb_rms", 0.0, 100.0, default=0.5)
-    offset = s.number("offset_lsb", -1000.0, 1000.0, default=0.0)
-    gain = s.number("gain_error", -0.5, 0.5, default=0.0)
-    rate = s.number("sample_rate_hz", *_algo_range("sample_rate_hz"), default=32000.0)
+    i_fs = s.number("i_full_scale_a", default=i_default)
+    noise = s.number("noise_lsb_rms", default=0.5)
+    offset = s.number("offset_lsb", default=0.0)
+    gain = s.number("gain_error", default=0.0)
+    rate = s.number("sample_rate_hz", default=32000.0)
     s.finish()
     return SensingSpec(v_full_scale_v=v_fs, i_full_scale_a=i_fs, adc_bits=bits, noise_lsb_rms=noise,
                        offset_lsb=offset, gain_error=gain, sample_rate_hz=rate)
 
 
 def _run(src, t):
-    s = Section(src, "run", t)
-    duration = s.number("duration_s", 0.0, 3600.0, lo_open=True, default=1.0)
-    seed = s.integer("seed", 0, 2**63 - 1, default=0)
-    start = s.choice("start", ("steady", "cold"), default="steady")
+    s = Section(src, "run", t, KEYS["run"])
+    duration = s.number("duration_s", default=1.0)
+    seed = s.integer("seed", default=0)
+    start = s.choice("start", default="steady")
     s.finish()
     return RunSpec(duration_s=duration, seed=seed, start=start)
 
 
 def _fault(src, n, t, run, sensing):
-    s = Section(src, f"fault[{n}]", t)
-    kind = s.choice("kind", FAULT_KINDS)
-    at = s.number("at_s", 0.0, run.duration_s, hi_open=True)
-    until = s.number("until_s", 0.0, 3600.0, lo_open=True, default=float("inf"))
-    if until <= at:
-        s.fail("until_s", f"must be > fault[{n}].at_s = {at:g}", until)
+    s = Section(src, f"fault[{n}]", t, KEYS["fault"])
+    kind = s.choice("kind")
+    at = s.number("at_s", hi=run.duration_s)
+    until = s.number("until_s", default=float("inf"), lo=at)
     code = channel = None
     if kind == "adc_stuck":
-        code = s.integer("code", 0, 2**sensing.adc_bits - 1)
-        channel = s.choice("channel", ("v", "i"))
-    s.finish(why=f" for fault kind {show(kind)}")
+        code = s.integer("code", hi=2**sensing.adc_bits - 1)
+        channel = s.choice("channel")
+    s.finish(FAULT_KIND_KEYS[kind], why=f" for fault kind {show(kind)}")
     return FaultSpec(kind=kind, at_s=at, until_s=until, code=code, channel=channel)
 
 

@@ -5,7 +5,7 @@
 """
 import math
 
-from harness.scenario.load_section import MAIN_KEY
+from harness.scenario.keys import MAIN_KEY
 
 
 def _v(x):
@@ -39,7 +39,7 @@ def scenario_to_toml(sc, comment=None):
                             ("inductance_h", c.inductance_h), ("length_m", c.length_m)])
     out += _table("load_end", [("capacitance_f", le.capacitance_f), ("esr_ohm", le.esr_ohm),
                                ("leakage_ohm", le.leakage_ohm)])
-    key = MAIN_KEY[ld.kind][0]
+    key = MAIN_KEY[ld.kind]
     load = [("kind", ld.kind), (key, ld.value)]
     if ld.kind == "lamp":
         load += [("rated_v", ld.rated_v), ("thermal_tau_s", ld.thermal_tau_s)]
