@@ -15,12 +15,12 @@ from harness.cli.main import main
 from harness.cli.simulate import DEMO
 from harness.scenario.read import load_scenario
 from harness.tune.evaluate import KNOBS
+from harness.tune.run_length import run_lengths
 from harness.tune.runner import Cache, Runner
 from harness.tune.search import Tuner
 
 SPEC = {"max_error_mv": 80.0, "max_settle_ms": 300.0, "min_gain_margin": 1.25, "max_ideal_ratio": 2.0}
 SPEC_ARGS = ["--max-error-mv", "80", "--max-settle-ms", "300"]
-QUICK_S = 0.3
 # A small sweep (two knobs, short runs) for the cache and scheduler tests.
 SMALL = ["--knobs", "corr_frac_bits,table_bits", "--duration-s", "0.2", "--max-error-mv", "200",
          "--max-settle-ms", "150", "--quick"]
@@ -44,9 +44,10 @@ def quick(tmp_path_factory):
 
 def _fresh(tmp_path, configs):
     """Re-run ``configs`` on the demo with an empty cache (one round, local processes)."""
-    runner = Runner(Cache(str(tmp_path / "fresh.jsonl")), QUICK_S, progress=False)
+    runner = Runner(Cache(str(tmp_path / "fresh.jsonl")), progress=False)
+    scenarios, _ = run_lengths([load_scenario(DEMO)], SPEC["max_settle_ms"], quick=True)
     try:
-        tuner = Tuner([load_scenario(DEMO)], runner, SPEC)
+        tuner = Tuner(scenarios, runner, SPEC)
         return tuner.evaluate(configs, "check"), runner.new
     finally:
         runner.close()
