@@ -123,8 +123,10 @@ def atomic_folder(path, ours, option="--out"):
             os.rmdir(old)
             os.rename(path, old)
         os.rename(tmp, path)
+        _forget(tmp)
         _FINISHED.append(path)
     except BaseException:
+        _forget(tmp)
         if old is not None and not os.path.exists(path):
             os.rename(old, path)
             old = None
@@ -133,6 +135,12 @@ def atomic_folder(path, ours, option="--out"):
     finally:
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
+
+
+def _forget(folder):
+    """Drop the files written inside ``folder`` (a temporary folder) from the finished list."""
+    inside = os.path.join(os.path.abspath(folder), "")
+    _FINISHED[:] = [p for p in _FINISHED if not os.path.abspath(p).startswith(inside)]
 
 
 def _umask():
