@@ -314,3 +314,15 @@ def test_a_cache_cut_mid_line_is_repaired_and_said_so_once(quick, tmp_path, caps
     assert cache.read_text() == text            # the broken line is gone; the next record starts clean
     assert main(argv) == 0
     assert capsys.readouterr().err == ""
+
+
+def test_the_summary_of_a_sweep_that_leaves_acc_bits_alone_says_what_it_knows(monkeypatch):
+    from harness.tune.report import summary
+    monkeypatch.setattr(Tuner, "_margin", lambda self, settings: 2.0)
+    tuner = Tuner([load_scenario(DEMO)], _RuleRunner(), SPEC, knobs=["dac_bits"])
+    result = tuner.run()
+    counts = {"configs": len(tuner.rows), "rejected": 0, "new": 0, "cached": 0}
+    paths = {"csv": "tune.csv", "knobs_png": "a.png", "pareto_png": "b.png"}
+    text = summary(result, ["dac_bits"], SPEC, paths, counts, {"demo_mast.toml": 1.0})
+    assert "Recommended (cost 8): dac_bits=8" in text and "bits spare);" in text
+    assert "Runs: demo_mast.toml 1 s" in text

@@ -146,8 +146,9 @@ def summary(result, knobs, spec, paths, counts, lengths, notes=()):
         lines.append(f"  load error {_fmt(rec['error_mv'], ' mV')} (float ideal {_fmt(rec['ideal_error_mv'], ' mV')}, "
                      f"x{rec['error_ratio']:.2f}), settling {_fmt(rec['settle_ms'], ' ms')}, ripple "
                      f"{_fmt(rec['ripple_mv'], ' mV')} p-p, estimate off the ideal by {_fmt(rec['est_error_ohm'], ' ohm')}")
+        width = f" in acc_bits={rec['acc_bits']}" if "acc_bits" in rec else ""   # not tuned: the scenario's
         lines.append(f"  accumulator peak {rec['acc_peak']} of static bound {rec['acc_bound']} "
-                     f"({rec['acc_headroom_bits']} bits spare in acc_bits={rec['acc_bits']}); limit cycle: "
+                     f"({rec['acc_headroom_bits']} bits spare{width}); limit cycle: "
                      f"{'yes' if rec['limit_cycle'] else 'no'}; gain margin {_fmt(rec['gain_margin'])}")
         lines.append(f"  cost of the generous start: {st['cost']} (error {_fmt(st['error_mv'], ' mV')})")
         for k, r in result["neighbours"].items():
