@@ -1,6 +1,8 @@
 """Atomic output files: write to a temporary file beside the target, then rename over it.
 
-``check_file_target`` and ``check_folder_target`` check an output path before a long run.
+``check_file_target`` and ``check_folder_target`` check an output path before a long run;
+``check_swap_target`` also tries the folder beside it that ``atomic_folder`` fills. ``finished``
+names the outputs swapped in so far, so a message after a failure can say what it left.
 """
 import contextlib
 import os
@@ -8,6 +10,14 @@ import shutil
 import tempfile
 
 from harness.errors import InputError
+
+#: Paths swapped in by atomic_write and atomic_folder in this process, in order.
+_FINISHED = []
+
+
+def finished():
+    """Paths this process has replaced or created whole so far (a copy), oldest first."""
+    return list(_FINISHED)
 
 
 @contextlib.contextmanager
@@ -24,6 +34,7 @@ def atomic_write(path, mode="w", **kw):
         # mkstemp creates 0600; give the file the mode a plain open() would have.
         os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
+        _FINISHED.append(path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
@@ -73,6 +84,24 @@ def check_folder_target(path, option, ours=None):
     _writable_folder(parent, option, path)
 
 
+def check_swap_target(path, option, ours):
+    """Before a run: as check_folder_target with ``ours``, and a folder can be made beside ``path``.
+
+    atomic_folder fills its new folder in ``path``'s parent and renames there, so that parent
+    must take a new entry; this is tried for real (access bits say nothing on a read-only
+    mount, or to root).
+    """
+    check_folder_target(path, option, ours)
+    parent = os.path.dirname(os.path.abspath(path))
+    while not os.path.isdir(parent):
+        parent = os.path.dirname(parent)
+    try:
+        os.rmdir(tempfile.mkdtemp(dir=parent, prefix=".tmp-probe-"))
+    except OSError as exc:
+        raise InputError(f"{option} {path}: cannot create a folder in {parent} "
+                         f"({exc.strerror or type(exc).__name__})") from None
+
+
 @contextlib.contextmanager
 def atomic_folder(path, ours, option="--out"):
     """Fill a new folder beside ``path``; on success swap it in for ``path`` whole.
@@ -94,7 +123,10 @@ def atomic_folder(path, ours, option="--out"):
             os.rmdir(old)
             os.rename(path, old)
         os.rename(tmp, path)
+        _forget(tmp)
+        _FINISHED.append(path)
     except BaseException:
+        _forget(tmp)
         if old is not None and not os.path.exists(path):
             os.rename(old, path)
             old = None
@@ -103,6 +135,12 @@ def atomic_folder(path, ours, option="--out"):
     finally:
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
+
+
+def _forget(folder):
+    """Drop the files written inside ``folder`` (a temporary folder) from the finished list."""
+    inside = os.path.join(os.path.abspath(folder), "")
+    _FINISHED[:] = [p for p in _FINISHED if not os.path.abspath(p).startswith(inside)]
 
 
 def _umask():

@@ -5,6 +5,7 @@ import dataclasses
 import io
 import json
 import os
+import shutil
 
 import pytest
 
@@ -13,14 +14,15 @@ from algo.params import derive
 from harness.tune import range_check
 from harness.cli.main import main
 from harness.cli.simulate import DEMO
+from harness.loop.metrics import last_event_s
 from harness.scenario.read import load_scenario
 from harness.tune.evaluate import KNOBS
+from harness.tune.run_length import run_lengths
 from harness.tune.runner import Cache, Runner
 from harness.tune.search import Tuner
 
 SPEC = {"max_error_mv": 80.0, "max_settle_ms": 300.0, "min_gain_margin": 1.25, "max_ideal_ratio": 2.0}
 SPEC_ARGS = ["--max-error-mv", "80", "--max-settle-ms", "300"]
-QUICK_S = 0.3
 # A small sweep (two knobs, short runs) for the cache and scheduler tests.
 SMALL = ["--knobs", "corr_frac_bits,table_bits", "--duration-s", "0.2", "--max-error-mv", "200",
          "--max-settle-ms", "150", "--quick"]
@@ -44,9 +46,10 @@ def quick(tmp_path_factory):
 
 def _fresh(tmp_path, configs):
     """Re-run ``configs`` on the demo with an empty cache (one round, local processes)."""
-    runner = Runner(Cache(str(tmp_path / "fresh.jsonl")), QUICK_S, progress=False)
+    runner = Runner(Cache(str(tmp_path / "fresh.jsonl")), progress=False)
+    scenarios, _ = run_lengths([load_scenario(DEMO)], SPEC["max_settle_ms"], quick=True)
     try:
-        tuner = Tuner([load_scenario(DEMO)], runner, SPEC)
+        tuner = Tuner(scenarios, runner, SPEC)
         return tuner.evaluate(configs, "check"), runner.new
     finally:
         runner.close()
@@ -161,7 +164,7 @@ def test_dask_local_cluster_gives_the_same_recommendation_as_local_processes(tmp
     ([DEMO, "--knobs", "adc_bits,gain"], "--knobs"),
     ([DEMO, "--duration-s", "-1"], "--duration-s"),
     ([DEMO, "--min-gain-margin", "0.5"], "--min-gain-margin"),
-    ([DEMO, "--knobs", ""], "--knobs"),
+    ([DEMO, "--knobs", ""], "--knobs: no knob given"),
 ])
 def test_bad_input_exits_2_with_one_line(argv, needle, tmp_path, capsys):
     assert main(["tune", *argv, "--out", str(tmp_path / "o")]) == 2
@@ -210,3 +213,116 @@ def test_a_failing_start_with_passing_variants_still_gives_a_recommendation(monk
     rec = result["recommended"]
     assert rec is not None and rec["meets_spec"] and rec["dac_bits"] <= 14
     assert rec["cost"] == min(r["cost"] for r in tuner.rows.values() if r["meets_spec"])
+
+
+MAST_FAULTS = os.path.join(os.path.dirname(DEMO), "mast_faults.toml")
+
+
+def test_quick_runs_keep_the_load_step_and_the_settling_the_spec_allows_after_it():
+    # Worked by hand: the demo steps its load at 0.5 s; a load settling within 300 ms has settled
+    # by 0.8 s, and the error's tail (the last 20 % of the run) must start after that, so the
+    # run lasts 0.8 / 0.8 = 1.0 s; with 100 ms allowed, 0.6 / 0.8 = 0.75 s.
+    demo = load_scenario(DEMO)
+    (sc,), notes = run_lengths([demo], 300.0, quick=True)
+    assert sc.run.duration_s == pytest.approx(1.0) and notes == []
+    assert sc.load.steps == demo.load.steps and last_event_s(sc) == 0.5
+    (sc,), _ = run_lengths([demo], 100.0, quick=True)
+    assert sc.run.duration_s == pytest.approx(0.75) and last_event_s(sc) == 0.5
+    # Without --quick a run lasts at least DEFAULT_DURATION_S (0.8 s), longer where the checks need it.
+    assert run_lengths([demo], 100.0)[0][0].run.duration_s == pytest.approx(0.8)
+    assert run_lengths([demo], 300.0)[0][0].run.duration_s == pytest.approx(1.0)
+
+
+def test_a_run_shorter_than_its_checks_need_is_said_in_the_summary():
+    # The second fault of mast_faults.toml ends at 1.5 s: (1.5 + 0.3) / 0.8 = 2.25 s > its 2 s run.
+    scs, notes = run_lengths([load_scenario(DEMO), load_scenario(MAST_FAULTS)], 300.0, quick=True)
+    assert [sc.run.duration_s for sc in scs] == [pytest.approx(1.0), 2.0]
+    assert len(notes) == 1 and notes[0].startswith("mast_faults.toml: runs last 2 s (its own run.duration_s)")
+    (cut,), notes = run_lengths([load_scenario(DEMO)], 300.0, duration_s=0.3)
+    assert cut.run.duration_s == 0.3 and "--duration-s" in notes[0] and "0.5 s" in notes[0]
+
+
+def test_the_run_length_is_part_of_the_cache_key():
+    from harness.tune.evaluate import Job
+    demo = load_scenario(DEMO)
+    short, full = (dataclasses.replace(demo, run=dataclasses.replace(demo.run, duration_s=d))
+                   for d in (0.5, 1.0))
+    assert Job(short, (), "model").key != Job(full, (), "model").key
+
+
+def test_quick_json_names_each_scenario_run_length(quick):
+    out, _ = quick
+    assert out["duration_s"] == {"demo_mast.toml": pytest.approx(1.0)} and out["notes"] == []
+    assert out["start"]["settle_ms"] is not None     # timed from the load step, which the run holds
+
+
+def _again(quick, tmp_path, *extra):
+    """The quick run once more in a copy of its folder (every job answered by the cache)."""
+    out = tmp_path / "again"
+    shutil.copytree(quick[1], out)
+    return out, ["tune", DEMO, "--quick", *SPEC_ARGS, *extra, "--out", str(out)]
+
+
+def test_summary_exit_status_and_csv_agree_when_nothing_meets_the_spec(quick, tmp_path, capsys):
+    out, argv = _again(quick, tmp_path)
+    argv[argv.index("--max-error-mv") + 1] = "0.001"
+    assert main(argv) == 1
+    text = capsys.readouterr().out
+    assert "No configuration meets the spec" in text and "fails error" in text
+    with open(out / "tune.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert rows and not [r for r in rows if r["meets_spec"] == "True"]
+
+
+def test_summary_exit_status_and_csv_agree_on_the_recommendation(quick, tmp_path, capsys):
+    out, argv = _again(quick, tmp_path)
+    assert main(argv) == 0
+    text = capsys.readouterr().out
+    assert "No configuration" not in text and "Recommended" in text
+    with open(out / "tune.csv", newline="") as f:
+        passing = [r for r in csv.DictReader(f) if r["meets_spec"] == "True"]
+    rec = quick[0]["recommended"]
+    assert rec["config"] in {r["config"] for r in passing}
+    assert f"Recommended (cost {rec['cost']})" in text
+
+
+def test_ctrl_c_while_the_outputs_are_written_keeps_the_old_ones(quick, tmp_path, capsys, monkeypatch):
+    import harness.tune.report as report
+    out, argv = _again(quick, tmp_path)
+    before = {n: (out / n).read_bytes() for n in os.listdir(out)}
+
+    def interrupted(*args, **kw):
+        raise KeyboardInterrupt
+    monkeypatch.setattr(report, "plot_pareto", interrupted)      # after tune.csv and one plot
+    assert main(argv) == 130
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("linedrop tune: interrupted; no output was replaced")
+    assert "resume" in err
+    assert {n: (out / n).read_bytes() for n in os.listdir(out)} == before
+    assert sorted(os.listdir(tmp_path)) == ["again"]
+
+
+def test_a_cache_cut_mid_line_is_repaired_and_said_so_once(quick, tmp_path, capsys):
+    out, argv = _again(quick, tmp_path, "--json")
+    cache = out / "tune-cache.jsonl"
+    text = cache.read_text()
+    cache.write_text(text + text.splitlines(keepends=True)[0][:25])      # a record cut mid-line
+    assert main(argv) == 0
+    captured = capsys.readouterr()
+    json.loads(captured.out)
+    assert captured.err.count("\n") == 1 and "dropped 1 line(s) cut short" in captured.err
+    assert cache.read_text() == text            # the broken line is gone; the next record starts clean
+    assert main(argv) == 0
+    assert capsys.readouterr().err == ""
+
+
+def test_the_summary_of_a_sweep_that_leaves_acc_bits_alone_says_what_it_knows(monkeypatch):
+    from harness.tune.report import summary
+    monkeypatch.setattr(Tuner, "_margin", lambda self, settings: 2.0)
+    tuner = Tuner([load_scenario(DEMO)], _RuleRunner(), SPEC, knobs=["dac_bits"])
+    result = tuner.run()
+    counts = {"configs": len(tuner.rows), "rejected": 0, "new": 0, "cached": 0}
+    paths = {"csv": "tune.csv", "knobs_png": "a.png", "pareto_png": "b.png"}
+    text = summary(result, ["dac_bits"], SPEC, paths, counts, {"demo_mast.toml": 1.0})
+    assert "Recommended (cost 8): dac_bits=8" in text and "bits spare);" in text
+    assert "Runs: demo_mast.toml 1 s" in text

@@ -16,7 +16,7 @@ from support.vector_helpers import read_note, write_vectors
 from harness.cli.vectors import DEMO
 from harness.scenario.read import load_scenario
 from harness.scenario.specs import FAULT_KINDS
-from harness.port.vector_files import COLUMNS, parse_vector_csv
+from harness.port.vector_files import COLUMNS, find_sets, parse_vector_csv, read_set
 
 # Short runs keep the test quick; the long run still spans several windows.
 ARGS = ["--duration-s", "0.12", "--long-s", "0.2", "--seed", "7"]
@@ -116,3 +116,67 @@ def test_bad_input_exits_2_with_one_line(tmp_path, capsys, args, message):
     err = capsys.readouterr().err
     assert len(err.strip().splitlines()) == 1 and message in err
     assert os.listdir(tmp_path) == []
+
+
+GARDEN = os.path.join(os.path.dirname(DEMO), "garden_lamps.toml")
+
+
+def _files(folder):
+    return {n: (folder / n).read_bytes() for n in sorted(os.listdir(folder))}
+
+
+def test_a_second_scenario_joins_the_folder_and_leaves_the_first_set_as_it_was(tmp_path):
+    out = tmp_path / "vectors"
+    assert main(["vectors", DEMO, "--out", str(out), *ARGS]) == 0
+    demo = _files(out)
+    assert main(["vectors", GARDEN, "--out", str(out), *ARGS]) == 0
+    both = _files(out)
+    assert {n: both[n] for n in demo} == demo
+    assert len(both) == 2 * len(demo) and sorted(os.listdir(tmp_path)) == ["vectors"]
+    for note in find_sets(str(out)):
+        read_set(note)          # hashes and params check out for both sets
+    assert main(["vectors", DEMO, "--out", str(out), *ARGS[:-1], "8"]) == 0   # rewrite the first set
+    again = _files(out)
+    assert {n: again[n] for n in both if n.startswith("garden_lamps-")} == \
+        {n: both[n] for n in both if n.startswith("garden_lamps-")}
+    assert again["demo_mast-normal.csv"] != demo["demo_mast-normal.csv"]
+
+
+def _refused_before_the_run(monkeypatch, capsys, argv, *words):
+    def must_not_run(*a, **kw):
+        raise AssertionError("the run started")
+    monkeypatch.setattr(vectors, "generate", must_not_run)
+    assert main(["vectors", *argv]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("linedrop vectors: error: --out "), err
+    for w in words:
+        assert w in err, err
+
+
+def test_out_naming_an_existing_file_is_refused_before_the_run(tmp_path, capsys, monkeypatch):
+    f = tmp_path / "a_file"
+    f.write_text("keep me")
+    _refused_before_the_run(monkeypatch, capsys, ["--out", str(f)], "is not a folder")
+    assert f.read_text() == "keep me"
+
+
+def test_out_in_a_place_nothing_can_be_created_is_refused_before_the_run(capsys, monkeypatch):
+    # /proc takes no new entries, even from root (proc(5)); access bits alone would not say so.
+    _refused_before_the_run(monkeypatch, capsys, ["--out", "/proc/linedrop-vectors"], "cannot create")
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root writes into a read-only folder anyway")
+def test_out_in_a_read_only_folder_is_refused_before_the_run(tmp_path, capsys, monkeypatch):
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    ro.chmod(0o555)
+    try:
+        _refused_before_the_run(monkeypatch, capsys, ["--out", str(ro / "v")], "not writable")
+    finally:
+        ro.chmod(0o755)
+
+
+def test_a_folder_holding_other_files_is_refused_and_left_alone(tmp_path, capsys, monkeypatch):
+    (tmp_path / "notes.txt").write_text("mine")
+    _refused_before_the_run(monkeypatch, capsys, ["--out", str(tmp_path)], "notes.txt")
+    assert os.listdir(tmp_path) == ["notes.txt"]

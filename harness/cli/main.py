@@ -4,6 +4,7 @@ import os
 import sys
 
 from algo.config import ConfigError
+from harness.atomic import finished
 from harness.errors import InputError
 from harness.cli import bench, check_port, design, replay, simulate, tune, vectors
 from harness.cli.version import tool_version
@@ -22,9 +23,21 @@ def build_parser():
     return parser
 
 
+def _left(args, mark):
+    """What a failed or interrupted run leaves: the outputs it finished (those swapped in after
+    the first ``mark`` of harness.atomic.finished), the rest untouched."""
+    done = finished()[mark:]
+    left = ("no output was replaced" if not done else
+            f"finished before it stopped: {', '.join(done)}; no other output was replaced")
+    note = getattr(sys.modules.get(args.func.__module__), "ON_STOP", "")
+    return left + (f"; {note}" if note else "")
+
+
 def main(argv=None):
-    """Entry point; returns the exit status (0 ok, 1 check failed, 2 bad input)."""
+    """Entry point; returns the exit status (0 ok, 1 check failed or the run failed, 2 bad input,
+    130 interrupted, 141 the reader of the output went away)."""
     args = build_parser().parse_args(argv)
+    mark = len(finished())
     try:
         return args.func(args) or 0
     except (InputError, ConfigError) as exc:
@@ -38,8 +51,14 @@ def main(argv=None):
         except (OSError, ValueError, AttributeError):
             pass
         return 141
+    except OSError as exc:
+        # A write failing mid-run (disk full, a folder removed under it): one line, no traceback.
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"linedrop {args.command}: error: {where}{exc.strerror or exc}; {_left(args, mark)}",
+              file=sys.stderr)
+        return 1
     except KeyboardInterrupt:
-        print(f"linedrop {args.command}: interrupted; no output was replaced", file=sys.stderr)
+        print(f"linedrop {args.command}: interrupted; {_left(args, mark)}", file=sys.stderr)
         return 130
 
 

@@ -2,7 +2,8 @@
 
 Runs the fixed-point model and the float ideal in closed loop on the same scenarios (same noise
 seed), searches the knobs greedily (harness.tune.search) and writes ``tune.csv`` (every evaluated
-configuration), ``error_vs_bits.png`` and ``pareto.png`` into ``--out``. Cost is the weighted sum
+configuration), ``error_vs_bits.png`` and ``pareto.png`` into ``--out`` (a new folder beside it,
+swapped in whole with the results cache carried across). Cost is the weighted sum
 of the word lengths: 2 x adc_bits (two converter channels) + dac_bits + table_bits + acc_bits +
 r_frac_bits + corr_frac_bits. The estimate's filter shift (r_filter_shift) is swept for the
 plots but weighs nothing: it costs no memory or cycles, so it moves only where that lowers the
@@ -18,26 +19,34 @@ and the small-signal loop model (harness.design.calculator.loop_summary) gives a
 rejected and never simulated. ``--json`` prints one object: recommended (knobs and figures),
 csv, plots, most_sensitive_knob, one_bit_less, sensitivity (severity rise per bit of cost saved,
 in the one-knob sweep), lowest_alone (each knob's lowest passing value in that sweep), start, spec, cost_definition, configurations, rejected,
-evaluated_new, evaluated_cached. Exit status 0 with a recommendation, 1 when none meets the spec.
+evaluated_new, evaluated_cached, duration_s (run length per scenario file) and notes (runs shorter
+than their checks need). Exit status 0 with a recommendation, 1 when none meets the spec.
+
+Every run keeps all of its scenario's load steps and faults: it lasts until the error's tail
+starts ``--max-settle-ms`` after the last of them (harness.tune.run_length); ``--quick`` stops
+there, a full run lasts at least 0.8 s, ``--duration-s`` is taken as given. None is longer than
+the scenario's own run.duration_s.
 """
 import json
 import math
 import os
 
-from harness.atomic import check_folder_target
+import sys
+
+from harness.atomic import check_swap_target
 from harness.design.calculator import GM_TARGET
 from harness.errors import InputError
 from harness.scenario.read import load_scenario
 from harness.tune.evaluate import KNOBS
-from harness.tune.report import summary, write_outputs
+from harness.tune.report import CACHE_FILE, OUT_FILES, summary, write_outputs
+from harness.tune.run_length import DEFAULT_DURATION_S, run_lengths
 from harness.tune.runner import Cache, Runner
 from harness.tune.search import Tuner
 
 COST_DEFINITION = ("2*adc_bits + dac_bits + table_bits + acc_bits + r_frac_bits + corr_frac_bits "
                    "(filter shifts weigh 0)")
-QUICK_DURATION_S = 0.3
-DEFAULT_DURATION_S = 0.8
-CACHE_FILE = "tune-cache.jsonl"
+#: What an interrupted or failed run leaves besides its outputs (harness.cli.main).
+ON_STOP = "the results cache keeps every finished run: run the same command again to resume"
 
 
 def add_parser(sub):
@@ -49,14 +58,18 @@ def add_parser(sub):
     p.add_argument("--max-error-mv", type=float, default=100.0, help="largest load error, mV (default 100)")
     p.add_argument("--max-settle-ms", type=float, default=300.0, help="longest settling time, ms (default 300)")
     p.add_argument("--min-gain-margin", type=float, default=GM_TARGET,
-                   help=f"smallest loop gain margin from the small-signal model (default {GM_TARGET})")
+                   help=f"smallest loop gain margin from the small-signal model, >= 1 (below 1 the "
+                        f"loop is unstable; default {GM_TARGET})")
     p.add_argument("--max-ideal-ratio", type=float, default=2.0,
                    help="largest load error as a multiple of the float ideal's on the same run "
                         "(default 2; 0 turns the check off)")
     p.add_argument("--quick", action="store_true",
-                   help=f"short runs ({QUICK_DURATION_S} s simulated; about a minute in all)")
-    p.add_argument("--duration-s", type=float, help=f"simulated time per run, s (default {DEFAULT_DURATION_S}, "
-                                                    "capped at the scenario's run.duration_s)")
+                   help="every second value in the sweep, and runs that end as soon as the checks allow "
+                        "(every load step and fault kept)")
+    p.add_argument("--duration-s", type=float,
+                   help=f"simulated time per run, s, taken as given (default: at least {DEFAULT_DURATION_S} "
+                        f"and long enough to keep every load step and fault and the settling after them; "
+                        f"capped at the scenario's run.duration_s)")
     p.add_argument("--knobs", help=f"comma-separated knobs to tune (default all: {','.join(KNOBS)})")
     p.add_argument("--out", metavar="DIR", default="tune-out", help="output folder (default tune-out)")
     p.add_argument("--cache", metavar="DIR", help="results cache folder (default: the output folder)")
@@ -73,7 +86,7 @@ def _positive(name, value):
 
 
 def parse(args):
-    """Checked (scenarios, spec, knobs, duration_s); InputError with one line on bad input."""
+    """Checked (scenarios with their run lengths, spec, knobs, notes); one-line InputError on bad input."""
     spec = {"max_error_mv": _positive("max-error-mv", args.max_error_mv),
             "max_settle_ms": _positive("max-settle-ms", args.max_settle_ms),
             "min_gain_margin": args.min_gain_margin, "max_ideal_ratio": args.max_ideal_ratio}
@@ -89,14 +102,13 @@ def parse(args):
         knobs = [k.strip() for k in args.knobs.split(",") if k.strip()]
         unknown = [k for k in knobs if k not in KNOBS]
         if unknown or not knobs:
-            raise InputError(f"--knobs: unknown {', '.join(unknown) or '(none given)'}; allowed: {', '.join(KNOBS)}")
+            what = f"unknown {', '.join(unknown)}" if unknown else "no knob given"
+            raise InputError(f"--knobs: {what}; allowed: {', '.join(KNOBS)}")
+    if args.duration_s is not None and not (math.isfinite(args.duration_s) and args.duration_s > 0):
+        raise InputError(f"--duration-s: must be a positive number of seconds, got {args.duration_s:g}")
     scenarios = [load_scenario(path) for path in args.scenarios]
-    duration = args.duration_s if args.duration_s is not None else (
-        QUICK_DURATION_S if args.quick else DEFAULT_DURATION_S)
-    if not (math.isfinite(duration) and duration > 0):
-        raise InputError(f"--duration-s: must be a positive number of seconds, got {duration:g}")
-    duration = min([duration] + [s.run.duration_s for s in scenarios])
-    return scenarios, spec, knobs, duration
+    scenarios, notes = run_lengths(scenarios, spec["max_settle_ms"], args.quick, args.duration_s)
+    return scenarios, spec, knobs, notes
 
 
 def _json_value(v):
@@ -106,10 +118,13 @@ def _json_value(v):
 
 
 def run(args):
-    scenarios, spec, knobs, duration = parse(args)
-    check_folder_target(args.out, "--out")
+    scenarios, spec, knobs, notes = parse(args)
+    check_swap_target(args.out, "--out", OUT_FILES)
     cache = Cache(os.path.join(args.cache or args.out, CACHE_FILE))
-    runner = Runner(cache, duration, scheduler=args.scheduler, workers=args.workers, progress=not args.json)
+    if cache.dropped:
+        print(f"linedrop tune: {cache.path}: dropped {cache.dropped} line(s) cut short by an interrupted "
+              f"run; those runs are done again", file=sys.stderr)
+    runner = Runner(cache, scheduler=args.scheduler, workers=args.workers, progress=not args.json)
     try:
         tuner = Tuner(scenarios, runner, spec, knobs, quick=args.quick)
         result = tuner.run()
@@ -117,6 +132,7 @@ def run(args):
         runner.close()
     rows = [tuner.rows[c] for c in tuner.order]
     paths = write_outputs(args.out, result, rows, knobs, tuner.start, spec)
+    lengths = {os.path.basename(sc.source): sc.run.duration_s for sc in scenarios}
     counts = {"configs": len(rows), "rejected": sum(r["status"] == "rejected" for r in rows),
               "new": runner.new, "cached": runner.cached}
     rec = result["recommended"]
@@ -129,10 +145,10 @@ def run(args):
                "one_bit_less": {k: {c: _json_value(v) for c, v in r.items()}
                                 for k, r in result["neighbours"].items()},
                "start": {k: _json_value(v) for k, v in result["start"].items()},
-               "spec": spec, "duration_s": duration, "cost_definition": COST_DEFINITION,
+               "spec": spec, "duration_s": lengths, "notes": notes, "cost_definition": COST_DEFINITION,
                "configurations": counts["configs"], "rejected": counts["rejected"],
                "evaluated_new": counts["new"], "evaluated_cached": counts["cached"]}
         print(json.dumps(out, indent=1))
     else:
-        print(summary(result, knobs, spec, paths, counts))
+        print(summary(result, knobs, spec, paths, counts, lengths, notes))
     return 0 if rec is not None else 1

@@ -2,12 +2,11 @@
 import os
 
 from algo.params import derive
-from harness.atomic import check_folder_target
+from harness.atomic import check_swap_target
 from harness.port import vectors
 from harness.errors import InputError
 from harness.scenario.read import DEMO, load_scenario
-from harness.port.vector_files import write_set
-
+from harness.port.vector_files import folder_plan, set_names, write_set
 
 
 def add_parser(sub):
@@ -17,7 +16,8 @@ def add_parser(sub):
                                    "the ADC codes, the command and every state field per sample.")
     p.add_argument("scenario", nargs="?", metavar="SCENARIO.toml",
                    help="scenario file (default: the built-in demo, demo_mast.toml)")
-    p.add_argument("--out", required=True, metavar="DIR", help="output directory (files written atomically)")
+    p.add_argument("--out", required=True, metavar="DIR", help="output folder: filled beside the old one and swapped in whole (other "
+                        "vector sets in it are kept)")
     p.add_argument("--duration-s", type=float, metavar="S",
                    help="length of each closed-loop run, s (default: the scenario's run.duration_s)")
     p.add_argument("--long-s", type=float, metavar="S",
@@ -34,7 +34,9 @@ def _positive(name, value):
 
 def run(args):
     path = args.scenario or DEMO
-    check_folder_target(args.out, "--out")
+    stem = os.path.splitext(os.path.basename(path))[0]
+    kept, ours = folder_plan(args.out, set_names(stem, vectors.vector_names()))
+    check_swap_target(args.out, "--out", ours)
     _positive("duration-s", args.duration_s)
     _positive("long-s", args.long_s)
     if args.seed is not None and not 0 <= args.seed < 2**63:
@@ -44,11 +46,11 @@ def run(args):
         scenario_bytes = f.read()
     cfg, seed, vecs = vectors.generate(scenario, args.duration_s, args.long_s, args.seed)
     params = derive(cfg)
-    stem = os.path.splitext(os.path.basename(path))[0]
     written = write_set(args.out, stem, os.path.basename(path), scenario_bytes, cfg, params, seed, vecs)
     total = sum(len(v.adc_v) for v in vecs)
     for vec in vecs:
         print(f"{stem}-{vec.name}.csv: {len(vec.adc_v)} samples ({vec.description})")
+    others = f"; kept {len(kept)} files of other vector sets" if kept else ""
     print(f"wrote {len(written)} files to {args.out}: {len(vecs)} vectors, {total} samples, "
-          f"params fingerprint {params.fingerprint()}")
+          f"params fingerprint {params.fingerprint()}{others}")
     return 0

@@ -4,20 +4,23 @@ A vector set for scenario ``<stem>`` is ``<stem>-<vector>.csv`` (one per
 vector), ``<stem>-vectors.json`` (provenance: scenario and its hash, the
 algorithm settings, word lengths, the params and their fingerprint, tool
 version, generator seed, and each CSV's sample count and hash) and
-``<stem>-params.h`` (the params as a flash-able C initialiser).
+``<stem>-params.h`` (the params as a flash-able C initialiser). A folder may hold several sets;
+writing one fills a new folder beside it (the other sets copied across) and swaps it in whole,
+so a failed or interrupted run leaves the old folder exactly as it was.
 """
 import dataclasses
 import hashlib
 import json
 import os
 import re
+import shutil
 
 import numpy as np
 
 from algo import VERSION
 from algo.params import PARAM_FIELDS, Params
 from algo.state import STATE_FIELDS
-from harness.atomic import atomic_write
+from harness.atomic import atomic_folder
 from harness.errors import InputError
 from harness.port.params_header import params_header
 
@@ -64,27 +67,69 @@ def _guard(stem):
     return "LINEDROP_PARAMS_" + re.sub(r"[^A-Za-z0-9]", "_", stem).upper() + "_H"
 
 
-def write_set(out_dir, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors):
-    """Write every file of a vector set atomically; return the paths written, in order."""
-    os.makedirs(out_dir, exist_ok=True)
-    written, entries = [], []
+def set_names(stem, vector_names):
+    """File names of the set ``stem`` with these vectors: the CSVs, the params header, the note."""
+    return [f"{stem}-{n}.csv" for n in vector_names] + [f"{stem}-params.h", stem + PROVENANCE_SUFFIX]
+
+
+def _listed(note_path):
+    """Names a provenance note accounts for: itself, its params header and its vector files."""
+    note = read_note(note_path)
+    names = [note.get("params_header")] + [e.get("file") for e in note.get("vectors", [])
+                                           if isinstance(e, dict)]
+    return {os.path.basename(note_path)} | {n for n in names
+                                            if isinstance(n, str) and n and os.path.basename(n) == n}
+
+
+def folder_plan(out_dir, names):
+    """What writing the files ``names`` into ``out_dir`` keeps and what it may replace.
+
+    Returns ``(kept, ours)``: the files of the other vector sets there (copied into the new
+    folder), and every name the folder may hold without being refused (those, ``names``, and
+    the files of the old set being rewritten, which the new one replaces).
+    """
+    if not os.path.isdir(out_dir):
+        return [], set(names)
+    mine = set(names)
+    note = next(n for n in names if n.endswith(PROVENANCE_SUFFIX))
+    kept, old = set(), set()
+    for path in (os.path.join(out_dir, n) for n in os.listdir(out_dir) if n.endswith(PROVENANCE_SUFFIX)):
+        (old if os.path.basename(path) == note else kept).update(_listed(path))
+    kept = {n for n in kept - mine if os.path.isfile(os.path.join(out_dir, n))}
+    return sorted(kept), kept | mine | old
+
+
+def write_set(out_dir, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors, option="--out"):
+    """Write a vector set into ``out_dir``, swapped in whole with any other sets kept.
+
+    Returns the paths of the set's files, in order.
+    """
+    names = set_names(stem, [v.name for v in vectors])
+    kept, ours = folder_plan(out_dir, names)
+    with atomic_folder(out_dir, ours, option) as folder:
+        for name in kept:
+            shutil.copy2(os.path.join(out_dir, name), os.path.join(folder, name))
+        _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors)
+    return [os.path.join(out_dir, n) for n in names]
+
+
+def _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors):
+    entries = []
     for vec in vectors:
         name = f"{stem}-{vec.name}.csv"
         text = csv_text(vec)
-        with atomic_write(os.path.join(out_dir, name), newline="") as f:
+        with open(os.path.join(folder, name), "w", newline="") as f:
             f.write(text)
-        written.append(os.path.join(out_dir, name))
         entries.append({"file": name, "name": vec.name, "description": vec.description,
                         "samples": len(vec.adc_v), "sha256": sha256_bytes(text.encode())})
     header = f"{stem}-params.h"
     comment = f"Params of the golden vectors {stem}-*.csv (scenario {scenario_name})."
-    with atomic_write(os.path.join(out_dir, header)) as f:
+    with open(os.path.join(folder, header), "w") as f:
         f.write(params_header(params, guard=_guard(stem), comment=comment))
     note = provenance(scenario_name, scenario_bytes, cfg, params, seed, entries)
     note["params_header"] = header
-    with atomic_write(os.path.join(out_dir, stem + PROVENANCE_SUFFIX)) as f:
+    with open(os.path.join(folder, stem + PROVENANCE_SUFFIX), "w") as f:
         f.write(json.dumps(note, indent=1) + "\n")
-    return written + [os.path.join(out_dir, header), os.path.join(out_dir, stem + PROVENANCE_SUFFIX)]
 
 
 def params_from_note(note, path):

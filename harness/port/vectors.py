@@ -68,12 +68,22 @@ def closed_loop_variants(scenario, duration_s):
     normal = replace(base, load=replace(base.load, steps=()))
     stepped, how = with_load_step(base, duration_s)
     out = [("normal", "steady load, no faults", normal), ("load_step", how, stepped)]
+    for name, kind, channel in _fault_variants():
+        spec, text = _fault(normal, duration_s, kind, channel)
+        out.append((name, text, replace(normal, faults=(spec,))))
+    return out
+
+
+def _fault_variants():
+    """``(vector name, fault kind, channel)`` of each fault variant, in order."""
     for kind in FAULT_KINDS:
         for channel in (("i", "v") if kind == "adc_stuck" else (None,)):
-            spec, text = _fault(normal, duration_s, kind, channel)
-            name = "fault_" + kind + ("" if channel is None else "_" + channel)
-            out.append((name, text, replace(normal, faults=(spec,))))
-    return out
+            yield "fault_" + kind + ("" if channel is None else "_" + channel), kind, channel
+
+
+def vector_names():
+    """Names of every vector generate() returns, in order (known before any run)."""
+    return ["normal", "load_step", *(n for n, _, _ in _fault_variants()), "long", "extreme_codes"]
 
 
 def long_variant(scenario, long_s):

@@ -25,8 +25,9 @@ from harness.loop.closed_loop import drive
 from harness.plant.rig import build_rig
 from harness.loop.metrics import TAIL, last_event_s, settling_s
 
-#: Bump when the meaning of a cached result changes.
-CACHE_VERSION = 1
+#: Bump when the meaning of a cached result changes (2: the run length is the scenario's
+#: run.duration_s, part of the key; version 1 keys left it out).
+CACHE_VERSION = 2
 #: Knobs the tuner may change: (lowest, generous start, cost weight per bit).
 KNOBS = {
     "adc_bits": (8, 16, 2),        # two converter channels
@@ -54,7 +55,8 @@ def cost(settings):
 
 @dataclass(frozen=True)
 class Job:
-    """One run: ``scenario`` (harness.scenario.specs.Scenario) with ``settings`` on ``backend``."""
+    """One run: ``scenario`` (harness.scenario.specs.Scenario, run for its run.duration_s) with
+    ``settings`` on ``backend``."""
     scenario: object
     settings: tuple     # sorted (key, value) pairs
     backend: str        # "model" or "ideal"
@@ -169,9 +171,9 @@ def _figures(job, sc, cfg, t_s, v_load, r_cable, hist, fixed):
             "dac_lsb_mv": 1e3 * dac_lsb}
 
 
-def _prepare(job, duration_s):
+def _prepare(job):
     """(variant scenario, AlgoConfig, Params or None, bounds, or a rejected result)."""
-    sc = variant(job.scenario, dict(job.settings), duration_s)
+    sc = variant(job.scenario, dict(job.settings), job.scenario.run.duration_s)
     try:
         cfg = algo_config(sc)
     except InputError as exc:
@@ -189,15 +191,15 @@ def _prepare(job, duration_s):
     return (sc, cfg, params, bounds), None
 
 
-def evaluate(jobs, duration_s):
-    """Run ``jobs`` (one scenario file, one backend) in lockstep; returns one result dict each.
+def evaluate(jobs):
+    """Run ``jobs`` (one scenario, one backend) in lockstep; returns one result dict each.
 
     Rejected configurations (derive raised ConfigError, or the range analysis shows a possible
     overflow) are reported as ``status: rejected`` and never simulated.
     """
     results, live = {}, []
     for job in jobs:
-        prep, rej = _prepare(job, duration_s)
+        prep, rej = _prepare(job)
         if rej:
             results[job.key] = rej
         else:
@@ -208,7 +210,7 @@ def evaluate(jobs, duration_s):
         cfgs = [p[1] for _, p in live]
         rig = build_rig(scs)
         comp = ObservedIdeal(cfgs) if backend == "ideal" else ObservedModel([p[2] for _, p in live])
-        n_t = int(round(duration_s * cfgs[0].sample_rate_hz))
+        n_t = int(round(scs[0].run.duration_s * cfgs[0].sample_rate_hz))
         v_load = np.empty((n_t, len(live)))
         obs = rig.reset()
 

@@ -2,8 +2,9 @@
 import csv
 import math
 import os
+import shutil
 
-from harness.atomic import atomic_write
+from harness.atomic import atomic_folder, atomic_write
 from harness.tune.evaluate import KNOBS
 
 COLUMNS = ["config", "phase", *KNOBS, "cost", "status", "reason", "meets_spec", "fails", "severity",
@@ -11,6 +12,10 @@ COLUMNS = ["config", "phase", *KNOBS, "cost", "status", "reason", "meets_spec", 
            "ideal_converge_ms", "est_error_ohm", "ripple_mv", "ideal_ripple_mv", "limit_cycle",
            "ideal_limit_cycle", "toggle_share", "acc_peak", "acc_bound", "acc_headroom_bits",
            "within_bounds", "gain_margin"]
+#: The results cache (harness.tune.runner.Cache); by default it lives in the output folder.
+CACHE_FILE = "tune-cache.jsonl"
+#: What the output folder holds: the outputs, and the cache carried across when the folder is swapped.
+OUT_FILES = ("tune.csv", "error_vs_bits.png", "pareto.png", CACHE_FILE)
 
 
 def _cell(v):
@@ -98,31 +103,39 @@ def plot_pareto(path, rows, rec, spec):
 
 
 def write_outputs(out_dir, result, rows, knobs, start, spec):
-    """CSV and plots into ``out_dir``; returns their paths."""
-    os.makedirs(out_dir, exist_ok=True)
-    paths = {"csv": os.path.join(out_dir, "tune.csv"),
-             "knobs_png": os.path.join(out_dir, "error_vs_bits.png"),
-             "pareto_png": os.path.join(out_dir, "pareto.png")}
-    write_csv(paths["csv"], rows)
-    plot_knobs(paths["knobs_png"], start, rows, knobs, spec)
-    plot_pareto(paths["pareto_png"], rows, result["recommended"], spec)
-    return paths
+    """CSV and plots into a new folder swapped in for ``out_dir`` whole; returns their paths.
+
+    The results cache, if ``out_dir`` holds one, is carried across (it is complete by now).
+    """
+    names = {"csv": "tune.csv", "knobs_png": "error_vs_bits.png", "pareto_png": "pareto.png"}
+    with atomic_folder(out_dir, OUT_FILES) as folder:
+        cache = os.path.join(out_dir, CACHE_FILE)
+        if os.path.isfile(cache):
+            shutil.copy2(cache, os.path.join(folder, CACHE_FILE))
+        write_csv(os.path.join(folder, names["csv"]), rows)
+        plot_knobs(os.path.join(folder, names["knobs_png"]), start, rows, knobs, spec)
+        plot_pareto(os.path.join(folder, names["pareto_png"]), rows, result["recommended"], spec)
+    return {k: os.path.join(out_dir, n) for k, n in names.items()}
 
 
 def _fmt(v, unit=""):
     return "n/a" if v is None else f"{v:.4g}{unit}"
 
 
-def summary(result, knobs, spec, paths, counts):
-    """The readable report."""
+def summary(result, knobs, spec, paths, counts, lengths, notes=()):
+    """The readable report; ``lengths`` maps each scenario file to its run length (s), ``notes``
+    are lines about runs shorter than their checks need (harness.tune.run_length)."""
     rec, st = result["recommended"], result["start"]
     lines = [f"Spec: load error <= {spec['max_error_mv']:g} mV, settling <= {spec['max_settle_ms']:g} ms, "
              f"loop gain margin >= {spec['min_gain_margin']:g}"
              + (f", error <= {spec['max_ideal_ratio']:g} x the float ideal's" if spec.get("max_ideal_ratio") else ""),
              f"Evaluated {counts['configs']} configurations ({counts['rejected']} rejected by range "
-             f"analysis); {counts['new']} new runs, {counts['cached']} from the cache"]
+             f"analysis); {counts['new']} new runs, {counts['cached']} from the cache",
+             "Runs: " + ", ".join(f"{name} {s:g} s" for name, s in lengths.items())]
+    lines += [f"Note: {n}" for n in notes]
     if rec is None:
-        why = st["reason"] or f"error {_fmt(st.get('error_mv'), ' mV')}, settling {_fmt(st.get('settle_ms'), ' ms')}"
+        why = st["reason"] or (f"fails {st['fails']}: error {_fmt(st.get('error_mv'), ' mV')}, settling "
+                               f"{_fmt(st.get('settle_ms'), ' ms')}, gain margin {_fmt(st.get('gain_margin'))}")
         lines.append(f"No configuration meets the spec: even the generous start fails ({why}).")
     else:
         if not st["meets_spec"]:
@@ -133,8 +146,9 @@ def summary(result, knobs, spec, paths, counts):
         lines.append(f"  load error {_fmt(rec['error_mv'], ' mV')} (float ideal {_fmt(rec['ideal_error_mv'], ' mV')}, "
                      f"x{rec['error_ratio']:.2f}), settling {_fmt(rec['settle_ms'], ' ms')}, ripple "
                      f"{_fmt(rec['ripple_mv'], ' mV')} p-p, estimate off the ideal by {_fmt(rec['est_error_ohm'], ' ohm')}")
+        width = f" in acc_bits={rec['acc_bits']}" if "acc_bits" in rec else ""   # not tuned: the scenario's
         lines.append(f"  accumulator peak {rec['acc_peak']} of static bound {rec['acc_bound']} "
-                     f"({rec['acc_headroom_bits']} bits spare in acc_bits={rec['acc_bits']}); limit cycle: "
+                     f"({rec['acc_headroom_bits']} bits spare{width}); limit cycle: "
                      f"{'yes' if rec['limit_cycle'] else 'no'}; gain margin {_fmt(rec['gain_margin'])}")
         lines.append(f"  cost of the generous start: {st['cost']} (error {_fmt(st['error_mv'], ' mV')})")
         for k, r in result["neighbours"].items():

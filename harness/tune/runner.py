@@ -1,15 +1,19 @@
 """Run tune jobs on local processes or a Dask cluster, with a JSON-lines results cache.
 
 The cache holds one line per finished job, ``{"key": ..., ...figures}``, keyed by a hash of the
-job's scenario, settings, backend and run length (harness.tune.evaluate.Job.key). A line is appended
-and flushed as soon as its chunk finishes, so an interrupted sweep loses at most the chunks that
-were running; a torn last line is ignored on reading.
+job's scenario (its run length included), settings and backend (harness.tune.evaluate.Job.key). A
+line is appended and flushed as soon as its chunk finishes, so an interrupted sweep loses at most
+the chunks that were running. A line cut short by an interrupted write is dropped on reading (the
+file is rewritten without it, so the next record starts on a line of its own) and counted in
+``Cache.dropped``.
 """
-from concurrent.futures import ProcessPoolExecutor, as_completed
 import json
 import math
+import multiprocessing
 import os
+import signal
 
+from harness.atomic import atomic_write
 from harness.errors import InputError
 from harness.tune.evaluate import evaluate
 
@@ -20,20 +24,36 @@ CONNECT_TIMEOUT_S = 10
 
 
 class Cache:
-    """Results by job key, backed by ``path`` (JSON lines, append-only)."""
+    """Results by job key, backed by ``path`` (JSON lines, append-only).
+
+    ``dropped`` counts the lines of the file that were not whole records (cut short by an
+    interrupted write); they are removed from the file on reading.
+    """
 
     def __init__(self, path):
         self.path = path
         self.data = {}
-        if os.path.exists(path):
-            with open(path, encoding="utf-8") as f:
-                for line in f:
-                    try:
-                        row = json.loads(line)
-                    except json.JSONDecodeError:
-                        continue        # a line torn by an interrupted write
-                    if isinstance(row, dict) and "key" in row:
-                        self.data[row["key"]] = row
+        self.dropped = 0
+        if not os.path.exists(path):
+            return
+        good = []
+        with open(path, "rb") as f:
+            for line in f:
+                try:
+                    row = json.loads(line)
+                except (json.JSONDecodeError, UnicodeDecodeError):
+                    row = None
+                if isinstance(row, dict) and "key" in row:
+                    self.data[row["key"]] = row
+                    good.append(line if line.endswith(b"\n") else line + b"\n")
+                elif line.strip():
+                    self.dropped += 1
+        if self.dropped:
+            try:
+                with atomic_write(path, "wb") as f:
+                    f.writelines(good)
+            except OSError:
+                pass        # left in place: skipped again on reading, ended before appending
 
     def __contains__(self, key):
         return key in self.data
@@ -60,6 +80,11 @@ class Cache:
             self.data[row["key"]] = row
 
 
+def _ignore_sigint():
+    """In a worker: leave Ctrl-C to the parent, which reports it in one line and stops the pool."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
 def chunks(jobs, workers):
     """Split jobs into lockstep batches: one scenario and backend each, about ``workers`` in all."""
     groups = {}
@@ -80,8 +105,6 @@ class Runner:
     Parameters
     ----------
     cache : Cache
-    duration_s : float
-        Simulated time per run, s.
     scheduler : str, optional
         Dask distributed scheduler address (or a ``distributed.Client``); local processes if None.
     workers : int
@@ -90,8 +113,8 @@ class Runner:
         Show a tqdm progress bar (on stderr).
     """
 
-    def __init__(self, cache, duration_s, scheduler=None, workers=2, progress=True):
-        self.cache, self.duration_s = cache, duration_s
+    def __init__(self, cache, scheduler=None, workers=2, progress=True):
+        self.cache = cache
         self.new = 0
         self.cached = 0
         self._client = None
@@ -113,26 +136,27 @@ class Runner:
     def close(self):
         self.bar.close()
         if self._pool is not None:
-            self._pool.shutdown(cancel_futures=True)
+            # Every result has been read unless the run is being abandoned (Ctrl-C, an error):
+            # either way nothing the workers still do is wanted.
+            self._pool.terminate()
+            self._pool.join()
         if self._client is not None and self._own_client:
             self._client.close()
 
     def _submit_all(self, parts):
         if self._client is not None:
             from distributed import as_completed as dask_completed
-            futures = [self._client.submit(evaluate, part, self.duration_s, pure=False) for part in parts]
+            futures = [self._client.submit(evaluate, part, pure=False) for part in parts]
             for fut in dask_completed(futures):
                 yield fut.result()
             return
         if self.workers <= 1 or len(parts) == 1:
             for part in parts:
-                yield evaluate(part, self.duration_s)
+                yield evaluate(part)
             return
         if self._pool is None:
-            self._pool = ProcessPoolExecutor(max_workers=self.workers)
-        futures = [self._pool.submit(evaluate, part, self.duration_s) for part in parts]
-        for fut in as_completed(futures):
-            yield fut.result()
+            self._pool = multiprocessing.Pool(self.workers, initializer=_ignore_sigint)
+        yield from self._pool.imap_unordered(evaluate, parts)
 
     def run(self, jobs):
         """Results (dicts) for ``jobs``, from the cache or freshly evaluated, in order."""
