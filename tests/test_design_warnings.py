@@ -158,3 +158,32 @@ def test_shipped_scenarios_raise_none_of_the_limit_warnings(path):
     """The shipped scenarios are sized within every limit these warnings check."""
     warnings = design_report(load_scenario(path))["warnings"]
     assert not [w for w in warnings if any(p in w for p in PHRASES)], warnings
+
+
+RIPPLE = """
+[supply]
+target_v = 24.0
+max_v = 30.0
+dac_bits = {dac_bits}
+[cable]
+resistance_ohm = 0.5
+[load_end]
+capacitance_f = 22e-3
+esr_ohm = {esr}
+[load]
+kind = "constant_current"
+current_a = 2.0
+[sensing]
+adc_bits = {adc_bits}
+"""
+
+
+def test_a_converter_floor_that_puts_ripple_on_the_load_is_warned(tmp_path):
+    """An invented 24 V run with the capacitor's ESR equal to the cable's 0.5 ohm and an 8-bit DAC:
+    the perturbation floor the converters need divides about evenly between cable and ESR
+    (|ESR + 1/jwC| ~ ESR at 22 mF, worked by hand), so half of it reaches the load, well above
+    0.5 % of 24 V = 0.12 V. A 0.005 ohm ESR with 16-bit converters leaves nothing to warn."""
+    rep = _report(tmp_path, RIPPLE.format(dac_bits=8, esr=0.5, adc_bits=10))
+    assert _has(rep, "of ripple on the load"), rep["warnings"]
+    quiet = _report(tmp_path, RIPPLE.format(dac_bits=16, esr=0.005, adc_bits=16))
+    assert not _has(quiet, "of ripple on the load"), quiet["warnings"]

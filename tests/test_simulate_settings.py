@@ -71,3 +71,23 @@ def test_window_outcomes_count_every_window_of_the_run(capsys, short_demo):
     assert {k for k, n in outcomes.items() if n and k != "valid"} <= {"transient", "none"}
     baseline = _json(capsys, ["simulate", str(short_demo), "--compensation", "fixed", "--json"])
     assert baseline["window_outcomes"] is None
+
+
+def test_a_partial_table_takes_the_keys_it_does_not_set_from_design(capsys, short_demo, tmp_path):
+    """A scenario table setting one key runs design's recommendation for every other key (and its
+    sample rate); one that sets the timing (period_samples) runs as written, defaults elsewhere."""
+    from harness.design.settings import with_settings
+    from harness.scenario.read import load_scenario
+    base = load_scenario(str(short_demo))
+    rec, _ = with_settings(base)
+    partial = tmp_path / "partial.toml"
+    partial.write_text(short_demo.read_text() + "\n[algorithm]\nfault_windows = 9\n")
+    sc, line = with_settings(load_scenario(str(partial)))
+    assert sc.algorithm == {**rec.algorithm, "fault_windows": 9}
+    assert sc.sensing.sample_rate_hz == rec.sensing.sample_rate_hz
+    assert "fault_windows from the scenario's [algorithm] table" in line and "the rest recommended" in line
+    timed = tmp_path / "timed.toml"
+    timed.write_text(short_demo.read_text() + "\n[algorithm]\nperiod_samples = 64\n")
+    sc, line = with_settings(load_scenario(str(timed)))
+    assert sc.algorithm == {"period_samples": 64} and "as written" in line
+    assert sc.sensing.sample_rate_hz == base.sensing.sample_rate_hz

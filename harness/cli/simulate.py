@@ -5,7 +5,7 @@ import os
 
 from harness.atomic import atomic_folder, atomic_write, check_file_target, check_folder_target
 from harness.cli.version import tool_version
-from harness.design.settings import with_settings
+from harness.design.settings import given_table, with_settings
 from harness.loop.backends import BACKENDS
 from harness.loop.cautions import voltage_cautions
 from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, simulate
@@ -110,7 +110,8 @@ def run(args):
                 all_m[comp] = metrics(runs[comp])
         from harness.loop.report import REPORT_FILES, write_report
         what_ran = {"version": tool_version(), "as_written": as_written, "line": settings,
-                    "table_source": _table_source(as_written, args.algorithm)}
+                    "table_source": _table_source(as_written, args.algorithm),
+                    "given": set(given_table(as_written, args.algorithm))}
         with atomic_folder(args.out, REPORT_FILES) as folder:
             write_report(folder, runs, all_m, settings=what_ran)
     if args.waveform:

@@ -99,9 +99,16 @@ def _warnings(sc, cfg, fig):
     z = abs(r + esr + 1j * w * sc.cable.inductance_h + 1 / (1j * w * c))
     if cfg.pert_min_v / z > d.LIGHT_LOAD_SHARE * i_min:
         out.append(f"the lightest load ({i_min:.3g} A) is below twice the perturbation floor's current "
-                   f"swing ({cfg.pert_min_v / z:.3g} A): the current swings near zero, the current "
-                   "ADC clips it and the estimate reads high; use a finer current ADC or a heavier "
-                   "minimum load")
+                   f"swing ({cfg.pert_min_v / z:.3g} A): the current swings near zero and the current "
+                   "ADC clips it, so at that load no estimate can be formed and the correction falls "
+                   "back toward zero; use a finer current ADC or a heavier minimum load")
+    zc = esr + 1 / (1j * w * c)
+    ripple = cfg.pert_max_v * abs(zc) / z
+    if ripple > d.RIPPLE_FRACTION * sc.supply.target_v:
+        out.append(f"the perturbation the converters need ({cfg.pert_max_v:.3g} V) puts {ripple:.3g} V peak of "
+                   f"ripple on the load, more than {100 * d.RIPPLE_FRACTION:.2g} % of target: the capacitor's "
+                   "ESR or a coarse DAC or voltage ADC lets it through; use a lower-ESR capacitor or "
+                   "finer converters")
     gm = fig["gain_margin"]
     if fig["spectral_radius"] >= 1.0:
         out.append("the correction loop is unstable: the correction will ring and hit its limits; "

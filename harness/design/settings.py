@@ -20,24 +20,44 @@ def algorithm_table(path):
     return table
 
 
+#: Settings that fix the perturbation's timing: a table that sets one keeps the scenario's
+#: sample rate, and design's recommendation (made for its own period and rate) fills nothing in.
+TIMING_KEYS = ("period_samples", "periods_per_window")
+
+
+def given_table(scenario, algorithm_path=None):
+    """The [algorithm] keys the user wrote: the algorithm file's, else the scenario's (a dict)."""
+    return algorithm_table(algorithm_path) if algorithm_path else dict(scenario.algorithm)
+
+
 def with_settings(scenario, algorithm_path=None):
     """The scenario with the [algorithm] table a run uses, and one line saying where it came from.
 
     ``algorithm_path`` (a TOML file holding only ``[algorithm]``, as ``design --algorithm-out``
-    writes it) replaces the scenario's table; without it the scenario's own table is used, and a
-    scenario without one runs design's recommendation for its plant, which the line says in plain
-    words (with the sample rate, where the recommendation changes it).
+    writes it) replaces the scenario's table; without it the scenario's own table is used. Every
+    key the table does not set comes from design's recommendation for the plant (a scenario
+    without a table runs the recommendation whole), which the line says in plain words, with the
+    sample rate where the recommendation changes it. A table that sets the timing
+    (TIMING_KEYS) is run as written, the rest at the defaults, since the recommendation is made
+    for its own period and rate.
     """
-    if algorithm_path:
-        return replace(scenario, algorithm=algorithm_table(algorithm_path)), f"settings: {algorithm_path}"
-    if scenario.algorithm:
-        return scenario, "settings: the scenario's [algorithm] table"
-    sc = recommended(scenario)
+    given = given_table(scenario, algorithm_path)
+    where = algorithm_path or "the scenario's [algorithm] table"
+    rec = recommended(replace(scenario, algorithm={}))
+    if given and set(rec.algorithm) <= set(given):      # a whole table, as design writes it
+        return replace(scenario, algorithm=given), f"settings: {where}"
+    if any(k in given for k in TIMING_KEYS):
+        return replace(scenario, algorithm=given), (f"settings: {where}, as written (it sets the "
+                                                    "timing; the keys it does not set take their defaults)")
+    sc = replace(rec, algorithm={**rec.algorithm, **given})
     rate = ""
     if sc.sensing.sample_rate_hz != scenario.sensing.sample_rate_hz:
         rate = f", at the {sc.sensing.sample_rate_hz:g} Hz sample rate it needs"
-    return sc, ("settings: recommended by linedrop design for this plant (the scenario has no "
-                f"[algorithm] table){rate}; linedrop design --algorithm-out FILE writes them")
+    if not given:
+        return sc, ("settings: recommended by linedrop design for this plant (the scenario has no "
+                    f"[algorithm] table){rate}; linedrop design --algorithm-out FILE writes them")
+    return sc, (f"settings: {', '.join(sorted(given))} from {where}; the rest recommended by "
+                f"linedrop design for this plant{rate}")
 
 
 def recommended(scenario):

@@ -59,7 +59,7 @@ def _body(runs, all_metrics, b, settings):
                  f"Every setting linedrop's algorithm ran with; \"{settings['table_source']}\" marks "
                  "the keys of the [algorithm] table in force:", ""]
         text += settings_table(algo_run.cfgs[b], algo_run.scenarios[b], settings["as_written"],
-                               settings["table_source"]) + [""]
+                               settings["table_source"], settings.get("given")) + [""]
     text += ["![waveforms](waveforms.png)", "",
              "Shaded: faults (red), the supply at its current limit (purple), and along the foot of "
              "each panel the windows the algorithm rejected, one colour per outcome; dotted lines: "

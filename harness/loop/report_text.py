@@ -111,9 +111,9 @@ def outcome_table(counts):
     return lines
 
 
-def _setting_source(key, sc, as_written, table_source):
+def _setting_source(key, sc, as_written, table_source, given):
     if key in sc.algorithm:
-        return table_source
+        return table_source if given is None or key in given else "linedrop design's recommendation"
     if key in FROM_PLANT:
         section, name = FROM_PLANT[key]
         now, was = getattr(getattr(sc, section), name), getattr(getattr(as_written, section), name)
@@ -123,19 +123,20 @@ def _setting_source(key, sc, as_written, table_source):
     return "default (algo/config.py)"
 
 
-def settings_table(cfg, sc, as_written, table_source):
+def settings_table(cfg, sc, as_written, table_source, given=None):
     """Markdown table of every algorithm setting the run used, its unit and where it came from.
 
     ``cfg`` is the run's AlgoConfig, ``sc`` the scenario it ran (with the [algorithm] table in
     force), ``as_written`` the scenario as its file has it, ``table_source`` where that table
-    came from, in words.
+    came from, in words, and ``given`` the keys that table set (None: every key in force), the
+    others in force being design's recommendation.
     """
     lines = ["| setting | value | meaning | from |", "|---|---|---|---|"]
     for f in fields(cfg):
         value = getattr(cfg, f.name)
         shown = str(value) if isinstance(value, int) else plain(value)
         lines.append(f"| `{f.name}` | {shown} | {SETTINGS[f.name].doc} | "
-                     f"{_setting_source(f.name, sc, as_written, table_source)} |")
+                     f"{_setting_source(f.name, sc, as_written, table_source, given)} |")
     return lines
 
 
