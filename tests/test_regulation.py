@@ -61,3 +61,12 @@ def test_bench_regulation_reports_every_compensation_side_by_side(capsys, tmp_pa
     assert out["demo_mast"]["sense"]["steady_error_v"] < out["demo_mast"]["none"]["steady_error_v"]
     assert (tmp_path / "o" / "regulation.png").stat().st_size > 0
     assert json.loads((tmp_path / "o" / "regulation.json").read_text()) == out
+
+
+def test_a_lamp_string_is_benched_from_a_steady_warm_start_without_a_step():
+    """The figure is convergence from a steady start (the issue's definition): a lamp string is
+    not switched on cold in the benchmark, and it takes no load step."""
+    from harness.design.regulation import bench_scenario
+    from harness.scenario.read import load_scenario
+    sc, _ = bench_scenario(load_scenario("harness/scenario/scenarios/garden_lamps.toml"))
+    assert sc.run.start == "steady" and sc.load.steps == () and sc.faults == ()

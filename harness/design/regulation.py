@@ -2,9 +2,12 @@
 
 For each scenario: the recommended [algorithm] settings and sample rate, faults dropped, a
 steady start, and one load step ``windows`` measurement windows later (the scenario's first
-step's value, or one derived by :func:`harness.scenario.variants.with_load_step`; a lamp string
-is switched on cold instead); the run lasts twice that, or the scenario's own duration where
-that is longer. Then one closed-loop run per
+step's value, or one derived by :func:`harness.scenario.variants.with_load_step`); the run
+lasts twice that, or the scenario's own duration where that is longer. A lamp string takes no
+step (a lamp is switched, not stepped): it starts steady with its filament warm at the
+uncompensated voltage, so its convergence is the loop's, and its dip and settling are None; its
+cold switch-on is a start-up of the lamp's own (``linedrop simulate`` of a scenario with
+``start = "cold"`` shows it). Then one closed-loop run per
 compensation on the same plant and the same ADC noise. The figures per run:
 
 - ``improvement``: the uncompensated (``none``) steady load error over this run's, both
@@ -45,6 +48,8 @@ def bench_scenario(scenario, windows=STEP_WINDOWS):
     sc = replace(sc, run=replace(sc.run, duration_s=max(2 * step_s, scenario.run.duration_s)))
     if scenario.load.steps:
         return replace(sc, load=replace(sc.load, steps=((step_s, scenario.load.steps[0][1]),))), sc.algorithm
+    if sc.load.kind == "lamp":
+        return sc, sc.algorithm
     sc, _ = with_load_step(replace(sc, load=replace(sc.load, steps=())), sc.run.duration_s)
     return sc, sc.algorithm
 
