@@ -112,7 +112,8 @@ class BatchModel:
         s, p = self.s, self.p
         v = np.minimum(np.maximum(np.asarray(adc_v, dtype=np.int64), 0), p.adc_max)
         i = np.minimum(np.maximum(np.asarray(adc_i, dtype=np.int64), 0), p.adc_max)
-        s.clipped[(v == p.adc_max) | (i == p.adc_max) | (i == 0)] = 1
+        s.clipped |= ((i == 0).astype(np.int64) | ((v == p.adc_max).astype(np.int64) << 1)
+                      | ((i == p.adc_max).astype(np.int64) << 2))
         s.i_zero[i == 0] = 1
         ph = s.phase
         sn = self._flat.take(self._base + ph)
@@ -155,7 +156,9 @@ class BatchModel:
         w = k[count == self.window[k]]
         if w.size:
             self._window_end(w)
-        s.cmd_base[k] = self.p.target_code[k] + _rsr(s.corr[k], self.p.corr_frac[k])
+        p = self.p
+        top = np.maximum(p.target_code[k], p.cmd_max[k] - s.pert_amp[k])
+        s.cmd_base[k] = np.minimum(p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k]), top)
 
     def _period_end(self, k):
         """algo.step._period_end: the swing-relative load-step detector."""
@@ -246,7 +249,7 @@ class BatchModel:
         folded = np.where(anew, r_raw, np.clip(r_est + d, 0, p.r_max_q[k]))
         r_est = np.where(valid, folded, r_est)
         run = np.where(valid, np.where(anew, 1, np.minimum(run + 1, 0xFF)), run)
-        held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
+        held = (status == st.STATUS_TRANSIENT) | ((status == st.STATUS_CLIPPED) & ~st.rails_fault(s.clipped[k]))
         bad = np.where(valid, 0, np.where(held, s.bad_windows[k],
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]

@@ -113,10 +113,16 @@ def next_pert_amp(p, s, status, drop_total):
 def command_base(p, s):
     """target_code + the correction rounded to DAC codes: the command less the perturbation.
 
+    Kept at most cmd_max - pert_amp (but never below target_code), so the perturbation on top
+    of it is not cut by the ceiling: a cut sine lowers the command's mean by an amount that
+    depends on the correction, and near the ceiling the loop then rings with that cut from one
+    period to the next. The correction in the state is not changed; only the command is.
+
     Scaling and overflow: corr is at most corr_max_q < 2**31; after the shift
-    it is at most 2**16 codes, so the sum fits int32.
+    it is at most 2**16 codes, so the sum fits int32; cmd_max - pert_amp is above -2**15.
     """
-    return p.target_code + rshift_round(s.corr, p.corr_frac)
+    return min(p.target_code + rshift_round(s.corr, p.corr_frac),
+               max(p.target_code, p.cmd_max - s.pert_amp))
 
 
 def update_estimate(p, s, r_raw):
@@ -152,10 +158,13 @@ def window_end(p, s):
         update_estimate(p, s, s.r_raw)
         s.bad_windows = 0
         s.kp_off = 0
-    elif status not in (st.STATUS_TRANSIENT, st.STATUS_CLIPPED):
-        # A load step or a code at a rail only holds the estimate; counting it as a fault window
-        # would let a step spread over several windows by the load capacitor force the
-        # correction to zero.
+    elif status != st.STATUS_TRANSIENT and not (status == st.STATUS_CLIPPED and not st.rails_fault(s.clipped)):
+        # A load step or a current code at one rail only holds the estimate; counting it as a
+        # fault window would let a step spread over several windows by the load capacitor force
+        # the correction to zero. The voltage at its rail, or the current at both rails in one
+        # window, is a fault window: the supply is outside what the voltage ADC reads (design
+        # warns where v_full_scale_v is below max_v), or the current swings over the ADC's
+        # whole range, as when a plant without its capacitor runs away.
         s.bad_windows = min(s.bad_windows + 1, 0xFFFF)
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0

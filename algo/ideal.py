@@ -130,7 +130,9 @@ class IdealBatch:
         """One sample for every instance; returns the (unrounded) command in DAC codes."""
         v = np.clip(np.asarray(adc_v, dtype=np.float64), 0, self.adc_max)
         i = np.clip(np.asarray(adc_i, dtype=np.float64), 0, self.adc_max)
-        self.clipped[(v == self.adc_max) | (i == self.adc_max) | (i == 0)] = 1
+        flags = ((i == 0).astype(np.int64) | ((v == self.adc_max).astype(np.int64) << 1)
+                 | ((i == self.adc_max).astype(np.int64) << 2))
+        self.clipped = (self.clipped.astype(np.int64) | flags).astype(np.float64)
         self.i_zero[i == 0] = 1
         ph = self.phase.astype(np.int64)
         sn = self.sin[self._idx, ph]
@@ -173,7 +175,8 @@ class IdealBatch:
         w = k[self.count[k] == self.window[k]]
         if w.size:
             self._window_end(w)
-        self.cmd_base[k] = self.target[k] + self.corr[k]
+        top = np.maximum(self.target[k], self.cmd_max[k] - self.pert_amp[k])
+        self.cmd_base[k] = np.minimum(self.target[k] + self.corr[k], top)
 
     def _correct(self, k):
         """algo.step.correct in floats: corr = kp * e + integ, integ += ki * e, kp = r_est * kc,
@@ -236,7 +239,8 @@ class IdealBatch:
         folded = np.where(anew, r_raw, np.clip(r_est + d, 0, self.r_max[k]))
         r_est = np.where(valid, folded, r_est)
         run = np.where(valid, np.where(anew, 1, np.minimum(run + 1, 0xFF)), run)
-        held = (status == st.STATUS_TRANSIENT) | (status == st.STATUS_CLIPPED)
+        held = (status == st.STATUS_TRANSIENT) | ((status == st.STATUS_CLIPPED)
+                                                  & ~st.rails_fault(self.clipped[k].astype(np.int64)))
         bad = np.where(valid, 0, np.where(held, self.bad_windows[k],
                                           np.minimum(self.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= self.fault_windows[k]

@@ -82,7 +82,7 @@ def state_bounds(p: Params):
         "phase": (0, per - 1), "count": (0, win - 1),
         "bad_windows": (0, 0xFFFF),
         "cmd": (p.cmd_min, p.cmd_max),
-        "have_prev": (0, 1), "transient": (0, 1), "status": (0, 7), "clipped": (0, 1),
+        "have_prev": (0, 1), "transient": (0, 1), "status": (0, 7), "clipped": (0, 7),
         "cmd_base": (p.target_code, p.target_code + rshift_round(p.corr_max_q, p.corr_frac)),
     }
     return {name: bounds[name] for name in STATE_FIELDS}

@@ -45,10 +45,16 @@ class State:
     have_prev: int = 0    # uint8: psum_prev holds a whole period
     transient: int = 0    # uint8: a load step was seen in this window
     status: int = 0       # uint8: outcome of the last window (STATUS_*)
-    clipped: int = 0      # uint8: a code sat at a rail in this window (v or i at adc_max, i at 0)
+    clipped: int = 0      # uint8: rails hit in this window: 1 current at 0, 2 voltage at adc_max, 4 current at adc_max
     valid_run: int = 0    # uint8: valid windows since init, reset or a forced zero (saturates)
     kp_off: int = 0       # uint8: ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window
     i_zero: int = 0       # uint8: a current code 0 in this period (the load draws less than the swing)
 
 
 STATE_FIELDS = [f.name for f in fields(State)]
+
+
+def rails_fault(clipped):
+    """A clipped window that counts toward the forced zero: the voltage at its rail (flag 2), or
+    the current at both rails (flags 1 and 4) in one window."""
+    return ((clipped & 2) != 0) | ((clipped & 5) == 5)     # ints or numpy arrays alike

@@ -144,8 +144,12 @@ def step(p, s, adc_v, adc_i):
     """
     v = sat(adc_v, 0, p.adc_max)
     i = sat(adc_i, 0, p.adc_max)
-    if v == p.adc_max or i == p.adc_max or i == 0:
-        s.clipped = 1
+    if i == 0:
+        s.clipped |= 1
+    if v == p.adc_max:
+        s.clipped |= 2
+    if i == p.adc_max:
+        s.clipped |= 4
     if i == 0:
         s.i_zero = 1
     n = p.period - 1

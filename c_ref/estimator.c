@@ -154,13 +154,23 @@ static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8
 /*
  * target_code + the correction rounded to DAC codes: the command less the
  * perturbation, recomputed once per period.
+ * Kept at most cmd_max - pert_amp (but never below target_code), so the perturbation on top
+ * of it is not cut by the ceiling: a cut sine lowers the command's mean by an amount that
+ * depends on the correction, and near the ceiling the loop then rings with that cut from one
+ * period to the next. The correction in the state is not changed; only the command is.
  * Scaling and overflow: corr is at most corr_max_q < 2**31; after the shift
  * it is at most 2**16 codes, so the sum fits int32 (rounded without forming
- * corr + half).
+ * corr + half); cmd_max - pert_amp is above -2**15.
  */
 int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
 {
-    return (int32_t)p->target_code + ld_rshift_round_safe(s->corr, p->corr_frac);
+    int32_t base = (int32_t)p->target_code + ld_rshift_round_safe(s->corr, p->corr_frac);
+    int32_t top = (int32_t)p->cmd_max - s->pert_amp;
+
+    if (top < (int32_t)p->target_code) {
+        top = (int32_t)p->target_code;
+    }
+    return base < top ? base : top;
 }
 
 /*
@@ -211,11 +221,15 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
         ld_update_estimate(p, s, s->r_raw);
         s->bad_windows = 0u;
         s->kp_off = 0u;
-    } else if (status != LD_STATUS_TRANSIENT && status != LD_STATUS_CLIPPED &&
+    } else if (status != LD_STATUS_TRANSIENT &&
+               !(status == LD_STATUS_CLIPPED && (s->clipped & 2u) == 0u && (s->clipped & 5u) != 5u) &&
                s->bad_windows < UINT16_MAX) {
-        /* A load step or a code at a rail only holds the estimate; counting it as a fault
-         * window would let a step spread over several windows by the load capacitor force
-         * the correction to zero. */
+        /* A load step or a current code at one rail only holds the estimate; counting it as
+         * a fault window would let a step spread over several windows by the load capacitor
+         * force the correction to zero. The voltage at its rail, or the current at both rails
+         * in one window, is a fault window: the supply is outside what the voltage ADC reads
+         * (design warns where v_full_scale_v is below max_v), or the current swings over the
+         * ADC's whole range, as when a plant without its capacitor runs away. */
         s->bad_windows++;
     }
     if (s->bad_windows >= p->fault_windows) {

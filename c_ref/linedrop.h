@@ -101,7 +101,7 @@ typedef struct {
     uint8_t have_prev;     /* psum_prev holds a whole period */
     uint8_t transient;     /* a load step was seen in this window */
     uint8_t status;        /* outcome of the last window, LD_STATUS_* */
-    uint8_t clipped;       /* a code sat at a rail in this window (v or i at adc_max, i at 0) */
+    uint8_t clipped;       /* rails hit in this window: 1 current at 0, 2 voltage at adc_max, 4 current at adc_max */
     uint8_t valid_run;     /* valid windows since init, reset or a forced zero (saturates) */
     uint8_t kp_off;        /* ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window */
     uint8_t i_zero;        /* a current code 0 in this period (the load draws less than the swing) */

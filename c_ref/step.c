@@ -186,8 +186,14 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
     int32_t sn = p->ref_tab[s->phase];
     int32_t cs = p->ref_tab[(s->phase + (1u << p->period_log2 >> 2)) & n];
 
-    if (v == p->adc_max || i == p->adc_max || i == 0) {
-        s->clipped = 1u;
+    if (i == 0) {
+        s->clipped |= 1u;
+    }
+    if (v == p->adc_max) {
+        s->clipped |= 2u;
+    }
+    if (i == p->adc_max) {
+        s->clipped |= 4u;
     }
     if (i == 0) {
         s->i_zero = 1u;

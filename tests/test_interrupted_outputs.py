@@ -95,7 +95,7 @@ def test_ctrl_c_while_a_report_is_written_keeps_the_old_report(short_scenario, t
     before = snapshot(out)
     capsys.readouterr()
 
-    def half_written(folder, runs, metrics):
+    def half_written(folder, runs, metrics, **_):
         with open(os.path.join(folder, "report.md"), "w") as f:
             f.write("# half")
         raise KeyboardInterrupt

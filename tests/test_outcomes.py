@@ -70,11 +70,15 @@ def test_a_sample_at_a_rail_makes_the_window_clipped_and_holds_the_estimate(back
     assert before["status"] == STATUS_VALID
     assert after["status"] == STATUS_CLIPPED
     assert after["r_est"] == before["r_est"]
-    assert after["bad_windows"] == before["bad_windows"] == 0
+    # The voltage at its rail is a fault window (the supply outside the voltage ADC's range); a
+    # current code at one rail only holds.
+    assert before["bad_windows"] == 0
+    assert after["bad_windows"] == (1 if rail == "v_at_adc_max" else 0)
     assert after["corr_target"] > 0
     assert after["pert_amp"] == min(max(before["pert_amp"] >> 1, P.pert_min), P.pert_max)
     assert after["clipped"] == 0                       # cleared at the window end
-    assert int(trace["clipped"][t]) == 1               # set by the rail sample
+    flag = {"i_at_zero": 1, "v_at_adc_max": 2, "i_at_adc_max": 4}[rail]
+    assert int(trace["clipped"][t]) == flag             # set by the rail sample, its own flag
     assert int(trace["clipped"][t - 1]) == 0
     if rail == "v_at_adc_max":                         # same current codes: same target
         assert after["corr_target"] == before["corr_target"]
@@ -123,3 +127,16 @@ def test_model_and_c_agree_on_every_field_after_every_sample_of_these_sequences(
     tm, tc = _run("model", v, i), _run("c", v, i)
     for f in STATE_FIELDS:
         assert np.array_equal(tm[f], tc[f]), f
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_the_current_at_both_rails_in_one_window_counts_toward_the_forced_zero(backend):
+    """A current that touches code 0 and adc_max in one window swings over the ADC's whole range
+    (a plant running away): the window is clipped and counts as a fault window (flags 1 | 4)."""
+    v, i = _in_phase(SETTLE + 1)
+    t = SETTLE * WINDOW + 5
+    i[t], i[t + 3] = 0, ADC_MAX
+    trace = _run(backend, v, i)
+    after = _at_window_end(trace, SETTLE)
+    assert after["status"] == STATUS_CLIPPED and after["bad_windows"] == 1
+    assert int(trace["clipped"][t + 3]) == 5

@@ -67,7 +67,7 @@ static void ld_fuzz_check(const ld_params_t *p, const ld_state_t *s, uint16_t cm
                     s->cmd_base <= p->target_code + (p->corr_max_q >> p->corr_frac) + 1);
     ld_fuzz_require(s->phase < period && s->count < window);
     ld_fuzz_require(s->status <= LD_STATUS_R_LOW);
-    ld_fuzz_require(s->have_prev <= 1u && s->transient <= 1u && s->clipped <= 1u);
+    ld_fuzz_require(s->have_prev <= 1u && s->transient <= 1u && s->clipped <= 7u && s->i_zero <= 1u);
     ld_fuzz_require(s->bad_windows < p->fault_windows ||
                     (s->corr == 0 && s->integ == 0 && s->corr_target == 0 && s->valid_run == 0u));
 }

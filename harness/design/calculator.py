@@ -63,6 +63,9 @@ X_MAX_FACTOR = 3.0       # x_max_ohm at least this multiple of the plant's own |
 R_RESOLUTION = 1e-3      # estimate LSB at most this share of R_min
 R_MAX_FACTOR = 2.0       # r_max_ohm = this * (R_max + ESR)
 HEADROOM_FACTOR = 1.25   # corr_max_v = this * the largest correction needed (capped by max_v - target_v)
+STEP_NOISE_SIGMAS = 6.0  # load-step floor: this many standard deviations of the noise on the
+                         # difference of two period-mean currents (a Gaussian passes 6 sigma about
+                         # twice in a billion draws: textbook normal tail, no project source)
 
 
 def _clip(key, value):
@@ -108,6 +111,19 @@ def perturbation_floor(scenario, z_mag, i_min):
     dac_lsb = sup.dac_full_scale_v / (1 << sup.dac_bits)
     converters = max(V_FLOOR_LSB * v_lsb, DAC_FLOOR_LSB * dac_lsb)
     return max(converters, min(FLOOR_LSB * i_lsb * z_mag, LIGHT_LOAD_SHARE * i_min * z_mag))
+
+
+def step_noise_floor_a(scenario, period_samples):
+    """Load-step detector floor (A) above the current ADC's noise: STEP_NOISE_SIGMAS standard
+    deviations of the difference of two period-mean currents, each the mean of
+    ``period_samples`` samples with the ADC's noise (noise_lsb_rms) and its quantisation
+    (1/12 LSB squared, the uniform rounding error's variance). Below it the detector would flag
+    ADC noise as load steps in every window, and before the first valid window (the swing share
+    is zero then) no window would ever be valid."""
+    sen = scenario.sensing
+    i_lsb = sen.i_full_scale_a / (1 << sen.adc_bits)
+    sigma = math.sqrt(sen.noise_lsb_rms ** 2 + 1.0 / 12.0) * i_lsb * math.sqrt(2.0 / period_samples)
+    return STEP_NOISE_SIGMAS * sigma
 
 
 def inductive_limit_hz(scenario, r_min):
@@ -221,6 +237,7 @@ def recommend(scenario):
         "esr_allowance_ohm": _clip("esr_allowance_ohm", le.esr_ohm),
         "r_step_max_ohm": _clip("r_step_max_ohm", max(0.25 * (r_max + le.esr_ohm), 0.01)),
         "swing_min_a": _clip("swing_min_a", FLOOR_LSB / 4 * i_lsb),
+        "step_min_a": _clip("step_min_a", max(base.step_min_a, step_noise_floor_a(scenario, n))),
         "fault_windows": 6,
     }
     headroom = max(0.0, scenario.supply.max_v - scenario.supply.target_v)

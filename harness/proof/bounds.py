@@ -151,6 +151,38 @@ def bare_load_v(cfg, pert_v, r_cable_ohm, i_a):
     return cfg.target_v + float(clipped.mean()) - r_cable_ohm * i_a
 
 
+def runs_away_without_capacitor(scenario):
+    """True where the plant has no stable operating point once the load capacitor is open: a
+    constant-power load draws i = P / v, an incremental resistance of -v**2 / P, and behind a
+    cable with inductance L the series loop L di/dt = -(R - v**2 / P) i grows when v**2 / P at
+    target exceeds R (the first-order circuit's own pole, no project source). No supply can hold
+    such a load; with the capacitor open the proof checks only that the correction is forced to
+    zero, not the load voltage or the recovery (the plant's state has run off to infinity)."""
+    ld = scenario.load
+    if ld.kind != "constant_power" or scenario.cable.inductance_h <= 0:
+        return False
+    p_max = max([ld.value] + [v for _, v in ld.steps])
+    return p_max > 0 and scenario.supply.target_v ** 2 / p_max > scenario.cable.resistance_ohm
+
+
+def start_kick_v(scenario):
+    """Open finding D11 (harness/proof/PROOFS.md): how much more correction a constant-power load
+    asks for at its uncompensated steady voltage V_u than at target, R * P * (1/V_u - 1/target), V.
+
+    The first periods of the correction track the drop at the sagged voltage, where the load
+    draws more; where this excess is above OVERSHOOT_REL of target the start can overshoot the
+    margin. V_u is the upper root of V = target - R * P / V (quadratic formula). 0 for other loads
+    or where no operating point exists."""
+    ld, t, r = scenario.load, scenario.supply.target_v, scenario.cable.resistance_ohm
+    if ld.kind != "constant_power" or ld.value <= 0:
+        return 0.0
+    disc = t * t - 4.0 * r * ld.value
+    if disc <= 0:
+        return 0.0
+    v_u = 0.5 * (t + math.sqrt(disc))
+    return r * ld.value * (1.0 / v_u - 1.0 / t)
+
+
 def r_lsb_ohm(cfg):
     """One estimate LSB, ohm, for AlgoConfig ``cfg``."""
     return cfg.v_full_scale_v / cfg.i_full_scale_a / (1 << cfg.r_frac_bits)
