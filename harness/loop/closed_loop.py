@@ -35,6 +35,9 @@ class Run:
     r_cable_ohm: np.ndarray   # true loop resistance at the end of the run, (B,)
     backend: str
     compensation: str
+    #: Per scenario, what the report shades (harness.loop.spans.shading's dict) when the
+    #: channels are a decimated copy (harness.loop.decimate); None: found from the channels.
+    shading: list = None
 
 
 def _units(compensator, cfgs, fixed_point):
