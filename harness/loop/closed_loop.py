@@ -23,6 +23,9 @@ CODE_CHANNELS = ("adc_v_code", "adc_i_code", "command_code")
 #: The algorithm's window counter and last window's outcome (algo.state STATUS_*), recorded by
 #: default for linedrop's algorithm (the baselines have no windows): metrics counts outcomes.
 OUTCOME_CHANNELS = ("windows", "status", "kp_off")
+#: The progress bar's settings (tqdm): on stderr when it is a terminal; with the run's length
+#: known, tqdm shows the samples done, the time elapsed and left, and the rate.
+PROGRESS = {"unit": "sample", "unit_scale": True, "leave": False, "disable": None, "mininterval": 0.5}
 
 
 @dataclass
@@ -190,8 +193,7 @@ def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=
     samples = drive(rig, comp.step, comp.field("cmd"), n_t, v_at_load=compensation == "sense")
     if progress:
         from tqdm import tqdm
-        samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
-                       leave=False, disable=None, mininterval=0.5)
+        samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", **PROGRESS)
     plain = [n for n in channels if n not in ("r_estimate_ohm", "correction_v") + OUTCOME_CHANNELS]
     outcome = {name: rec[name] for name in channels if name in OUTCOME_CHANNELS}
     rows = {name: rec[name] for name in plain}
