@@ -24,30 +24,12 @@ from harness.loop.decimate import Decimated
 from harness.loop.metrics import SETTLE_BAND, TAIL, Accumulator, ExactSum, last_event_s, metrics
 from harness.loop.spans import shading
 from harness.scenario.read import DEMO, load_scenario
+from test_simulate_cli import SHORT
 
-#: A plant that hits its current limit after the load step, with a cable fault and rejected windows.
-LIMITED = """
-[supply]
-target_v = 12.0
-max_v = 15.0
-current_limit_a = 1.6
-[cable]
-resistance_ohm = 1.0
-[load_end]
-capacitance_f = 4.7e-3
-esr_ohm = 0.02
-[load]
-kind = "constant_current"
-current_a = 1.0
-steps = [[0.15, 1.5]]
-[run]
-duration_s = 0.5
-seed = 5
-[[fault]]
-kind = "cable_open"
-at_s = 0.3
-until_s = 0.4
-"""
+#: test_simulate_cli's short plant with a current limit it hits after the load step, a cable
+#: fault, and windows the algorithm rejects.
+LIMITED = (SHORT.replace("max_v = 15.0", "max_v = 15.0\ncurrent_limit_a = 1.6").replace("duration_s = 0.3", "duration_s = 0.5")
+           + '[[fault]]\nkind = "cable_open"\nat_s = 0.3\nuntil_s = 0.4\n')
 #: Chunk size forced in the tests: prime, so chunks cut windows, buckets and spans anywhere.
 CHUNK = 997
 
