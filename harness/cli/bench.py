@@ -23,7 +23,8 @@ def add_parser(sub):
     p.add_argument("--scenarios", nargs="+", metavar="FILE.toml",
                    help="with --regulation: scenario files (default: the shipped scenarios)")
     p.add_argument("--backend", choices=("model", "c"), default="c",
-                   help="with --regulation: linedrop's implementation (default: c, bit-exact with the model)")
+                   help="with --regulation or --memory: linedrop's implementation (default: c, bit-exact "
+                        "with the model)")
     p.add_argument("--windows", type=int, default=32,
                    help="with --regulation: measurement windows from the start to the load step; the run "
                         "lasts twice that, or the scenario's own duration if longer (default 32)")
@@ -31,6 +32,11 @@ def add_parser(sub):
     p.add_argument("--firmware", action="store_true",
                    help="instead, the firmware cost on Cortex-M4 and M0+: instructions per "
                         "ld_step (emulated), code, state and stack bytes (needs arm-none-eabi-gcc)")
+    p.add_argument("--memory", action="store_true",
+                   help="instead, the peak memory (RSS) of simulating the demo for each of --durations, "
+                        "streamed in chunks and held whole, side by side (each run in a fresh process)")
+    p.add_argument("--durations", nargs="+", type=float, default=[10.0, 100.0], metavar="S",
+                   help="with --memory: run lengths in seconds (default 10 100)")
     p.set_defaults(func=run)
 
 
@@ -88,6 +94,57 @@ def measure(n=1024):
     return out
 
 
+def memory_probe(duration_s, mode, backend):
+    """Print, as one JSON line, the peak RSS (MiB) of simulating the demo for ``duration_s``.
+
+    ``mode`` "streamed" runs it as simulate does a long run (chunks, accumulated metrics, a
+    decimated copy for the plots), "whole" as it does a short one (every sample held). Run it
+    in a fresh process: the peak is the process's own, from resource.getrusage.
+    """
+    import resource
+    from dataclasses import replace
+
+    from harness.cli.simulate import STREAM_CHUNK, _run_one
+    from harness.scenario.read import DEMO, load_scenario
+    sc = load_scenario(DEMO)
+    sc = replace(sc, run=replace(sc.run, duration_s=duration_s))
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    _run_one(sc, backend, "linedrop", False, STREAM_CHUNK if mode == "streamed" else None)
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss    # KiB on Linux
+    print(json.dumps({"samples": int(round(duration_s * sc.sensing.sample_rate_hz)),
+                      "before_mib": before / 1024, "peak_mib": peak / 1024}))
+
+
+def _memory(args):
+    import subprocess
+    import sys
+
+    from harness.errors import InputError
+    bad = [d for d in args.durations if not 0 < d <= 3600]
+    if bad:
+        raise InputError(f"--durations {bad[0]:g}: must be in (0, 3600] s ([run] duration_s's range)")
+    rows = []
+    for d in args.durations:
+        row = {"duration_s": d}
+        for mode in ("streamed", "whole"):
+            code = f"from harness.cli.bench import memory_probe; memory_probe({d!r}, {mode!r}, {args.backend!r})"
+            done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+            fig = json.loads(done.stdout.strip().splitlines()[-1])
+            row.update({"samples": fig["samples"], f"{mode}_start_mib": fig["before_mib"],
+                        f"{mode}_peak_mib": fig["peak_mib"]})
+        rows.append(row)
+    if args.json:
+        print(json.dumps(rows))
+        return 0
+    print("peak resident memory of simulating the demo, MiB (each run in its own process; "
+          "'start' is the streamed run's, after the imports)")
+    print(f"{'duration (s)':>12s} {'samples':>10s} {'start':>8s} {'streamed':>9s} {'held whole':>11s}")
+    for r in rows:
+        print(f"{r['duration_s']:12g} {r['samples']:10d} {r['streamed_start_mib']:8.1f} "
+              f"{r['streamed_peak_mib']:9.1f} {r['whole_peak_mib']:11.1f}")
+    return 0
+
+
 def _regulation(args):
     import sys
     from pathlib import Path
@@ -119,6 +176,8 @@ def _regulation(args):
 def run(args):
     if args.regulation:
         return _regulation(args)
+    if args.memory:
+        return _memory(args)
     if args.firmware:
         from c_ref.cortexm.build import toolchain_missing
         reason = toolchain_missing()

@@ -1,4 +1,5 @@
 """``linedrop simulate``: run a scenario in closed loop, print metrics, write a report and waveforms."""
+import contextlib
 import csv
 import json
 import os
@@ -8,13 +9,22 @@ from harness.cli.version import tool_version
 from harness.design.settings import given_table, with_settings
 from harness.loop.backends import BACKENDS
 from harness.loop.cautions import voltage_cautions
-from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, simulate
-from harness.loop.metrics import metrics
+from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, sample_times, simulate, stream
+from harness.loop.decimate import Decimated
+from harness.loop.metrics import Accumulator, metrics
 from harness.loop.report_text import fault_sentence
 from harness.scenario.read import DEMO, load_scenario
 
 #: Runs with more scenario-samples than this show a progress bar.
 PROGRESS_SAMPLES = 50_000
+#: Runs of more samples than this stream: simulated STREAM_CHUNK samples at a time, the metrics
+#: accumulated, the waveform rows written and the plots given a decimated copy chunk by chunk,
+#: so memory does not grow with the run's length.
+STREAM_SAMPLES = 262_144
+#: Samples per chunk of a streamed run (about 10 MB of channels).
+STREAM_CHUNK = 262_144
+#: The waveform CSV's header.
+WAVEFORM_HEADER = ["t_s"] + list(CHANNELS)
 #: Warn when the steady load error exceeds this share of target.
 WARN_ERROR_SHARE = 0.05
 #: Warn when more than this share of the run's windows gave no valid estimate.
@@ -40,13 +50,47 @@ def add_parser(sub):
     p.set_defaults(func=run)
 
 
+def _waveform_rows(writer, t_s, channels):
+    cols = [channels[c][:, 0] for c in CHANNELS]
+    for k, t in enumerate(t_s):
+        writer.writerow([f"{t:.7f}"] + [f"{c[k]:.6g}" for c in cols])
+
+
 def _write_waveform(path, run):
     with atomic_write(path, newline="") as f:
         w = csv.writer(f)
-        w.writerow(["t_s"] + list(CHANNELS))
-        cols = [run.channels[c][:, 0] for c in CHANNELS]
-        for k, t in enumerate(run.t_s):
-            w.writerow([f"{t:.7f}"] + [f"{c[k]:.6g}" for c in cols])
+        w.writerow(WAVEFORM_HEADER)
+        _waveform_rows(w, run.t_s, run.channels)
+
+
+def run_streamed(sc, backend, compensation, progress=False, chunk=STREAM_CHUNK, waveform=None):
+    """Run one scenario in chunks of ``chunk`` samples, holding none of them past its chunk.
+
+    Returns (a Run with a decimated copy of the plotted channels and the whole run's shading,
+    the metrics, equal to those of the whole run held in memory). ``waveform``, a csv.writer,
+    gets every sample's row as it comes.
+    """
+    fs = sc.sensing.sample_rate_hz
+    n_t = int(round(sc.run.duration_s * fs))
+    acc = Accumulator(sc, float(sample_times(n_t - 1, 1, fs)[0]))
+    dec = Decimated(sc, n_t, fs)
+
+    def sink(k0, t_s, channels):
+        acc.add(t_s, channels)
+        dec(k0, t_s, channels)
+        if waveform is not None:
+            _waveform_rows(waveform, t_s, channels)
+
+    header = stream([sc], sink, backend, compensation, progress=progress, chunk_samples=chunk)
+    return dec.run(header), acc.result(header.r_cable_ohm[0])
+
+
+def _run_one(sc, backend, compensation, progress, chunk, waveform=None):
+    """(Run, metrics) of one compensation: held whole (``chunk`` None) or streamed."""
+    if chunk is None:
+        run = simulate([sc], backend, compensation, progress=progress)
+        return run, metrics(run)
+    return run_streamed(sc, backend, compensation, progress, chunk, waveform)
 
 
 def _warnings(sc, m):
@@ -100,22 +144,26 @@ def run(args):
     sc, settings = with_settings(as_written, args.algorithm)
     samples = sc.run.duration_s * sc.sensing.sample_rate_hz
     progress = samples > PROGRESS_SAMPLES and not args.json
-    main = simulate([sc], args.backend, args.compensation, progress=progress)
-    m = metrics(main)
-    runs, all_m = {args.compensation: main}, {args.compensation: m}
-    if args.out:
-        for comp in COMPENSATIONS:
-            if comp != args.compensation:
-                runs[comp] = simulate([sc], args.backend, comp, progress=progress)
-                all_m[comp] = metrics(runs[comp])
-        from harness.loop.report import REPORT_FILES, write_report
-        what_ran = {"version": tool_version(), "as_written": as_written, "line": settings,
-                    "table_source": _table_source(as_written, args.algorithm),
-                    "given": set(given_table(as_written, args.algorithm))}
-        with atomic_folder(args.out, REPORT_FILES) as folder:
-            write_report(folder, runs, all_m, settings=what_ran)
-    if args.waveform:
-        _write_waveform(args.waveform, main)
+    chunk = STREAM_CHUNK if samples > STREAM_SAMPLES else None
+    with contextlib.ExitStack() as outputs:
+        waveform = None
+        if args.waveform and chunk:     # rows go to the temporary file as they come
+            waveform = csv.writer(outputs.enter_context(atomic_write(args.waveform, newline="")))
+            waveform.writerow(WAVEFORM_HEADER)
+        main, m = _run_one(sc, args.backend, args.compensation, progress, chunk, waveform)
+        runs, all_m = {args.compensation: main}, {args.compensation: m}
+        if args.out:
+            for comp in COMPENSATIONS:
+                if comp != args.compensation:
+                    runs[comp], all_m[comp] = _run_one(sc, args.backend, comp, progress, chunk)
+            from harness.loop.report import REPORT_FILES, write_report
+            what_ran = {"version": tool_version(), "as_written": as_written, "line": settings,
+                        "table_source": _table_source(as_written, args.algorithm),
+                        "given": set(given_table(as_written, args.algorithm))}
+            with atomic_folder(args.out, REPORT_FILES) as folder:
+                write_report(folder, runs, all_m, settings=what_ran)
+        if args.waveform and not chunk:
+            _write_waveform(args.waveform, main)
     warnings = _warnings(sc, m)
     warn = voltage_cautions(m["max_load_v"], m["max_supply_v"])
     if args.json:

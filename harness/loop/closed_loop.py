@@ -1,6 +1,7 @@
 """The closed loop: plant, ADC, algorithm (or a baseline) and command DAC, B scenarios at once.
 
 :func:`drive` is the only place the plant is stepped; :func:`simulate` (recorded runs),
+:func:`stream` (the same runs handed on in chunks, for runs too long to hold),
 :class:`harness.loop.lockstep.LockstepLoop` (implementations side by side) and the word-length
 tuner (:func:`harness.tune.evaluate.evaluate`) are modes of it.
 """
@@ -22,6 +23,9 @@ CODE_CHANNELS = ("adc_v_code", "adc_i_code", "command_code")
 #: The algorithm's window counter and last window's outcome (algo.state STATUS_*), recorded by
 #: default for linedrop's algorithm (the baselines have no windows): metrics counts outcomes.
 OUTCOME_CHANNELS = ("windows", "status", "kp_off")
+#: The progress bar's settings (tqdm): on stderr when it is a terminal; with the run's length
+#: known, tqdm shows the samples done, the time elapsed and left, and the rate.
+PROGRESS = {"unit": "sample", "unit_scale": True, "leave": False, "disable": None, "mininterval": 0.5}
 
 
 @dataclass
@@ -34,6 +38,9 @@ class Run:
     r_cable_ohm: np.ndarray   # true loop resistance at the end of the run, (B,)
     backend: str
     compensation: str
+    #: Per scenario, what the report shades (harness.loop.spans.shading's dict) when the
+    #: channels are a decimated copy (harness.loop.decimate); None: found from the channels.
+    shading: list = None
 
 
 def _units(compensator, cfgs, fixed_point):
@@ -138,6 +145,38 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
         Channels to record: any of CHANNELS and CODE_CHANNELS, and OUTCOME_CHANNELS (kept
         only for linedrop's algorithm). By default CHANNELS and OUTCOME_CHANNELS.
     """
+    kept = {}
+
+    def keep(k0, t_s, rec):
+        kept.update(t_s=t_s, channels=rec)
+
+    run = stream(scenarios, keep, backend, compensation, overrides, progress, channels)
+    run.t_s, run.channels = kept["t_s"], kept["channels"]
+    return run
+
+
+def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=None, progress=False,
+           channels=CHANNELS + OUTCOME_CHANNELS, chunk_samples=None):
+    """Run scenarios in closed loop as :func:`simulate` does, handing the samples on in chunks.
+
+    Memory stays bounded by ``chunk_samples`` whatever the run's length; the samples are the
+    same, bit for bit, whatever the chunk size.
+
+    Parameters
+    ----------
+    sink : callable
+        ``sink(k0, t_s, channels)`` after every ``chunk_samples`` samples and at the end: the
+        index of the chunk's first sample, its times (s, (n,)) and ``{name: (n, B) float32}``.
+        The arrays are reused for the next chunk, so a sink copies what it keeps.
+    chunk_samples : int, optional
+        Samples per chunk (default: the whole run in one chunk).
+    Other parameters as :func:`simulate`.
+
+    Returns
+    -------
+    Run
+        Everything but the samples: ``t_s`` and ``channels`` are left empty.
+    """
     durations = {s.run.duration_s for s in scenarios}
     if len(durations) != 1:
         raise ValueError(f"scenarios in one batch must share run.duration_s, got {sorted(durations)}")
@@ -146,21 +185,22 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     comp, fixed_point = make_compensator(compensation, backend, cfgs, scenarios)
     r_unit, corr_unit = _units(comp, cfgs, fixed_point)
     n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
+    chunk = n_t if chunk_samples is None else max(1, min(int(chunk_samples), n_t))
     if compensation != "linedrop":
         channels = [n for n in channels if n not in OUTCOME_CHANNELS]
-    rec = {name: np.empty((n_t, len(scenarios)), dtype=np.float32) for name in channels}
+    rec = {name: np.empty((chunk, len(scenarios)), dtype=np.float32) for name in channels}
     obs = rig.reset()
     samples = drive(rig, comp.step, comp.field("cmd"), n_t, v_at_load=compensation == "sense")
     if progress:
         from tqdm import tqdm
-        samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", unit="sample", unit_scale=True,
-                       leave=False, disable=None, mininterval=0.5)
+        samples = tqdm(samples, total=n_t, desc=f"simulate ({compensation})", **PROGRESS)
     plain = [n for n in channels if n not in ("r_estimate_ohm", "correction_v") + OUTCOME_CHANNELS]
     outcome = {name: rec[name] for name in channels if name in OUTCOME_CHANNELS}
     rows = {name: rec[name] for name in plain}
     r_rec = rec.get("r_estimate_ohm")
     c_rec = rec.get("correction_v")
-    for t, command_v, obs, v_code, i_code, cmd in samples:
+    for k, command_v, obs, v_code, i_code, cmd in samples:
+        t = k % chunk
         for name, dst in rows.items():
             dst[t] = _value(name, obs, command_v, v_code, i_code, cmd)
         if r_rec is not None:
@@ -169,8 +209,18 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
             np.multiply(comp.field("corr"), corr_unit, out=c_rec[t], casting="unsafe")
         for name, dst in outcome.items():
             dst[t] = comp.field(name)
+        if t == chunk - 1 or k == n_t - 1:
+            k0 = k - t
+            sink(k0, sample_times(k0, t + 1, cfgs[0].sample_rate_hz),
+                 {name: a if t == chunk - 1 else a[:t + 1] for name, a in rec.items()})
+    if n_t == 0:
+        sink(0, sample_times(0, 0, cfgs[0].sample_rate_hz), {name: a[:0] for name, a in rec.items()})
     rig.adc.close()
-    t_s = (np.arange(n_t) + 1) / cfgs[0].sample_rate_hz
-    return Run(t_s=t_s, channels=rec, scenarios=list(scenarios), cfgs=cfgs,
+    return Run(t_s=np.empty(0), channels={}, scenarios=list(scenarios), cfgs=cfgs,
                r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend=backend,
                compensation=compensation)
+
+
+def sample_times(k0, n, sample_rate_hz):
+    """Times (s) of samples ``k0 .. k0 + n - 1``: sample k is recorded at the end of its interval."""
+    return (np.arange(k0, k0 + n) + 1) / sample_rate_hz

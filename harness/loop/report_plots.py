@@ -58,9 +58,12 @@ def _save(fig, path):
 
 
 def plot_run(run, path, b=0):
-    """Five stacked panels of one scenario over time, shaded as the module says."""
+    """Five stacked panels of one scenario over time, shaded as the module says.
+
+    A decimated run (harness.loop.decimate) brings its shading, found from every sample.
+    """
     sc = run.scenarios[b]
-    shade = shading(run, b)
+    shade = shading(run, b) if run.shading is None else run.shading[b]
     fig, axes = plt.subplots(len(PANELS), 1, figsize=(10, 12), sharex=True)
     for ax, (name, label) in zip(axes, PANELS):
         ax.plot(run.t_s, run.channels[name][:, b], lw=0.8, color="tab:blue")

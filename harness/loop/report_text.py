@@ -149,7 +149,8 @@ def events(run, b=0):
     limit = sc.supply.current_limit_a
     if limit is None:
         return out + " The supply has no current limit."
-    spans = current_limit_spans(run.t_s, run.channels["i_supply_a"][:, b], limit)
+    spans = (current_limit_spans(run.t_s, run.channels["i_supply_a"][:, b], limit) if run.shading is None
+             else run.shading[b]["current_limit"])
     who = f" With {run.compensation}, the supply current"
     if not spans:
         return out + f"{who} never reached its {plain(limit)} A limit."
