@@ -12,8 +12,15 @@ from harness.cli.version import tool_version
 COMMANDS = [simulate, replay, bench, design, tune, vectors, check_port]
 
 
+class Parser(argparse.ArgumentParser):
+    """argparse, with a usage error in one line (the option, the value and what is allowed)."""
+
+    def error(self, message):
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
 def build_parser():
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="linedrop",
         description="Sense-wire-free line-drop compensation: model, C reference and harness.")
     parser.add_argument("--version", action="version", version=tool_version())
