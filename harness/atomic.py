@@ -43,6 +43,8 @@ def atomic_write(path, mode="w", **kw):
 
 
 def _writable_folder(folder, option, path):
+    if os.path.exists(folder) and not os.path.isdir(folder):
+        raise InputError(f"{option} {path}: {folder} is a file, not a folder")
     if not os.path.isdir(folder):
         raise InputError(f"{option} {path}: folder {folder} does not exist")
     if not os.access(folder, os.W_OK | os.X_OK):
@@ -112,24 +114,30 @@ def check_folder_target(path, option, ours=None):
     if not os.path.isdir(parent):
         raise InputError(f"{option} {path}: {parent} is not a folder")
     _writable_folder(parent, option, path)
+    _probe_folder(parent, option, path)
+
+
+def _probe_folder(parent, option, path):
+    """A folder can be made in ``parent``, tried for real (access bits say nothing on a read-only
+    mount, in /proc, or to root)."""
+    try:
+        os.rmdir(tempfile.mkdtemp(dir=parent, prefix=".tmp-probe-"))
+    except OSError as exc:
+        raise InputError(f"{option} {path}: cannot create a folder in {parent} "
+                         f"({exc.strerror or type(exc).__name__})") from None
 
 
 def check_swap_target(path, option, ours):
     """Before a run: as check_folder_target with ``ours``, and a folder can be made beside ``path``.
 
     atomic_folder fills its new folder in ``path``'s parent and renames there, so that parent
-    must take a new entry; this is tried for real (access bits say nothing on a read-only
-    mount, or to root).
+    must take a new entry; this is tried for real.
     """
     check_folder_target(path, option, ours)
     parent = os.path.dirname(os.path.abspath(path))
     while not os.path.isdir(parent):
         parent = os.path.dirname(parent)
-    try:
-        os.rmdir(tempfile.mkdtemp(dir=parent, prefix=".tmp-probe-"))
-    except OSError as exc:
-        raise InputError(f"{option} {path}: cannot create a folder in {parent} "
-                         f"({exc.strerror or type(exc).__name__})") from None
+    _probe_folder(parent, option, path)
 
 
 @contextlib.contextmanager

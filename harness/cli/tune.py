@@ -33,7 +33,7 @@ import os
 
 import sys
 
-from harness.atomic import check_swap_target
+from harness.atomic import check_folder_target, check_swap_target
 from harness.cli.values import integer, number
 from harness.design.calculator import GM_TARGET
 from harness.errors import InputError
@@ -96,6 +96,11 @@ def parse(args):
         if unknown or not knobs:
             what = f"unknown {', '.join(unknown)}" if unknown else "no knob given"
             raise InputError(f"--knobs: {what}; allowed: {', '.join(KNOBS)}")
+    names = [os.path.basename(path) for path in args.scenarios]
+    twice = [n for k, n in enumerate(names) if n in names[:k]]
+    if twice:
+        raise InputError(f"SCENARIO.toml: two files are named {twice[0]}; give each scenario once, "
+                         f"under its own file name")
     scenarios = [load_scenario(path) for path in args.scenarios]
     scenarios, notes = run_lengths(scenarios, spec["max_settle_ms"], args.quick, args.duration_s)
     return scenarios, spec, knobs, notes
@@ -110,6 +115,8 @@ def _json_value(v):
 def run(args):
     scenarios, spec, knobs, notes = parse(args)
     check_swap_target(args.out, "--out", OUT_FILES)
+    if args.cache:
+        check_folder_target(args.cache, "--cache")
     cache = Cache(os.path.join(args.cache or args.out, CACHE_FILE))
     if cache.dropped:
         print(f"linedrop tune: {cache.path}: dropped {cache.dropped} line(s) cut short by an interrupted "
