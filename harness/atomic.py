@@ -1,6 +1,7 @@
 """Atomic output files: write to a temporary file beside the target, then rename over it.
 
-``check_file_target`` and ``check_folder_target`` check an output path before a long run;
+``check_file_target`` and ``check_folder_target`` check an output path before a long run
+(``check_not_input``: an output is none of the run's input files);
 ``check_swap_target`` also tries the folder beside it that ``atomic_folder`` fills. ``finished``
 names the outputs swapped in so far, so a message after a failure can say what it left.
 """
@@ -42,17 +43,48 @@ def atomic_write(path, mode="w", **kw):
 
 
 def _writable_folder(folder, option, path):
+    if os.path.exists(folder) and not os.path.isdir(folder):
+        raise InputError(f"{option} {path}: {folder} is a file, not a folder")
     if not os.path.isdir(folder):
         raise InputError(f"{option} {path}: folder {folder} does not exist")
     if not os.access(folder, os.W_OK | os.X_OK):
         raise InputError(f"{option} {path}: folder {folder} is not writable")
 
 
-def check_file_target(path, option):
-    """Before a run: ``path`` can be written as a file (one-line InputError naming ``option``)."""
+def check_file_target(path, option, inputs=None):
+    """Before a run: ``path`` can be written as a file (one-line InputError naming ``option``).
+
+    The temporary file atomic_write fills beside ``path`` is tried for real (access bits say
+    nothing on a read-only mount, in /proc, or to root). ``inputs`` (``{option: path}``) are
+    the files the run reads: ``path`` may be none of them.
+    """
     if os.path.isdir(path):
         raise InputError(f"{option} {path}: is a folder; give a file name")
-    _writable_folder(os.path.dirname(os.path.abspath(path)), option, path)
+    check_not_input(path, option, inputs)
+    folder = os.path.dirname(os.path.abspath(path))
+    _writable_folder(folder, option, path)
+    try:
+        fd, probe = tempfile.mkstemp(dir=folder, prefix=".tmp-probe-")
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise InputError(f"{option} {path}: cannot create a file in {folder} "
+                         f"({exc.strerror or type(exc).__name__})") from None
+
+
+def _same(a, b):
+    try:
+        return os.path.samefile(a, b)
+    except OSError:
+        return os.path.realpath(a) == os.path.realpath(b)
+
+
+def check_not_input(path, option, inputs):
+    """One-line InputError if output ``path`` names one of ``inputs`` (``{option: path}``; None
+    entries skipped): writing it would replace a file the run reads."""
+    for other, given in (inputs or {}).items():
+        if given is not None and _same(path, given):
+            raise InputError(f"{option} {path}: is the input given as {other}; give another file name")
 
 
 def _refuse_foreign(path, ours, option):
@@ -82,24 +114,30 @@ def check_folder_target(path, option, ours=None):
     if not os.path.isdir(parent):
         raise InputError(f"{option} {path}: {parent} is not a folder")
     _writable_folder(parent, option, path)
+    _probe_folder(parent, option, path)
+
+
+def _probe_folder(parent, option, path):
+    """A folder can be made in ``parent``, tried for real (access bits say nothing on a read-only
+    mount, in /proc, or to root)."""
+    try:
+        os.rmdir(tempfile.mkdtemp(dir=parent, prefix=".tmp-probe-"))
+    except OSError as exc:
+        raise InputError(f"{option} {path}: cannot create a folder in {parent} "
+                         f"({exc.strerror or type(exc).__name__})") from None
 
 
 def check_swap_target(path, option, ours):
     """Before a run: as check_folder_target with ``ours``, and a folder can be made beside ``path``.
 
     atomic_folder fills its new folder in ``path``'s parent and renames there, so that parent
-    must take a new entry; this is tried for real (access bits say nothing on a read-only
-    mount, or to root).
+    must take a new entry; this is tried for real.
     """
     check_folder_target(path, option, ours)
     parent = os.path.dirname(os.path.abspath(path))
     while not os.path.isdir(parent):
         parent = os.path.dirname(parent)
-    try:
-        os.rmdir(tempfile.mkdtemp(dir=parent, prefix=".tmp-probe-"))
-    except OSError as exc:
-        raise InputError(f"{option} {path}: cannot create a folder in {parent} "
-                         f"({exc.strerror or type(exc).__name__})") from None
+    _probe_folder(parent, option, path)
 
 
 @contextlib.contextmanager

@@ -114,3 +114,24 @@ def test_an_interrupted_report_leaves_the_previous_one_exactly_as_it_was(capsys,
     assert main(["simulate", demo, "--out", str(out)]) == 130
     assert {p: (out / p).read_bytes() for p in os.listdir(out)} == before
     assert sorted(os.listdir(tmp_path)) == ["demo_short.toml", "report"]      # no temporary folder left
+
+
+def test_ctrl_c_while_the_subcommands_load_is_one_line_and_status_130(capsys, monkeypatch):
+    def loading(*args):
+        raise KeyboardInterrupt          # as if it came during `import numpy`
+    monkeypatch.setattr(sys.modules["harness.cli.main"], "commands", loading)
+    assert main(["design", DEMO]) == 130
+    assert capsys.readouterr().err == "linedrop: interrupted; no output was replaced\n"
+
+
+def test_the_command_module_loads_no_subcommand_before_main_runs():
+    code = ("import sys, harness.cli.main; "
+            "print(sorted(m for m in sys.modules if m.startswith(('numpy', 'harness.cli.'))))")
+    res = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120)
+    assert res.stdout.strip() == "['harness.cli.main']", res.stdout + res.stderr
+
+
+def test_a_usage_error_is_one_line_naming_the_option_and_the_range(capsys):
+    assert main(["bench", "--instances", "lots"]) == 2
+    assert capsys.readouterr().err == ("linedrop bench: error: argument --instances: must be an integer in "
+                                       "[1, 4096], got 'lots' (see linedrop bench --help)\n")

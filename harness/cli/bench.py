@@ -8,6 +8,15 @@ from algo import step as scalar
 from algo.batch import BatchModel
 from algo.config import AlgoConfig
 from algo.params import derive
+from harness.cli.values import integer
+from harness.errors import InputError
+
+#: Largest --instances: the closed-loop figure holds every instance's waveforms in memory.
+MAX_INSTANCES = 4096
+DEFAULT_INSTANCES = 1024
+DEFAULT_WINDOWS = 32
+#: Options that apply only with --regulation, and their defaults there.
+REGULATION_ONLY = {"scenarios": None, "backend": "c", "windows": DEFAULT_WINDOWS, "out": None}
 
 
 def add_parser(sub):
@@ -15,19 +24,21 @@ def add_parser(sub):
                        description="Measure throughput in one run, side by side. Figures vary "
                                    "with machine load; compare ratios, not absolutes.")
     p.add_argument("--json", action="store_true", help="print one JSON object")
-    p.add_argument("--instances", type=int, default=1024, help="batch size (default 1024)")
+    p.add_argument("--instances", type=integer(1, MAX_INSTANCES),
+                   help=f"batch size, 1 .. {MAX_INSTANCES} (default {DEFAULT_INSTANCES}; not with "
+                        f"--regulation or --firmware)")
     p.add_argument("--regulation", action="store_true",
                    help="instead, regulation over scenarios with design's own settings: steady "
                         "improvement, dip and settling after a load step, overshoot and convergence "
                         "of linedrop and every baseline, side by side (a table; --out adds a plot)")
     p.add_argument("--scenarios", nargs="+", metavar="FILE.toml",
                    help="with --regulation: scenario files (default: the shipped scenarios)")
-    p.add_argument("--backend", choices=("model", "c"), default="c",
+    p.add_argument("--backend", choices=("model", "c"),
                    help="with --regulation or --memory: linedrop's implementation (default: c, bit-exact "
                         "with the model)")
-    p.add_argument("--windows", type=int, default=32,
-                   help="with --regulation: measurement windows from the start to the load step; the run "
-                        "lasts twice that, or the scenario's own duration if longer (default 32)")
+    p.add_argument("--windows", type=integer(2, 1024),
+                   help="with --regulation: measurement windows from the start to the load step, 2 .. 1024; "
+                        f"the run lasts twice that, or the scenario's own duration if longer (default {DEFAULT_WINDOWS})")
     p.add_argument("--out", metavar="DIR", help="with --regulation: write regulation.json and regulation.png")
     p.add_argument("--firmware", action="store_true",
                    help="instead, the firmware cost on Cortex-M4 and M0+: instructions per "
@@ -149,14 +160,11 @@ def _regulation(args):
     import sys
     from pathlib import Path
 
-    from harness.atomic import check_folder_target
+    from harness.atomic import check_swap_target
     from harness.design import regulation, regulation_report
     from harness.scenario.read import DEMO, load_scenario
-    from harness.errors import InputError
-    if not 2 <= args.windows <= 1024:
-        raise InputError(f"--windows = {args.windows}: must be in [2, 1024]")
     if args.out:
-        check_folder_target(args.out, "--out", regulation_report.FILES)
+        check_swap_target(args.out, "--out", regulation_report.FILES)
     paths = args.scenarios or sorted(str(p) for p in Path(DEMO).parent.glob("*.toml"))
     scenarios = {Path(p).stem: load_scenario(p) for p in paths}
     if len(scenarios) < len(paths):
@@ -173,7 +181,30 @@ def _regulation(args):
     return 0
 
 
+def _check_options(args):
+    """One-line InputError for options that do not go together; fills in the defaults."""
+    if args.regulation and args.firmware:
+        raise InputError("--regulation and --firmware are two different benchmarks; give one of them")
+    if args.memory and (args.regulation or args.firmware):
+        raise InputError("--memory is a benchmark of its own; give one of --regulation, --firmware, --memory")
+    if not args.regulation:
+        given = [name for name in REGULATION_ONLY if getattr(args, name) is not None
+                 and not (name == "backend" and args.memory)]
+        if given:
+            raise InputError(f"--{given[0]} applies only with --regulation"
+                             + (" or --memory" if given[0] == "backend" else ""))
+    if args.instances is not None and (args.regulation or args.firmware or args.memory):
+        mode = "--regulation" if args.regulation else "--firmware" if args.firmware else "--memory"
+        raise InputError(f"--instances applies only to the throughput benchmark, not with {mode}")
+    for name, default in REGULATION_ONLY.items():
+        if getattr(args, name) is None:
+            setattr(args, name, default)
+    if args.instances is None:
+        args.instances = DEFAULT_INSTANCES
+
+
 def run(args):
+    _check_options(args)
     if args.regulation:
         return _regulation(args)
     if args.memory:
@@ -182,13 +213,9 @@ def run(args):
         from c_ref.cortexm.build import toolchain_missing
         reason = toolchain_missing()
         if reason:
-            from harness.errors import InputError
             raise InputError(f"--firmware: {reason}")
         from harness.port import firmware_cost
         return firmware_cost.main(["--json"] if args.json else [])
-    if args.instances < 1:
-        from harness.errors import InputError
-        raise InputError(f"--instances = {args.instances}: must be at least 1")
     figures = measure(args.instances)
     if args.json:
         print(json.dumps(figures))

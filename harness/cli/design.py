@@ -114,9 +114,11 @@ def report_text(rep):
 
 
 def run(args):
+    inputs = {"the scenario": args.scenario}
     for option, target in (("--algorithm-out", args.algorithm_out), ("--header", args.header)):
         if target:
-            check_file_target(target, option)
+            check_file_target(target, option, inputs)
+            inputs[option] = target
     sc = load_scenario(args.scenario)
     rep = design_report(sc)
     if args.algorithm_out:

@@ -1,24 +1,41 @@
-"""The ``linedrop`` command: a thin dispatcher over the harness's subcommands."""
+"""The ``linedrop`` command: a thin dispatcher over the harness's subcommands.
+
+Only the standard library is imported before ``main`` runs: the subcommands (numpy, the
+harness) are imported inside it, so a Ctrl-C while they load ends in one line too.
+"""
 import argparse
 import os
 import sys
 
-from algo.config import ConfigError
 from harness.atomic import finished
 from harness.errors import InputError
-from harness.cli import bench, check_port, design, replay, simulate, tune, vectors
-from harness.cli.version import tool_version
 
-COMMANDS = [simulate, replay, bench, design, tune, vectors, check_port]
+
+def commands():
+    """The subcommand modules, in the order ``--help`` lists them."""
+    from harness.cli import bench, check_port, design, replay, simulate, tune, vectors
+    return [simulate, replay, bench, design, tune, vectors, check_port]
+
+
+class UsageError(InputError):
+    """A command line argparse refused; ``main`` prints it as one line, exit status 2."""
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse, with a usage error in one line (the option, the value and what is allowed)."""
+
+    def error(self, message):
+        raise UsageError(f"{self.prog}: error: {message} (see {self.prog} --help)")
 
 
 def build_parser():
-    parser = argparse.ArgumentParser(
+    from harness.cli.version import tool_version
+    parser = Parser(
         prog="linedrop",
         description="Sense-wire-free line-drop compensation: model, C reference and harness.")
     parser.add_argument("--version", action="version", version=tool_version())
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    for mod in COMMANDS:
+    for mod in commands():
         mod.add_parser(sub)
     return parser
 
@@ -36,7 +53,17 @@ def _left(args, mark):
 def main(argv=None):
     """Entry point; returns the exit status (0 ok, 1 check failed or the run failed, 2 bad input,
     130 interrupted, 141 the reader of the output went away)."""
-    args = build_parser().parse_args(argv)
+    try:
+        parser = build_parser()
+        from algo.config import ConfigError
+    except KeyboardInterrupt:
+        print("linedrop: interrupted; no output was replaced", file=sys.stderr)
+        return 130
+    try:
+        args = parser.parse_args(argv)
+    except UsageError as exc:
+        print(exc, file=sys.stderr)
+        return 2
     mark = len(finished())
     try:
         return args.func(args) or 0

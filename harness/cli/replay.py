@@ -24,7 +24,7 @@ def add_parser(sub):
 
 
 def run(args):
-    check_file_target(args.out, "--out")
+    check_file_target(args.out, "--out", {"--in": args.inp, "--config": args.config})
     cfg = load_algo_config(args.config)
     adc_v, adc_i = read_adc_csv(args.inp, cfg.adc_bits)
     cmds, trace = replay(args.backend, cfg, adc_v, adc_i, with_state=args.state)

@@ -4,7 +4,7 @@ import csv
 import json
 import os
 
-from harness.atomic import atomic_folder, atomic_write, check_file_target, check_folder_target
+from harness.atomic import atomic_folder, atomic_write, check_file_target, check_swap_target
 from harness.cli.version import tool_version
 from harness.design.settings import given_table, with_settings
 from harness.loop.backends import BACKENDS
@@ -137,9 +137,9 @@ def run(args):
     path = args.scenario or DEMO
     if args.out:
         from harness.loop.report import REPORT_FILES
-        check_folder_target(args.out, "--out", REPORT_FILES)
+        check_swap_target(args.out, "--out", REPORT_FILES)
     if args.waveform:
-        check_file_target(args.waveform, "--waveform")
+        check_file_target(args.waveform, "--waveform", {"the scenario": path, "--algorithm": args.algorithm})
     as_written = load_scenario(path)
     sc, settings = with_settings(as_written, args.algorithm)
     samples = sc.run.duration_s * sc.sensing.sample_rate_hz

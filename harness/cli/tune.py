@@ -33,7 +33,8 @@ import os
 
 import sys
 
-from harness.atomic import check_swap_target
+from harness.atomic import check_folder_target, check_swap_target
+from harness.cli.values import integer, number
 from harness.design.calculator import GM_TARGET
 from harness.errors import InputError
 from harness.scenario.read import load_scenario
@@ -55,18 +56,21 @@ def add_parser(sub):
                                    "lengths and filter shifts greedily; report the cheapest "
                                    "configuration meeting the spec.")
     p.add_argument("scenarios", nargs="+", metavar="SCENARIO.toml", help="scenario files (all must pass)")
-    p.add_argument("--max-error-mv", type=float, default=100.0, help="largest load error, mV (default 100)")
-    p.add_argument("--max-settle-ms", type=float, default=300.0, help="longest settling time, ms (default 300)")
-    p.add_argument("--min-gain-margin", type=float, default=GM_TARGET,
+    p.add_argument("--max-error-mv", type=number(0.0, math.inf, "mV", lo_open=True), default=100.0,
+                   help="largest load error, mV (default 100)")
+    p.add_argument("--max-settle-ms", type=number(0.0, math.inf, "ms", lo_open=True), default=300.0,
+                   help="longest settling time, ms (default 300)")
+    p.add_argument("--min-gain-margin", default=GM_TARGET,
+                   type=number(1.0, math.inf, "", note=" (below 1 the small-signal loop is unstable)"),
                    help=f"smallest loop gain margin from the small-signal model, >= 1 (below 1 the "
                         f"loop is unstable; default {GM_TARGET})")
-    p.add_argument("--max-ideal-ratio", type=float, default=2.0,
+    p.add_argument("--max-ideal-ratio", type=number(0.0, math.inf, ""), default=2.0,
                    help="largest load error as a multiple of the float ideal's on the same run "
                         "(default 2; 0 turns the check off)")
     p.add_argument("--quick", action="store_true",
                    help="every second value in the sweep, and runs that end as soon as the checks allow "
                         "(every load step and fault kept)")
-    p.add_argument("--duration-s", type=float,
+    p.add_argument("--duration-s", type=number(0.0, 3600.0, "s", lo_open=True),
                    help=f"simulated time per run, s, taken as given (default: at least {DEFAULT_DURATION_S} "
                         f"and long enough to keep every load step and fault and the settling after them; "
                         f"capped at the scenario's run.duration_s)")
@@ -74,29 +78,17 @@ def add_parser(sub):
     p.add_argument("--out", metavar="DIR", default="tune-out", help="output folder (default tune-out)")
     p.add_argument("--cache", metavar="DIR", help="results cache folder (default: the output folder)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="run on this Dask distributed scheduler")
-    p.add_argument("--workers", type=int, default=2, help="local worker processes (default 2)")
+    p.add_argument("--workers", type=integer(1, 256), default=2, help="local worker processes (default 2)")
     p.add_argument("--json", action="store_true", help="print the recommendation as one JSON object")
     p.set_defaults(func=run)
 
 
-def _positive(name, value):
-    if not (math.isfinite(value) and value > 0):
-        raise InputError(f"--{name}: must be a positive number of {name.rsplit('-', 1)[-1]}, got {value:g}")
-    return value
-
-
 def parse(args):
-    """Checked (scenarios with their run lengths, spec, knobs, notes); one-line InputError on bad input."""
-    spec = {"max_error_mv": _positive("max-error-mv", args.max_error_mv),
-            "max_settle_ms": _positive("max-settle-ms", args.max_settle_ms),
+    """Checked (scenarios with their run lengths, spec, knobs, notes); one-line InputError on bad input.
+
+    The numbers are checked by their argparse types (harness.cli.values)."""
+    spec = {"max_error_mv": args.max_error_mv, "max_settle_ms": args.max_settle_ms,
             "min_gain_margin": args.min_gain_margin, "max_ideal_ratio": args.max_ideal_ratio}
-    if not math.isfinite(args.max_ideal_ratio) or args.max_ideal_ratio < 0:
-        raise InputError(f"--max-ideal-ratio: must be a number >= 0, got {args.max_ideal_ratio:g}")
-    if not math.isfinite(args.min_gain_margin) or args.min_gain_margin < 1:
-        raise InputError(f"--min-gain-margin: must be a number >= 1 (below 1 the small-signal loop is "
-                         f"unstable), got {args.min_gain_margin:g}")
-    if args.workers < 1:
-        raise InputError(f"--workers: must be at least 1, got {args.workers}")
     knobs = list(KNOBS)
     if args.knobs is not None:
         knobs = [k.strip() for k in args.knobs.split(",") if k.strip()]
@@ -104,8 +96,11 @@ def parse(args):
         if unknown or not knobs:
             what = f"unknown {', '.join(unknown)}" if unknown else "no knob given"
             raise InputError(f"--knobs: {what}; allowed: {', '.join(KNOBS)}")
-    if args.duration_s is not None and not (math.isfinite(args.duration_s) and args.duration_s > 0):
-        raise InputError(f"--duration-s: must be a positive number of seconds, got {args.duration_s:g}")
+    names = [os.path.basename(path) for path in args.scenarios]
+    twice = [n for k, n in enumerate(names) if n in names[:k]]
+    if twice:
+        raise InputError(f"SCENARIO.toml: two files are named {twice[0]}; give each scenario once, "
+                         f"under its own file name")
     scenarios = [load_scenario(path) for path in args.scenarios]
     scenarios, notes = run_lengths(scenarios, spec["max_settle_ms"], args.quick, args.duration_s)
     return scenarios, spec, knobs, notes
@@ -120,6 +115,8 @@ def _json_value(v):
 def run(args):
     scenarios, spec, knobs, notes = parse(args)
     check_swap_target(args.out, "--out", OUT_FILES)
+    if args.cache:
+        check_folder_target(args.cache, "--cache")
     cache = Cache(os.path.join(args.cache or args.out, CACHE_FILE))
     if cache.dropped:
         print(f"linedrop tune: {cache.path}: dropped {cache.dropped} line(s) cut short by an interrupted "

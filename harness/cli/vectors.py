@@ -3,8 +3,8 @@ import os
 
 from algo.params import derive
 from harness.atomic import check_swap_target
+from harness.cli.values import integer, number
 from harness.port import vectors
-from harness.errors import InputError
 from harness.scenario.read import DEMO, load_scenario
 from harness.port.vector_files import folder_plan, set_names, write_set
 
@@ -18,18 +18,13 @@ def add_parser(sub):
                    help="scenario file (default: the built-in demo, demo_mast.toml)")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder: filled beside the old one and swapped in whole (other "
                         "vector sets in it are kept)")
-    p.add_argument("--duration-s", type=float, metavar="S",
+    p.add_argument("--duration-s", type=number(0.0, 3600.0, "s", lo_open=True), metavar="S",
                    help="length of each closed-loop run, s (default: the scenario's run.duration_s)")
-    p.add_argument("--long-s", type=float, metavar="S",
+    p.add_argument("--long-s", type=number(0.0, 3600.0, "s", lo_open=True), metavar="S",
                    help=f"length of the long run, s (default: {vectors.LONG_WINDOWS} windows)")
-    p.add_argument("--seed", type=int, metavar="N",
+    p.add_argument("--seed", type=integer(0, 2**63 - 1), metavar="N",
                    help="generator seed for ADC noise and random codes (default: the scenario's run.seed)")
     p.set_defaults(func=run)
-
-
-def _positive(name, value):
-    if value is not None and not 0.0 < value <= 3600.0:
-        raise InputError(f"--{name} = {value:g}: must be in (0, 3600] s")
 
 
 def run(args):
@@ -37,10 +32,6 @@ def run(args):
     stem = os.path.splitext(os.path.basename(path))[0]
     kept, ours = folder_plan(args.out, set_names(stem, vectors.vector_names()))
     check_swap_target(args.out, "--out", ours)
-    _positive("duration-s", args.duration_s)
-    _positive("long-s", args.long_s)
-    if args.seed is not None and not 0 <= args.seed < 2**63:
-        raise InputError(f"--seed = {args.seed}: must be in [0, 2**63)")
     scenario = load_scenario(path)
     with open(path, "rb") as f:
         scenario_bytes = f.read()

@@ -2,36 +2,48 @@
 
 Rows are numbered as a text editor numbers the file's lines: the header is row 1, the
 first sample row 2. Every message of ``replay`` and ``check-port`` uses this numbering.
+A byte-order mark and CRLF line ends are read as any editor reads them; a header column
+that is not allowed is refused, never ignored.
 """
 import csv
 
 import numpy as np
 
-from harness.errors import InputError
+from harness.errors import InputError, reading
 
 COLUMNS = ("adc_v", "adc_i")
 
 
-def read_rows(path, what="file", check_header=None):
+def check_columns(path, header, allowed, required, what="file"):
+    """One-line InputError unless ``header`` holds only ``allowed`` names, each once, and all of ``required``."""
+    unknown = [h for h in header if h not in allowed]
+    if unknown:
+        raise InputError(f"{path}: row 1: unknown column {unknown[0]!r}; allowed: {','.join(allowed)}")
+    twice = [h for n, h in enumerate(header) if h in header[:n]]
+    if twice:
+        raise InputError(f"{path}: row 1: column {twice[0]!r} given twice")
+    missing = [c for c in required if c not in header]
+    if missing:
+        raise InputError(f"{path}: row 1: missing column {missing[0]!r}; a {what} holds at least "
+                         f"{','.join(required)}")
+
+
+def read_rows(path, what, allowed, required):
     """Header (names stripped) and data rows ``[(row number, cells), ...]`` of a CSV file.
 
-    ``check_header(header)``, if given, may raise on a bad header before any row is read.
-    Blank rows are skipped; every other row must have as many fields as the header.
+    The header may hold only ``allowed`` column names, each once, and must hold all of
+    ``required`` (checked before any row is read). Blank rows are skipped; every other row
+    must have as many fields as the header.
     """
-    try:
-        f = open(path, newline="", encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read {what}: {exc.strerror}") from None
     rows = []
     try:
-        with f:
-            reader = csv.reader(f)
+        with reading(path, what), open(path, newline="", encoding="utf-8-sig") as f:
+            reader = csv.reader(f, strict=True)
             header = next(reader, None)
             if header is None:
-                raise InputError(f"{path}: empty file; expected a header row")
+                raise InputError(f"{path}: empty file; expected a header row holding {','.join(required)}")
             header = [h.strip() for h in header]
-            if check_header is not None:
-                check_header(header)
+            check_columns(path, header, allowed, required, what)
             for row in reader:
                 if not row or all(not c.strip() for c in row):
                     continue
@@ -39,8 +51,6 @@ def read_rows(path, what="file", check_header=None):
                     raise InputError(f"{path}: row {reader.line_num}: {len(row)} fields, the header has "
                                      f"{len(header)} ({','.join(header)})")
                 rows.append((reader.line_num, row))
-    except UnicodeDecodeError as exc:
-        raise InputError(f"{path}: not UTF-8 text (byte {exc.start})") from None
     except csv.Error as exc:
         raise InputError(f"{path}: row {reader.line_num}: not valid CSV ({exc})") from None
     if not rows:
@@ -74,18 +84,12 @@ def read_adc_csv(path, adc_bits):
     Parameters
     ----------
     path : str
-        CSV file with a header holding at least ``adc_v`` and ``adc_i``.
+        CSV file with the header ``adc_v,adc_i`` (either order; no other column).
     adc_bits : int
         ADC resolution; codes must be in [0, 2**adc_bits - 1].
     """
     hi = (1 << adc_bits) - 1
-
-    def check_header(header):
-        for col in COLUMNS:
-            if col not in header:
-                raise InputError(f"{path}: row 1: missing column '{col}' (header must hold adc_v,adc_i)")
-
-    header, rows = read_rows(path, check_header=check_header)
+    header, rows = read_rows(path, "ADC file", COLUMNS, COLUMNS)
     cols = [header.index(c) for c in COLUMNS]
     codes = int_cells(path, header, rows, cols, f"an integer code in [0, {hi}]")
     bad = np.flatnonzero(((codes < 0) | (codes > hi)).any(axis=1))

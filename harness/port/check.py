@@ -108,25 +108,12 @@ def log_params(vec_dir=None, config=None):
     return found.popitem()[1]
 
 
-def _check_log_header(log_path, header):
-    unknown = [h for h in header if h not in COLUMNS]
-    if unknown:
-        raise InputError(f"{log_path}: row 1: unknown column {unknown[0]!r}; allowed: {','.join(COLUMNS)}")
-    twice = [h for n, h in enumerate(header) if h in header[:n]]
-    if twice:
-        raise InputError(f"{log_path}: row 1: column {twice[0]!r} given twice")
-    missing = [c for c in LOG_REQUIRED if c not in header]
-    if missing:
-        raise InputError(f"{log_path}: row 1: missing column {missing[0]!r}; a log holds at least "
-                         f"{','.join(LOG_REQUIRED)}")
-
-
 def read_log(log_path):
     """A device log: (names of its compared columns, ADC codes (T, 2), compared values (T, K), row numbers).
 
     The header must hold adc_v, adc_i and cmd and may add any other vector column, in any order.
     """
-    header, rows = read_rows(log_path, "log", lambda header: _check_log_header(log_path, header))
+    header, rows = read_rows(log_path, "log", COLUMNS, LOG_REQUIRED)
     names = [h for h in header if h not in ("adc_v", "adc_i")]
     cols = [header.index("adc_v"), header.index("adc_i")] + [header.index(h) for h in names]
     values = int_cells(log_path, header, rows, cols, "an integer")

@@ -3,7 +3,7 @@
 import csv
 import math
 
-from harness.errors import InputError
+from harness.errors import InputError, reading
 
 HEADER = ["t_s", "current_a"]
 #: Allowed current range in a profile, A.
@@ -16,7 +16,8 @@ def read_profile(path, shown=None):
     """Read a current profile.
 
     The file has the header ``t_s,current_a`` and one sample per row: time in s (from 0,
-    strictly increasing, at most 3600) and current in A (0 .. 1000). Between rows the current
+    strictly increasing, at most 3600) and current in A (0 .. 1000). A byte-order mark
+    and CRLF line ends are accepted. Between rows the current
     is interpolated linearly; before the first row it is the first value, after the last row
     the last. Row numbers in messages count the header as row 1.
 
@@ -34,10 +35,10 @@ def read_profile(path, shown=None):
     """
     name = shown or str(path)
     try:
-        with open(path, newline="", encoding="utf-8") as fh:
-            rows = list(csv.reader(fh))
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{name}: cannot read profile: {exc.__class__.__name__}") from None
+        with reading(name, "profile"), open(path, newline="", encoding="utf-8-sig") as fh:
+            rows = list(csv.reader(fh, strict=True))
+    except csv.Error as exc:
+        raise InputError(f"{name}: not valid CSV ({exc})") from None
     if not rows or [c.strip() for c in rows[0]] != HEADER:
         raise InputError(f"{name}: row 1: header must be exactly t_s,current_a")
     out = []

@@ -1,17 +1,13 @@
 """Read a TOML file with one-line errors naming the file (scenarios, algorithm configs)."""
 import tomllib
 
-from harness.errors import InputError
+from harness.errors import InputError, reading
 
 
 def read_toml(path, what="file"):
     """Parse a TOML file; unreadable or malformed files raise a one-line InputError."""
     try:
-        with open(path, "rb") as f:
+        with reading(path, what), open(path, "rb") as f:
             return tomllib.load(f)
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read {what}: {exc.strerror or exc.__class__.__name__}") from None
-    except UnicodeDecodeError as exc:
-        raise InputError(f"{path}: not UTF-8 text (byte {exc.start}); save it as UTF-8") from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML: {str(exc).splitlines()[0]}") from None
