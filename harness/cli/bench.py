@@ -1,5 +1,6 @@
 """``linedrop bench``: throughput of the C batch, the Python model and the closed loop, side by side."""
 import json
+import os
 import time
 
 import numpy as np
@@ -105,6 +106,14 @@ def measure(n=1024):
     return out
 
 
+def _import_root():
+    """The folder that holds the imported harness and c_ref packages (where "python -c" must run)."""
+    import c_ref
+    import harness
+    root = os.path.dirname(os.path.dirname(os.path.abspath(harness.__file__)))
+    return root if os.path.dirname(os.path.dirname(os.path.abspath(c_ref.__file__))) == root else None
+
+
 def memory_probe(duration_s, mode, backend):
     """Print, as one JSON line, the peak RSS (MiB) of simulating the demo for ``duration_s``.
 
@@ -139,7 +148,11 @@ def _memory(args):
         row = {"duration_s": d}
         for mode in ("streamed", "whole"):
             code = f"from harness.cli.bench import memory_probe; memory_probe({d!r}, {mode!r}, {args.backend!r})"
-            done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+            # Run from the folder the harness package was imported from's parent: "python -c" puts
+            # the working directory first on sys.path, and a source tree without the built C
+            # reference there would shadow the installed package.
+            done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                                  cwd=_import_root())
             fig = json.loads(done.stdout.strip().splitlines()[-1])
             row.update({"samples": fig["samples"], f"{mode}_start_mib": fig["before_mib"],
                         f"{mode}_peak_mib": fig["peak_mib"]})
