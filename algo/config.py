@@ -47,7 +47,7 @@ SETTINGS = {
     "x_max_ohm": Setting(10.0, 0.001, 1000.0, float, "largest plausible reactance at the perturbation, ohm"),
     "adc_phase_samples": Setting(0.0, -2.0, 2.0, float,
                                  "lead of the sampled voltage over the voltage driving the cable, samples"),
-    "esr_allowance_ohm": Setting(0.0, 0.0, 100.0, float, "load capacitor ESR subtracted from the estimate, ohm"),
+    "esr_allowance_ohm": Setting(0.0, 0.0, 100.0, float, "the load end's share of the estimate (capacitor ESR, with the load's incremental resistance in parallel; design computes it), subtracted from it, ohm"),
     "r_filter_shift": Setting(2, 0, 8, int, "estimate filter, steady: each valid window moves it 2**-shift of the way"),
     "r_step_max_ohm": Setting(2.5, 0.0, 1000.0, float, "largest estimate change in one window, ohm"),
     "swing_min_a": Setting(0.01, 0.0, 100.0, float, "smallest current swing amplitude accepted, A peak"),

@@ -139,7 +139,10 @@ def test_headroom_catches_a_lamp_shortfall_the_sagging_current_hides(tmp_path):
     2.0 V; sagging uncompensated it draws less and needs under 1.9 V. 1.9 V of headroom is short."""
     rep = plant(tmp_path, target=12.0, max_v=13.9, r=0.4, kind="lamp", load="rated_v = 12.0\nrated_w = 60.0")
     assert rep["loads"][0]["current_a"] * 0.4 < 1.9
-    assert rep["correction_needed_v"] == pytest.approx(0.4 * 5.0, rel=1e-6)
+    # Within 0.5 %: design subtracts the load end's share of the estimate as the sampled plant
+    # shows it, the figure uses its circuit-algebra value (operating_point.end_real_ohm); the two
+    # differ by the sampling's own small part. The sagging current would be 5 % low.
+    assert rep["correction_needed_v"] == pytest.approx(0.4 * 5.0, rel=5e-3)
     assert _has(rep, "headroom"), rep["warnings"]
 
 
@@ -149,7 +152,7 @@ def test_headroom_does_not_warn_a_constant_power_load_that_fits(tmp_path):
     24 V + 120 = 0), which would have asked for 7.1 V."""
     rep = plant(tmp_path, r=2.0, kind="constant_power", load="power_w = 60.0")
     assert rep["loads"][0]["load_v"] == pytest.approx(12.0 + 24.0 ** 0.5, rel=1e-6)
-    assert rep["correction_needed_v"] == pytest.approx(2.0 * 60.0 / 24.0, rel=1e-6)
+    assert rep["correction_needed_v"] == pytest.approx(2.0 * 60.0 / 24.0, rel=5e-3)   # as above
     assert not _has(rep, "headroom"), rep["warnings"]
 
 

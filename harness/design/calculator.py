@@ -24,6 +24,10 @@ Rules (each a plain sizing rule; the ones without a published source are marked 
   where the ADC samples relative to the DAC update and on how smooth the plant's response is:
   about -0.5 for an ideal source into an inductive or capacitive run, near 0 for a resistive
   one or a slow supply. A real board's trigger timing differs: calibrate it there.
+* ESR allowance (esr_allowance_ohm): the load end's share of the estimate at the largest current,
+  as the sampled plant shows it (end_share_ohm): the ESR, with the load's incremental resistance
+  in parallel (negative for a constant-power load, which raises it), so the correction tracks
+  the cable's drop alone.
 * Perturbation amplitude: pert_fraction of R*I, floor a current swing of FLOOR_LSB current-ADC
   LSBs, ceiling the smaller of the 10 % rule at the largest load and a load ripple of
   RIPPLE_FRACTION of target_v (peak).
@@ -177,6 +181,27 @@ def sampling_phase(scenario, settings):
     return wp.lead_samples
 
 
+def end_share_ohm(scenario, settings):
+    """The load end's share of the estimate (ohm) at the largest current: what the estimate
+    settles to (harness.design.loop_model, the samples' Re(V/I) turned back by the ADC phase)
+    less the cable's resistance.
+
+    It is the ESR in series with the capacitor's reactance, in parallel with the load's incremental
+    resistance: a resistive load lowers it a little, a constant-power load (negative incremental
+    resistance -V**2 / P) raises it, by 11 % of a 0.058 ohm ESR for 467 W at 16.5 V. Subtracting
+    the bare ESR there leaves that excess in the correction, and the load settles high by it
+    times the current (finding D11, harness/proof/PROOFS.md).
+    """
+    cfg = algo_config(scenario, settings)
+    best = None
+    for op in operating_points(scenario, cfg):
+        wp = window_plant(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a),
+                          n_samples=cfg.period_samples)
+        if best is None or op.i_a > best[0]:
+            best = (op.i_a, wp.r0_ohm - op.r_ohm)
+    return max(best[1], 0.0)
+
+
 def operating_points(scenario, cfg):
     """Operating points over every load value and both ends of the resistance range."""
     r_min, r_max = resistance_range(scenario)
@@ -249,6 +274,7 @@ def recommend(scenario):
                corr_max_v=_clip("corr_max_v", min(headroom, HEADROOM_FACTOR * r_max * i_max)),
                capacitance_f=_clip("capacitance_f", le.capacitance_f))
     rec["adc_phase_samples"] = _clip("adc_phase_samples", sampling_phase(scenario, dict(rec, sample_rate_hz=fs)))
+    rec["esr_allowance_ohm"] = _clip("esr_allowance_ohm", end_share_ohm(scenario, dict(rec, sample_rate_hz=fs)))
     best = None
     while tau <= TAU_MAX_S:
         trial = dict(rec, loop_tau_ms=_clip("loop_tau_ms", tau * 1e3),

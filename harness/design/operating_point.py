@@ -54,6 +54,19 @@ def current_at(scenario, value, v_load):
     return load_current(scenario.load, value, v_load)[0] + (v_load / leak if leak else 0.0)
 
 
+def correction_at_target(scenario, cfg, r_ohm):
+    """Largest correction (V) the law applies over the load values with the load end at target:
+    k * (R + Z - esr_allowance) * I at each load's compensated current (end_real_ohm for Z)."""
+    leak, t = scenario.load_end.leakage_ohm, cfg.target_v
+    g_leak = 1.0 / leak if leak else 0.0
+    out = 0.0
+    for value in load_values(scenario.load):
+        i, g = load_current(scenario.load, value, t)
+        z = end_real_ohm(scenario.load_end, cfg.perturbation_hz, g + g_leak)
+        out = max(out, cfg.compensation * max(r_ohm + z - cfg.esr_allowance_ohm, 0.0) * (i + g_leak * t))
+    return out
+
+
 def _load_voltage(load, value, vs, r, g_leak):
     """Highest load-end voltage (V) that satisfies vs - r * I(V) = V; 0 when none does."""
     def f(v):
@@ -72,12 +85,21 @@ def _load_voltage(load, value, vs, r, g_leak):
     return brentq(f, lo, hi, xtol=1e-12)
 
 
+def end_real_ohm(load_end, f_hz, g_s):
+    """Real part (ohm) of the load end at ``f_hz``: ESR plus the capacitor's reactance, in parallel
+    with the load's incremental conductance ``g_s`` (S; negative for a constant-power load).
+    Circuit algebra: Z = Zc / (1 + g Zc), Zc = ESR + 1 / (j w C)."""
+    zc = load_end.esr_ohm + 1.0 / (1j * 2.0 * math.pi * f_hz * load_end.capacitance_f)
+    return float((zc / (1.0 + g_s * zc)).real)
+
+
 def operating_point(scenario, cfg, value, r_ohm=None):
     """Compensated operating point of ``scenario`` at load ``value`` under AlgoConfig ``cfg``.
 
-    The correction is k * (R + ESR - esr_allowance) * I, clamped to [0, min(corr_max_v,
-    max_v - target_v)]: the estimate is taken as cable plus ESR (the load's parallel real part
-    is ignored here; the loop model computes it exactly).
+    The correction is k * (R + Z - esr_allowance) * I, clamped to [0, min(corr_max_v,
+    max_v - target_v)], with Z the load end's share of the estimate (end_real_ohm: ESR and the
+    capacitor in parallel with the load's incremental resistance at the perturbation; the loop
+    model adds the sampling's own small part).
 
     Parameters
     ----------
@@ -92,12 +114,13 @@ def operating_point(scenario, cfg, value, r_ohm=None):
     le = scenario.load_end
     g_leak = 1.0 / le.leakage_ohm if le.leakage_ohm else 0.0
     corr_max = min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v))
-    r_comp = max(r + le.esr_ohm - cfg.esr_allowance_ohm, 0.0)
     sense_gain = 1.0 + scenario.sensing.gain_error      # scales the measured current
     corr = 0.0
     for _ in range(ITERATIONS):
         v = _load_voltage(scenario.load, value, cfg.target_v + corr, r, g_leak)
-        i = load_current(scenario.load, value, v)[0] + g_leak * v
+        i, g = load_current(scenario.load, value, v)
+        i += g_leak * v
+        r_comp = max(r + end_real_ohm(le, cfg.perturbation_hz, g + g_leak) - cfg.esr_allowance_ohm, 0.0)
         new = min(max(cfg.compensation * sense_gain * r_comp * i, 0.0), corr_max)
         if abs(new - corr) < 1e-12:
             break

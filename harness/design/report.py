@@ -4,7 +4,7 @@ from dataclasses import replace
 
 from harness.scenario.algo_setup import FROM_PLANT, algo_config
 from harness.design import calculator as d
-from harness.design.operating_point import current_at, load_values
+from harness.design.operating_point import correction_at_target, current_at, load_values
 
 
 #: Extra-low-voltage limit, V DC (SELV, about 60 V DC per the design brief; IEC 61140 class III
@@ -129,6 +129,7 @@ def design_report(sc):
     loads = d.uncompensated(sc, algo_config(replace(sc, algorithm={})), r_max)
     i_comp = max(current_at(sc, v, sc.supply.target_v) for v in load_values(sc.load))
     f = cfg.perturbation_hz
+    corr_needed = correction_at_target(sc, cfg, r_max)
     loop = d.loop_summary(sc, cfg)
     fig = {
         "configuration": "scenario" if own else "recommended",
@@ -155,7 +156,7 @@ def design_report(sc):
         "corr_max_v": min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v)),
         "headroom_v": max(0.0, sc.supply.max_v - sc.supply.target_v),
         "compensated_current_a": i_comp,
-        "correction_needed_v": cfg.compensation * max(r_max + le.esr_ohm - cfg.esr_allowance_ohm, 0) * i_comp,
+        "correction_needed_v": corr_needed,
         "pert_min_v": cfg.pert_min_v,
         "pert_max_v": cfg.pert_max_v,
         "word_lengths": {"adc_bits": _adc_bits(sc, cfg), "table_bits": cfg.table_bits,

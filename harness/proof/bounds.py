@@ -165,24 +165,6 @@ def runs_away_without_capacitor(scenario):
     return p_max > 0 and scenario.supply.target_v ** 2 / p_max > scenario.cable.resistance_ohm
 
 
-def start_kick_v(scenario):
-    """Open finding D11 (harness/proof/PROOFS.md): how much more correction a constant-power load
-    asks for at its uncompensated steady voltage V_u than at target, R * P * (1/V_u - 1/target), V.
-
-    The first periods of the correction track the drop at the sagged voltage, where the load
-    draws more; where this excess is above OVERSHOOT_REL of target the start can overshoot the
-    margin. V_u is the upper root of V = target - R * P / V (quadratic formula). 0 for other loads
-    or where no operating point exists."""
-    ld, t, r = scenario.load, scenario.supply.target_v, scenario.cable.resistance_ohm
-    if ld.kind != "constant_power" or ld.value <= 0:
-        return 0.0
-    disc = t * t - 4.0 * r * ld.value
-    if disc <= 0:
-        return 0.0
-    v_u = 0.5 * (t + math.sqrt(disc))
-    return r * ld.value * (1.0 / v_u - 1.0 / t)
-
-
 def r_lsb_ohm(cfg):
     """One estimate LSB, ohm, for AlgoConfig ``cfg``."""
     return cfg.v_full_scale_v / cfg.i_full_scale_a / (1 << cfg.r_frac_bits)
