@@ -238,9 +238,15 @@ def realistic_sequences(draw, cfg, p, min_windows=3, max_windows=8, max_steps=3)
     i_dc = np.full(n, i_mean)
     for edge in draw(st.lists(st.integers(0, max(n - 1, 0)), max_size=max_steps)):
         i_dc[edge:] *= draw(st.floats(0.6, 1.5))
-    i_dc = np.clip(i_dc, amp, full - amp)
+    # Keep both channels off their rails (a code at 0 or adc_max makes the window CLIPPED): the
+    # swing plus the noise plus one code of room on each side, for the current and for the
+    # voltage, whose load-step offset can otherwise carry it onto a rail.
+    room = noise + 1
+    i_dc = np.clip(i_dc, amp + room, full - amp - room)
     i = i_dc + amp * np.sin(theta)
-    v = 0.5 * full - r_codes * (i_dc - i_mean) + amp * (r_codes * np.sin(theta) + x_codes * np.cos(theta))
+    v_ac = amp * (r_codes * np.sin(theta) + x_codes * np.cos(theta))
+    v_peak = amp * float(np.hypot(r_codes, x_codes))
+    v = np.clip(0.5 * full - r_codes * (i_dc - i_mean), v_peak + room, full - v_peak - room) + v_ac
     i = i + rng.integers(-noise, noise + 1, n)
     v = v + rng.integers(-noise, noise + 1, n)
     clip = lambda x: np.clip(np.floor(x + 0.5), 0, full).astype(np.int64).tolist()  # noqa: E731
