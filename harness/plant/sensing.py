@@ -81,6 +81,18 @@ class Adc:
         self._pos += 1
         return self._noise[self._pos - 1]
 
+    def noise_ahead(self):
+        """The scaled noise (LSB) of the next samples without taking it, (rows, 2, B), at least
+        one row; :meth:`take` then takes the rows a caller used (the compiled closed loop)."""
+        if self._pos >= self._noise.shape[0]:
+            self._draw()
+            self._pos -= 1
+        return self._noise[self._pos:]
+
+    def take(self, rows):
+        """Take ``rows`` samples' noise from :meth:`noise_ahead`'s block."""
+        self._pos += rows
+
     def close(self):
         """Stop the noise worker (drawing nothing more)."""
         if self._next is not None:
