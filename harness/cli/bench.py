@@ -9,6 +9,7 @@ from algo import step as scalar
 from algo.batch import BatchModel
 from algo.config import AlgoConfig
 from algo.params import derive
+from harness.cli import bench_bare
 from harness.cli.values import integer
 from harness.errors import InputError
 
@@ -67,9 +68,10 @@ def _rate(fn, samples):
     return samples / (time.perf_counter() - t0)
 
 
-def _closed_loop_rate(backend, n, samples):
+def _closed_loop_rate(backend, n, samples, plant="auto"):
     """Scenario-samples per second of the whole closed loop (plant, ADC, algorithm, recording)
-    on ``n`` copies of the bundled demo scenario, ``samples`` samples long, setup included."""
+    on ``n`` copies of the bundled demo scenario, ``samples`` samples long, setup included;
+    ``plant`` as harness.loop.closed_loop.simulate's."""
     from dataclasses import replace
 
     from harness.loop.closed_loop import simulate
@@ -82,8 +84,8 @@ def _closed_loop_rate(backend, n, samples):
         end_c = cable.temperature_c + (cable.temperature_end_c - cable.temperature_c) * duration_s / sc.run.duration_s
         cable = replace(cable, temperature_end_c=end_c)
     sc = replace(sc, cable=cable, run=replace(sc.run, duration_s=duration_s))
-    return _rate(lambda: simulate([sc] * n, backend, channels=("v_load_v", "i_supply_a", "v_supply_v")),
-                 n * samples)
+    return _rate(lambda: simulate([sc] * n, backend, channels=("v_load_v", "i_supply_a", "v_supply_v"),
+                                  plant=plant), n * samples)
 
 
 def measure(n=1024):
@@ -103,6 +105,14 @@ def measure(n=1024):
     out["closed_loop_batch_samples_per_s"] = _closed_loop_rate("model", n, 16384)
     out["closed_loop_single_samples_per_s"] = _closed_loop_rate("model", 1, 8192)
     out["closed_loop_c_batch_samples_per_s"] = _closed_loop_rate("c", n, 16384)
+    # The C backend on the compiled plant (the default) and on the numpy plant, side by side.
+    out["closed_loop_c_batch_numpy_plant_samples_per_s"] = _closed_loop_rate("c", n, 16384, "numpy")
+    out["closed_loop_c_single_samples_per_s"] = _closed_loop_rate("c", 1, 32000)
+    out["closed_loop_c_single_numpy_plant_samples_per_s"] = _closed_loop_rate("c", 1, 32000, "numpy")
+    pair, reason = bench_bare.measure(_import_root() or os.getcwd())
+    out.update(pair)
+    if reason:
+        out["ngspice_skipped"] = reason
     return out
 
 
@@ -234,5 +244,10 @@ def run(args):
         print(json.dumps(figures))
     else:
         for key, value in figures.items():
-            print(f"{key:32s} {value:14,.0f}")
+            if isinstance(value, str) or value is None:
+                print(f"{key:48s} {value or 'n/a'}")
+            elif key.endswith("_wall_s"):
+                print(f"{key:48s} {value:14.3f}")
+            else:
+                print(f"{key:48s} {value:14,.0f}")
     return 0

@@ -21,3 +21,18 @@ def make(backend, cfgs):
     if backend == "ideal":
         return IdealBatch(cfgs)
     raise ValueError(f"unknown backend {backend!r}; choose one of {', '.join(BACKENDS)}")
+
+
+def compiled_loop():
+    """The host-only compiled closed loop's binding (c_ref.host.binding)."""
+    from c_ref.host import binding
+    return binding
+
+
+def compiled_loop_missing():
+    """Why the compiled closed loop cannot be loaded, or None when it can."""
+    try:
+        compiled_loop()
+    except ImportError as exc:
+        return f"the compiled closed loop is not built ({exc})"
+    return None

@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from harness.loop import backends
+from harness.loop import backends, compiled
 from harness.scenario.algo_setup import algo_config
 from harness.loop.baselines import DifferenceEstimator, FixedCompensation, NoCompensation, RemoteSense
 from harness.plant.rig import build_rig
@@ -26,6 +26,8 @@ OUTCOME_CHANNELS = ("windows", "status", "kp_off")
 #: The progress bar's settings (tqdm): on stderr when it is a terminal; with the run's length
 #: known, tqdm shows the samples done, the time elapsed and left, and the rate.
 PROGRESS = {"unit": "sample", "unit_scale": True, "leave": False, "disable": None, "mininterval": 0.5}
+#: Samples per call of the compiled loop between progress-bar updates.
+PROGRESS_STEP = 32768
 
 
 @dataclass
@@ -41,6 +43,8 @@ class Run:
     #: Per scenario, what the report shades (harness.loop.spans.shading's dict) when the
     #: channels are a decimated copy (harness.loop.decimate); None: found from the channels.
     shading: list = None
+    #: Which plant ran: "compiled", or "numpy" with the reason the compiled loop did not.
+    plant_path: str = "numpy"
 
 
 def _units(compensator, cfgs, fixed_point):
@@ -129,7 +133,7 @@ def drive(rig, step, cmd, n_t, v_at_load=False):
 
 
 def simulate(scenarios, backend="model", compensation="linedrop", overrides=None, progress=False,
-             channels=CHANNELS + OUTCOME_CHANNELS):
+             channels=CHANNELS + OUTCOME_CHANNELS, plant="auto"):
     """Run scenarios (same sample rate, duration and start) in closed loop.
 
     Parameters
@@ -144,19 +148,22 @@ def simulate(scenarios, backend="model", compensation="linedrop", overrides=None
     channels : sequence of str
         Channels to record: any of CHANNELS and CODE_CHANNELS, and OUTCOME_CHANNELS (kept
         only for linedrop's algorithm). By default CHANNELS and OUTCOME_CHANNELS.
+    plant : {"auto", "numpy", "compiled"}
+        The numpy plant (the reference), the compiled loop (harness.loop.compiled; an error
+        where it cannot run the combination) or the compiled loop where it can (default).
     """
     kept = {}
 
     def keep(k0, t_s, rec):
         kept.update(t_s=t_s, channels=rec)
 
-    run = stream(scenarios, keep, backend, compensation, overrides, progress, channels)
+    run = stream(scenarios, keep, backend, compensation, overrides, progress, channels, plant=plant)
     run.t_s, run.channels = kept["t_s"], kept["channels"]
     return run
 
 
 def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=None, progress=False,
-           channels=CHANNELS + OUTCOME_CHANNELS, chunk_samples=None):
+           channels=CHANNELS + OUTCOME_CHANNELS, chunk_samples=None, plant="auto"):
     """Run scenarios in closed loop as :func:`simulate` does, handing the samples on in chunks.
 
     Memory stays bounded by ``chunk_samples`` whatever the run's length; the samples are the
@@ -190,6 +197,16 @@ def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=
         channels = [n for n in channels if n not in OUTCOME_CHANNELS]
     rec = {name: np.empty((chunk, len(scenarios)), dtype=np.float32) for name in channels}
     obs = rig.reset()
+    reason = None if plant == "numpy" else compiled.why_not(backend, compensation)
+    if plant not in compiled.PLANT_CHOICES or (plant == "compiled" and reason):
+        raise ValueError(f"plant {plant!r}: {reason or 'choose from ' + ', '.join(compiled.PLANT_CHOICES)}")
+    if plant != "numpy" and reason is None:
+        loop = compiled.CompiledLoop(rig, comp, r_unit, corr_unit)
+        _stream_compiled(loop, rec, sink, n_t, chunk, cfgs[0].sample_rate_hz, progress, compensation)
+        rig.adc.close()
+        return Run(t_s=np.empty(0), channels={}, scenarios=list(scenarios), cfgs=cfgs,
+                   r_cable_ohm=np.asarray(loop.r_cable_ohm(), dtype=float).copy(), backend=backend,
+                   compensation=compensation, plant_path="compiled")
     samples = drive(rig, comp.step, comp.field("cmd"), n_t, v_at_load=compensation == "sense")
     if progress:
         from tqdm import tqdm
@@ -218,7 +235,26 @@ def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=
     rig.adc.close()
     return Run(t_s=np.empty(0), channels={}, scenarios=list(scenarios), cfgs=cfgs,
                r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend=backend,
-               compensation=compensation)
+               compensation=compensation, plant_path="numpy" if plant == "numpy" else f"numpy ({reason})")
+
+
+def _stream_compiled(loop, rec, sink, n_t, chunk, rate_hz, progress, compensation):
+    """:func:`stream`'s loop on the compiled plant: chunks of ``chunk`` samples into ``rec``."""
+    bar = None
+    if progress:
+        from tqdm import tqdm
+        bar = tqdm(total=n_t, desc=f"simulate ({compensation})", **PROGRESS)
+    for k0 in range(0, n_t, chunk):
+        n = min(chunk, n_t - k0)
+        for j in range(0, n, PROGRESS_STEP):
+            loop.run(k0 + j, min(PROGRESS_STEP, n - j), rec, j)
+            if bar is not None:
+                bar.update(min(PROGRESS_STEP, n - j))
+        sink(k0, sample_times(k0, n, rate_hz), {name: a if n == chunk else a[:n] for name, a in rec.items()})
+    if n_t == 0:
+        sink(0, sample_times(0, 0, rate_hz), {name: a[:0] for name, a in rec.items()})
+    if bar is not None:
+        bar.close()
 
 
 def sample_times(k0, n, sample_rate_hz):

@@ -47,15 +47,22 @@ class Adc:
         self._noise = np.zeros((0, 2, n))
         self._pos = 0
         self._next = None
+        self._bufs, self._scratch, self._which = [None, None], None, 0
 
-    def _block(self):
-        """The next (block, 2, B) array of scaled noise (LSB).
+    def _block(self, which):
+        """Fill and return noise buffer ``which`` (0 or 1) with the next (block, 2, B) array of
+        scaled noise (LSB).
 
         Each scenario's generator fills a (2, block) array; those are transposed a few
-        scenarios at a time into sample-major order, so a sample's noise is contiguous."""
+        scenarios at a time into sample-major order, so a sample's noise is contiguous. The two
+        buffers take turns (one is read while the worker fills the other), so a long run
+        allocates no new memory for its noise."""
         n = len(self._rngs)
-        noise = np.empty((_NOISE_BLOCK, 2, n))
-        scratch = np.empty((min(n, _TRANSPOSE_CHUNK), 2, _NOISE_BLOCK))
+        if self._bufs[which] is None:
+            self._bufs[which] = np.empty((_NOISE_BLOCK, 2, n))
+            if self._scratch is None:
+                self._scratch = np.empty((min(n, _TRANSPOSE_CHUNK), 2, _NOISE_BLOCK))
+        noise, scratch = self._bufs[which], self._scratch
         for b0 in range(0, n, _TRANSPOSE_CHUNK):
             rngs = self._rngs[b0:b0 + _TRANSPOSE_CHUNK]
             for j, rng in enumerate(rngs):
@@ -73,13 +80,26 @@ class Adc:
         if self._pos >= self._noise.shape[0]:
             if self._next is None:
                 self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
-                self._noise = self._block()
+                self._noise = self._block(0)
             else:
                 self._noise = self._next.result()
-            self._next = self._pool.submit(self._block)
+            self._which ^= 1
+            self._next = self._pool.submit(self._block, self._which)
             self._pos = 0
         self._pos += 1
         return self._noise[self._pos - 1]
+
+    def noise_ahead(self):
+        """The scaled noise (LSB) of the next samples without taking it, (rows, 2, B), at least
+        one row; :meth:`take` then takes the rows a caller used (the compiled closed loop)."""
+        if self._pos >= self._noise.shape[0]:
+            self._draw()
+            self._pos -= 1
+        return self._noise[self._pos:]
+
+    def take(self, rows):
+        """Take ``rows`` samples' noise from :meth:`noise_ahead`'s block."""
+        self._pos += rows
 
     def close(self):
         """Stop the noise worker (drawing nothing more)."""
