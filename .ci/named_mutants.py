@@ -12,13 +12,15 @@ algo/estimator.py are held to the C by tests/test_bitexact_props.py). Exit statu
 tree is never modified.
 """
 import os
-import shutil
 import subprocess
 import sys
 import tempfile
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests"))
+from support.scratch_tree import mutate_line, scratch_copy  # noqa: E402
+
 KILLERS = "tests/test_proof_mutants.py"
 
 # name: (file, line as it is, line as mutated, tests that must fail)
@@ -53,27 +55,18 @@ MUTANTS = {
         "        self._c_want = np.where(cap_open, CAP_OPEN_RESIDUAL_F, self.c_f)",
         "        self._c_want = self.c_f",
         KILLERS + "::test_capacitor_open_passes_the_supply_ripple_to_the_load_as_the_rc_divider_predicts"),
+    # Survivors of the cosmic-ray run over harness/plant/faults.py (PROOFS.md), killed since.
+    "fault_starts_only_on_a_sample": (
+        "harness/plant/faults.py",
+        "        return (self._at <= t_s) & (t_s < self._until)",
+        "        return (self._at == t_s) & (t_s < self._until)",
+        KILLERS + "::test_a_fault_between_samples_acts_from_the_first_sample_after_it_until_the_first_at_its_end"),
+    "fault_end_not_equal": (
+        "harness/plant/faults.py",
+        "        return (self._at <= t_s) & (t_s < self._until)",
+        "        return (self._at <= t_s) & (t_s != self._until)",
+        KILLERS + "::test_a_fault_between_samples_acts_from_the_first_sample_after_it_until_the_first_at_its_end"),
 }
-
-
-def scratch_copy(dest):
-    """Copy the files of ROOT git would commit (tracked or not ignored) and the built C extension into ``dest``."""
-    files = subprocess.run(["git", "ls-files", "-z", "--cached", "--others", "--exclude-standard"], cwd=ROOT, check=True, capture_output=True).stdout
-    for rel in files.decode().split("\0"):
-        if rel and (ROOT / rel).is_file():
-            (dest / rel).parent.mkdir(parents=True, exist_ok=True)
-            shutil.copy2(ROOT / rel, dest / rel)
-    for so in (ROOT / "c_ref").glob("_linedrop_cffi*.so"):
-        shutil.copy2(so, dest / "c_ref" / so.name)
-
-
-def mutate(dest, path, old, new):
-    """Replace the one line ``old`` of ``dest/path`` by ``new``; error if it is not there once."""
-    f = dest / path
-    text = f.read_text()
-    if text.count(old + "\n") != 1:
-        raise SystemExit(f"{path}: the line to mutate is not there exactly once: {old.strip()!r}")
-    f.write_text(text.replace(old + "\n", new + "\n"))
 
 
 def run(name):
@@ -82,7 +75,7 @@ def run(name):
     with tempfile.TemporaryDirectory(prefix=f"linedrop-mutant-{name}-") as tmp:
         dest = Path(tmp)
         scratch_copy(dest)
-        mutate(dest, path, old, new)
+        mutate_line(dest, path, old, new)
         env = dict(os.environ, PYTHONPATH=f"{dest}{os.pathsep}{dest / 'tests'}",
                    HYPOTHESIS_PROFILE=os.environ.get("HYPOTHESIS_PROFILE", "ci"))
         res = subprocess.run([sys.executable, "-m", "pytest", "-q", "-x", "-p", "no:cacheprovider", *tests.split()],

@@ -7,12 +7,13 @@ reference must agree with it on the command and every state field at every sampl
 and every state field must stay inside algo.ranges.state_bounds (property 2). Bounds come from
 harness.proof.bounds only.
 """
-from hypothesis import event, Phase, given, note, settings
+from hypothesis import Phase, given, note, settings
 
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import reproducer, run_groups, settle_windows, settled_failures, settled_load_v
+from support.proof_support import (count_plant, report_shares, reproducer, run_groups, settle_windows,
+                                   settled_failures, settled_load_v)
 
 BATCH = 8
 
@@ -44,8 +45,9 @@ def test_converges_from_a_steady_start_within_the_stated_windows(batch):
         limit = bd.overshoot_limit_v(cfg, 0.0, bd.sensing_bias_v(cfg, sc.sensing, r, i), settled_v=settled,
                                      ripple_v=bd.ripple_excess_v(cfg, sc))
         d11 = bd.start_kick_v(sc) > bd.OVERSHOOT_REL * cfg.target_v    # open finding D11 (PROOFS.md)
-        event("start overshoot not checked: open finding D11" if d11 else "start overshoot checked")
+        count_plant("start overshoot not checked: open finding D11" if d11 else "start overshoot checked")
         if v_max > limit and not d11:
             why.append(f"load reached {v_max:.6g} V, above target + margin {limit:.6g} V")
         note(f"plant {sc.load.kind} R={sc.cable.resistance_ohm:.4g} C={sc.load_end.capacitance_f:.4g}")
         assert not why, reproducer(sc, "; ".join(why))
+    report_shares(len(scs))
