@@ -5,13 +5,13 @@ closed loop in any order. Bounds from harness.proof.bounds; model and C in lock 
 import math
 from dataclasses import replace
 
-from hypothesis import Phase, assume, event, given, settings, strategies as st
+from hypothesis import Phase, assume, given, settings, strategies as st
 from hypothesis.stateful import RuleBasedStateMachine, initialize, rule
 
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import (reproducer, run_groups, samples_between,
+from support.proof_support import (count_plant, report_shares, reproducer, run_groups, samples_between,
                            settle_windows, settled_failures, window_ends)
 
 KINDS = ("cable_open", "cap_open", "both", "load_off")
@@ -63,7 +63,7 @@ def test_faults_drop_the_correction_to_zero_in_the_stated_windows_and_it_recover
                        + bd.DAC_LSB_SLACK * bd.dac_lsb_v(cfg))
             held = samples_between(lr, b, w_fault + bd.LOAD_OFF_WINDOWS, int(until))
             off = lr.run.channels["correction_v"][held, b]
-            event("load off: decay checked" if off.size else "load off: back before LOAD_OFF_WINDOWS")
+            count_plant("load off: decay checked" if off.size else "load off: back before LOAD_OFF_WINDOWS")
             worst = float(off.max()) if off.size else 0.0
             if worst > residue:
                 why.append(f"load off: correction {worst:.4g} V after {bd.LOAD_OFF_WINDOWS} windows (> {residue:.3g} V)")
@@ -74,9 +74,10 @@ def test_faults_drop_the_correction_to_zero_in_the_stated_windows_and_it_recover
                 why.append(f"{kind}: correction not zero from window {zero_from} to the fault's end "
                            f"(max {int(corr_q[held].max())} LSB)")
         if kind in ("cap_open", "both") and bd.runs_away_without_capacitor(sc):
-            event("cap open: the plant runs away (forced zero checked only)")
+            count_plant("cap open: the plant runs away (forced zero checked only)")
             assert not why, reproducer(sc, "; ".join(why))
             continue
+        count_plant(f"{kind}: every check")
         event_s = samples_between(lr, b, w_fault, len(ends))
         limit = bd.overshoot_limit_v(cfg, corr_before, 0.0, i_load if kind == "load_off" else 0.0,
                                      sc.cable.inductance_h, sc.load_end.capacitance_f,
@@ -87,6 +88,7 @@ def test_faults_drop_the_correction_to_zero_in_the_stated_windows_and_it_recover
         w_back = int(math.ceil(until)) + max(bd.RECOVER_WINDOWS, settle_windows(sc))
         why += settled_failures(lr, b, sc, w_back, w_back + bd.CHECK_WINDOWS)
         assert not why, reproducer(sc, "; ".join(why))
+    report_shares(len(scs))
 
 
 class FaultMachine(RuleBasedStateMachine):
@@ -167,6 +169,7 @@ class FaultMachine(RuleBasedStateMachine):
             n_end = len(window_ends(lr, b))
             why += settled_failures(lr, b, sc, n_end - bd.CHECK_WINDOWS, n_end)
             assert not why, reproducer(sc, "stateful: " + "; ".join(why))
+        report_shares(len(scs))
 
 
 TestFaultMachine = FaultMachine.TestCase

@@ -12,7 +12,8 @@ from hypothesis import Phase, given, note, settings
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import reproducer, run_groups, settle_windows, settled_failures, settled_load_v
+from support.proof_support import (count_plant, report_shares, reproducer, run_groups, settle_windows,
+                                   settled_failures, settled_load_v)
 
 BATCH = 8
 
@@ -43,7 +44,9 @@ def test_converges_from_a_steady_start_within_the_stated_windows(batch):
         settled = settled_load_v(lr, b, sc, n_settle, n_settle + bd.CHECK_WINDOWS)
         limit = bd.overshoot_limit_v(cfg, 0.0, bd.sensing_bias_v(cfg, sc.sensing, r, i), settled_v=settled,
                                      ripple_v=bd.ripple_excess_v(cfg, sc))
+        count_plant("start overshoot checked")
         if v_max > limit:
             why.append(f"load reached {v_max:.6g} V, above target + margin {limit:.6g} V")
         note(f"plant {sc.load.kind} R={sc.cable.resistance_ohm:.4g} C={sc.load_end.capacitance_f:.4g}")
         assert not why, reproducer(sc, "; ".join(why))
+    report_shares(len(scs))

@@ -3,13 +3,13 @@ than TRANSIENT_R_REL and never push the load above target + the overshoot margin
 again within RECOVER_WINDOWS, or the R*C-scaled settle time where that is longer. Model and C in lock step (harness.loop.lockstep)."""
 from dataclasses import replace
 
-from hypothesis import Phase, event, given, settings
+from hypothesis import Phase, given, settings
 
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.design.operating_point import load_current
 from harness.scenario.algo_setup import algo_config
-from support.proof_support import (reproducer, run_groups, samples_between, settle_windows, settled_failures,
+from support.proof_support import (count_plant, report_shares, reproducer, run_groups, samples_between, settle_windows, settled_failures,
                                    window_ends)
 
 STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.proof.strategies.plants)
@@ -21,12 +21,13 @@ def _examples(fraction):
 
 
 @_examples(0.05)
-@given(hs.plant_batches(size=6, kinds=("constant_current", "resistive", "constant_power"), max_steps=2,
+@given(hs.plant_batches(size=6, kinds=("constant_current", "resistive", "constant_power"), max_steps=2, min_steps=1,
                         steps_after=float(bd.SETTLE_WINDOWS)))
 def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_overshoot(batch):
     total = bd.SETTLE_WINDOWS + STEP_SPAN + bd.CHECK_WINDOWS
     scs = []
     for n, p in enumerate(batch):
+        count_plant("load steps drawn" if p.load_steps else "no load step drawn: not run")
         if p.load_steps:    # the recovery after a step, like the settling, scales with R*C
             sc = hs.design_scenario(p, bd.SETTLE_WINDOWS, seed=n)
             scs.append(hs.design_scenario(p, total + max(bd.RECOVER_WINDOWS, settle_windows(sc)), seed=n))
@@ -52,7 +53,7 @@ def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_over
         r_loop = sc.cable.resistance_ohm + sc.load_end.esr_ohm
         light = any(load_current(sc.load, v, cfg.target_v)[0] < bd.light_load_a(cfg, sc, r_loop)
                     for _, v in sc.load.steps)
-        event("a step to a light load: estimate not held" if light else "estimate held through the steps")
+        count_plant("a step to a light load: estimate not held" if light else "estimate held through the steps")
         if move > allowed and not light:
             why.append(f"a load step moved the estimate by {move:.4g} ohm (> {allowed:.4g} ohm) from {r_before:.5g}")
         i0 = float(sc.source)
@@ -65,3 +66,4 @@ def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_over
         w_back = int(sc.load.steps[-1][0] / win) + 1 + max(bd.RECOVER_WINDOWS, settle_windows(sc))
         why += settled_failures(lr, b, sc, w_back, w_back + bd.CHECK_WINDOWS)
         assert not why, reproducer(sc, "; ".join(why))
+    report_shares(len(batch))

@@ -17,6 +17,7 @@ from harness.cli.simulate import DEMO
 from harness.loop.metrics import last_event_s
 from harness.scenario.read import load_scenario
 from harness.tune.evaluate import KNOBS
+from support.tools import require_module
 from harness.tune.run_length import run_lengths
 from harness.tune.runner import Cache, Runner
 from harness.tune.search import Tuner
@@ -146,7 +147,7 @@ def test_an_interrupted_sweep_reruns_only_the_missing_jobs(tmp_path, capsys):
 
 
 def test_dask_local_cluster_gives_the_same_recommendation_as_local_processes(tmp_path, capsys):
-    distributed = pytest.importorskip("distributed")
+    distributed = require_module("distributed")
     _, local = _tune([DEMO, *SMALL, "--out", str(tmp_path / "local")], capsys)
     with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as cluster:

@@ -102,7 +102,7 @@ def rate_for(f_lo_hz, bandwidth_hz=0.0):
 
 
 @st.composite
-def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, servable=True):
+def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, servable=True, min_steps=0):
     """A :class:`DrawnPlant`; ``f_lo_hz`` (Hz) pins the AC-short corner to within a factor 1.4.
 
     Parameters
@@ -113,6 +113,8 @@ def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, s
         Load kinds to draw from.
     max_steps : int
         Most load steps (lamps take none: a lamp is switched, not stepped).
+    min_steps : int
+        Fewest load steps of a plant that is not a lamp (the transient property asks for one).
     steps_after : float
         Earliest window of a load step.
     servable : bool
@@ -142,7 +144,7 @@ def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, s
     if kind != "lamp" and max_steps:
         top = DROP_MAX[kind] * target / (r * current)
         raw = draw(st.lists(st.tuples(st.floats(steps_after, steps_after + 20.0), st.floats(0.0, 1.5)),
-                            max_size=max_steps))
+                            min_size=min(min_steps, max_steps), max_size=max_steps))
         steps = tuple(sorted((round(w, 3), min(f, top) if f >= 0.05 else 0.0) for w, f in raw))
         steps = tuple(s for n, s in enumerate(steps) if n == 0 or s[0] > steps[n - 1][0])
     i_max = current * max([1.0] + [f for _, f in steps])

@@ -9,7 +9,7 @@ import hashlib
 import math
 import os
 import tempfile
-from collections import defaultdict
+from collections import Counter, defaultdict
 from dataclasses import replace
 from pathlib import Path
 
@@ -106,14 +106,33 @@ def settled_load_v(lr, b, sc, w_from, w_to):
     return bd.expected_load_v(cfg, r_end, bd.measured_r_ohm(sc, r_end, cfg.perturbation_hz, g), i_mean)
 
 
-def _count(label):
-    """hypothesis.event(label) inside a property test, nothing outside one."""
+_PLANT_EVENTS = []     # labels counted for the plants of the running example (count_plant)
+_COUNTING_FOR = [None]  # the test they were counted in: a test that failed mid-example leaves some
+
+
+def count_plant(label):
+    """Count ``label`` for one plant of the running example; report_shares turns the counts into
+    hypothesis events."""
+    test = os.environ.get("PYTEST_CURRENT_TEST", "").split(" (")[0]
+    if test != _COUNTING_FOR[0]:
+        _PLANT_EVENTS.clear()
+        _COUNTING_FOR[0] = test
+    _PLANT_EVENTS.append(label)
+
+
+def report_shares(n_plants):
+    """hypothesis.event("LABEL: k of n plants") per label counted since the last call (inside a
+    property test; outside one the counts are dropped), so --hypothesis-show-statistics gives the
+    share of plants, not of batches, that took each branch."""
     from hypothesis import event
     from hypothesis.errors import InvalidArgument
-    try:
-        event(label)
-    except InvalidArgument:
-        pass
+    counts = Counter(_PLANT_EVENTS)
+    _PLANT_EVENTS.clear()
+    for label, k in sorted(counts.items()):
+        try:
+            event(f"{label}: {k} of {n_plants} plants")
+        except InvalidArgument:
+            return
 
 
 def settled_failures(lr, b, sc, w_from, w_to):
@@ -139,7 +158,7 @@ def settled_failures(lr, b, sc, w_from, w_to):
     want = bd.expected_load_v(cfg, r_end, r_meas, i_mean)
     ltol = bd.load_tolerance_v(cfg, sc.sensing, r_true, i_mean) + cfg.compensation * drift * i_mean
     light = i_mean < bd.light_load_a(cfg, sc, r_true)
-    _count("light load: the fallback bound" if light else "load above the light-load current")
+    count_plant("light load: the fallback bound" if light else "load above the light-load current")
     n = cfg.period_samples
     v = ch["v_load_v"][sl]
     v = v[: len(v) // n * n].reshape(-1, n).mean(axis=1)   # period means: the ripple removed

@@ -1,5 +1,6 @@
 """Finding system tools for tests: skip when missing, or fail when LINEDROP_REQUIRE_TOOLS=1."""
 import functools
+import importlib
 import os
 import shutil
 import subprocess
@@ -68,6 +69,15 @@ def require_tool(name):
         ``"ngspice"`` (batch-mode circuit simulator).
     """
     skip_or_fail(_probe(name))
+
+
+def require_module(name):
+    """Import and return module ``name``; skip the calling test if it is missing, or fail under
+    LINEDROP_REQUIRE_TOOLS=1 (a per-test skip: never a module-level importorskip)."""
+    try:
+        return importlib.import_module(name)
+    except ImportError as exc:
+        skip_or_fail(f"Python module {name} not importable ({exc}); pip install '.[test]'")
 
 
 def skip_or_fail(reason):
