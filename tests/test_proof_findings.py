@@ -87,6 +87,14 @@ def _start_stays_under_the_margin(path):
     assert float(lr.run.channels["v_load_v"][:, b].max()) <= limit
 
 
+FIXED_START = sorted(HERE.glob("d12_*.toml"))    # fixed: the load end's share as the allowance
+
+
+@pytest.mark.parametrize("path", FIXED_START, ids=[p.stem for p in FIXED_START])
+def test_fixed_start_finding_stays_under_the_overshoot_margin(path):
+    _start_stays_under_the_margin(path)
+
+
 @pytest.mark.xfail(strict=True, raises=AssertionError, reason="open finding D11 (harness/proof/PROOFS.md)")
 @pytest.mark.parametrize("path", OPEN_START, ids=[p.stem for p in OPEN_START])
 def test_open_finding_start_stays_under_the_overshoot_margin(path):

@@ -123,7 +123,9 @@ def test_the_esr_allowance_keeps_the_load_at_target_when_the_esr_carries_the_loa
     the DC drop is R*I = 1.5 V; with the allowance (0.5 ohm, design's recommendation) the settled
     load sits at target (24 V); without it 0.75 V above. Worked by hand; 0.1 V allowed."""
     lr, b, ends = _run(_plant(esr_ohm=0.5), 60)
-    assert algo_config(lr.run.scenarios[b]).esr_allowance_ohm == 0.5
+    # design's allowance is the load end's share of the estimate: the ESR (a constant-current
+    # load has no incremental conductance in parallel) plus the sampling's own small part.
+    assert algo_config(lr.run.scenarios[b]).esr_allowance_ohm == pytest.approx(0.5, rel=0.02)
     v = lr.run.channels["v_load_v"][ends[-9]:ends[-1], b]
     assert abs(float(v.mean()) - 24.0) < 0.1
 
