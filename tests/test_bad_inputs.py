@@ -187,6 +187,8 @@ def _algo_file(name, text, *frags):
 ALGO_CASES = sum([
     _algo_file("missing", None, "{d}/a.toml", "cannot read"),
     _algo_file("not-toml", "[algorithm\n", "{d}/a.toml", "not valid TOML"),
+    _algo_file("empty", "", "{d}/a.toml", "no [algorithm] table"),
+    _algo_file("comments-only", "# settings to come\n", "{d}/a.toml", "no [algorithm] table"),
     _algo_file("unknown-section", "[algorithm]\n[supply]\ntarget_v = 2\n", "{d}/a.toml", "supply",
                "only [algorithm]"),
     _algo_file("unknown-key", "[algorithm]\nspeed = 2\n", "{d}/a.toml", "algorithm.speed", "unknown"),

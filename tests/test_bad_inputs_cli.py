@@ -70,6 +70,8 @@ LOG_CASES = [
     _log("above-adc-full-scale-is-compared", "adc_v,adc_i,cmd\n1,4096,3\n", "NOT bit-exact", status=1),
     _log("crlf-is-fine", LOG_OK.replace("\n", "\r\n"), "NOT bit-exact", "row 2", status=1),
     _log("bom-is-fine", "\ufeff" + LOG_OK, "NOT bit-exact", "row 2", status=1),
+    ("log-config-empty", {"a.toml": "", "log.csv": LOG_OK}, ["check-port", "--log", "{d}/log.csv", "--config",
+                                                              "{d}/a.toml"], 2, ("{d}/a.toml", "no [algorithm] table")),
     ("log-no-params", {"log.csv": LOG_OK}, ["check-port", "--log", "{d}/log.csv"], 2,
      ("--log", "VECTORS_DIR", "--config")),
     ("log-vectors-dir-missing", {"log.csv": LOG_OK}, ["check-port", "{d}/nodir", "--log", "{d}/log.csv"], 2,

@@ -45,4 +45,7 @@ def load_algo_config(path):
     if extra:
         raise InputError(f"{path}: unknown section(s) {', '.join(sorted(extra))}; "
                          f"an algorithm config holds only [algorithm]")
-    return config_from_table(doc.get("algorithm", {}), path)
+    if "algorithm" not in doc:
+        raise InputError(f"{path}: no [algorithm] table; an algorithm config holds [algorithm] and its "
+                         f"settings, as linedrop design --algorithm-out writes it")
+    return config_from_table(doc["algorithm"], path)
