@@ -244,13 +244,17 @@ def test_a_reader_that_goes_away_ends_the_command_silently(tmp_path, argv):
     assert proc.wait(timeout=300) in (0, 141) and err == "", err
 
 
-def test_ctrl_c_mid_run_ends_in_one_line_with_status_130(tmp_path):
+# SIGINT is what the terminal sends on Ctrl-C, SIGTERM what kill(1), a service manager or a
+# cancelled batch job sends; 128 + the signal number is the status a shell reports for them.
+@pytest.mark.parametrize("sig, status, word", [(signal.SIGINT, 130, "interrupted"),
+                                               (signal.SIGTERM, 143, "terminated")], ids=["ctrl-c", "sigterm"])
+def test_ctrl_c_or_sigterm_mid_run_ends_in_one_line_with_its_status(tmp_path, sig, status, word):
     (tmp_path / "long.toml").write_text(SHORT.replace("duration_s = 0.1", "duration_s = 60.0"))
-    proc = cli("simulate", str(tmp_path / "long.toml"), "--out", str(tmp_path / "r"), cwd=tmp_path,
-               start_new_session=True)
+    proc = cli("simulate", str(tmp_path / "long.toml"), "--out", str(tmp_path / "r"), "--waveform",
+               str(tmp_path / "w.csv"), cwd=tmp_path, start_new_session=True)
     time.sleep(6)                         # past the imports, well inside the 60 s run
-    os.killpg(proc.pid, signal.SIGINT)    # what the terminal sends on Ctrl-C
+    os.killpg(proc.pid, sig)
     out, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130, err
-    assert err.splitlines() == ["linedrop simulate: interrupted; no output was replaced"]
-    assert sorted(os.listdir(tmp_path)) == ["long.toml"]
+    assert proc.returncode == status, err
+    assert err.splitlines() == [f"linedrop simulate: {word}; no output was replaced"]
+    assert sorted(os.listdir(tmp_path)) == ["long.toml"]      # no half-written waveform beside it
