@@ -139,6 +139,14 @@ KEY_CASES = [
     _key("algorithm-plant-key", add("[algorithm]\ntarget_v = 24.0"), "algorithm.target_v", "supply.target_v"),
     _key("algorithm-unknown-key", add("[algorithm]\ngain = 3"), "algorithm.gain", "unknown"),
     _key("algorithm-string", add('[algorithm]\nfault_windows = "6"'), "algorithm.fault_windows", "[1, 1000]"),
+    _key("algorithm-integer-nan", add("[algorithm]\nfault_windows = nan"), "algorithm.fault_windows = nan",
+         "integer in [1, 1000]"),
+    _key("algorithm-integer-inf", add("[algorithm]\nr_frac_bits = inf"), "algorithm.r_frac_bits = inf",
+         "integer in [8, 16]"),
+    _key("algorithm-power-of-two-minus-inf", add("[algorithm]\nperiods_per_window = -inf"),
+         "algorithm.periods_per_window = -inf", "power of two in [1, 64]"),
+    _key("algorithm-integer-as-float", add("[algorithm]\ntable_bits = 12.0"), "algorithm.table_bits = 12.0",
+         "integer in [8, 16]"),
 ]
 
 
@@ -179,6 +187,8 @@ def _algo_file(name, text, *frags):
 ALGO_CASES = sum([
     _algo_file("missing", None, "{d}/a.toml", "cannot read"),
     _algo_file("not-toml", "[algorithm\n", "{d}/a.toml", "not valid TOML"),
+    _algo_file("empty", "", "{d}/a.toml", "no [algorithm] table"),
+    _algo_file("comments-only", "# settings to come\n", "{d}/a.toml", "no [algorithm] table"),
     _algo_file("unknown-section", "[algorithm]\n[supply]\ntarget_v = 2\n", "{d}/a.toml", "supply",
                "only [algorithm]"),
     _algo_file("unknown-key", "[algorithm]\nspeed = 2\n", "{d}/a.toml", "algorithm.speed", "unknown"),
@@ -191,6 +201,12 @@ ALGO_CASES = sum([
     _algo_file("boolean", "[algorithm]\nfault_windows = true\n", "{d}/a.toml", "algorithm.fault_windows",
                "[1, 1000]"),
     _algo_file("not-a-table", "algorithm = 3\n", "{d}/a.toml", "[algorithm] must be a table"),
+    _algo_file("integer-nan", "[algorithm]\nacc_bits = nan\n", "{d}/a.toml", "algorithm.acc_bits = nan",
+               "integer in [20, 32]"),
+    _algo_file("integer-inf", "[algorithm]\nstep_rel_shift = inf\n", "{d}/a.toml", "algorithm.step_rel_shift",
+               "integer in [0, 8]"),
+    _algo_file("integer-as-float", "[algorithm]\ncorr_frac_bits = 4.0\n", "{d}/a.toml",
+               "algorithm.corr_frac_bits = 4.0", "integer in [0, 8]"),
 ], [])
 
 CASES = SCENARIO_FILE_CASES + KEY_CASES + PROFILE_CASES + ALGO_CASES

@@ -32,6 +32,11 @@ REPLAY_CASES = [
     _replay("non-integer", "adc_v,adc_i\n1,2\n12.5,2\n", "{d}/in.csv", "row 3, column adc_v", "'12.5'",
             "[0, 4095]"),
     _replay("text-code", "adc_v,adc_i\n1,volts\n", "{d}/in.csv", "row 2, column adc_i", "'volts'", "[0, 4095]"),
+    _replay("underscore-digits", "adc_v,adc_i\n1,1_000\n", "{d}/in.csv", "row 2, column adc_i", "'1_000'",
+            "[0, 4095]"),
+    _replay("non-ascii-digits", "adc_v,adc_i\n1,\u0661\u0662\n", "{d}/in.csv", "row 2, column adc_i",
+            "[0, 4095]"),
+    _replay("sign-and-spaces-are-fine", "adc_v,adc_i\n+1, 2 \n", status=0),
     _replay("blank-cell", "adc_v,adc_i\n1,\n", "{d}/in.csv", "row 2, column adc_i", "[0, 4095]"),
     _replay("negative", "adc_v,adc_i\n1,2\n-1,2\n", "{d}/in.csv", "row 3, column adc_v", "-1", "[0, 4095]"),
     _replay("above-full-scale", "adc_v,adc_i\n1,4096\n", "{d}/in.csv", "row 2, column adc_i", "4096",
@@ -63,6 +68,7 @@ LOG_CASES = [
          "allowed: adc_v,adc_i"),
     _log("missing-column", "adc_v,adc_i\n1,2\n", "{d}/log.csv", "row 1", "missing column 'cmd'"),
     _log("non-integer", "adc_v,adc_i,cmd\n1,2,3.5\n", "{d}/log.csv", "row 2, column cmd", "'3.5'"),
+    _log("underscore-digits", "adc_v,adc_i,cmd\n1,2,3_0\n", "{d}/log.csv", "row 2, column cmd", "'3_0'"),
     _log("negative-code", "adc_v,adc_i,cmd\n-1,2,3\n", "{d}/log.csv", "row 2", "adc_v=-1", "[0, 65535]"),
     _log("above-uint16", "adc_v,adc_i,cmd\n1,65536,3\n", "{d}/log.csv", "row 2", "adc_i=65536", "[0, 65535]"),
     # Codes above the ADC's full scale reach ld_step as they are and are clamped there (the
@@ -70,6 +76,8 @@ LOG_CASES = [
     _log("above-adc-full-scale-is-compared", "adc_v,adc_i,cmd\n1,4096,3\n", "NOT bit-exact", status=1),
     _log("crlf-is-fine", LOG_OK.replace("\n", "\r\n"), "NOT bit-exact", "row 2", status=1),
     _log("bom-is-fine", "\ufeff" + LOG_OK, "NOT bit-exact", "row 2", status=1),
+    ("log-config-empty", {"a.toml": "", "log.csv": LOG_OK}, ["check-port", "--log", "{d}/log.csv", "--config",
+                                                              "{d}/a.toml"], 2, ("{d}/a.toml", "no [algorithm] table")),
     ("log-no-params", {"log.csv": LOG_OK}, ["check-port", "--log", "{d}/log.csv"], 2,
      ("--log", "VECTORS_DIR", "--config")),
     ("log-vectors-dir-missing", {"log.csv": LOG_OK}, ["check-port", "{d}/nodir", "--log", "{d}/log.csv"], 2,
@@ -236,13 +244,17 @@ def test_a_reader_that_goes_away_ends_the_command_silently(tmp_path, argv):
     assert proc.wait(timeout=300) in (0, 141) and err == "", err
 
 
-def test_ctrl_c_mid_run_ends_in_one_line_with_status_130(tmp_path):
+# SIGINT is what the terminal sends on Ctrl-C, SIGTERM what kill(1), a service manager or a
+# cancelled batch job sends; 128 + the signal number is the status a shell reports for them.
+@pytest.mark.parametrize("sig, status, word", [(signal.SIGINT, 130, "interrupted"),
+                                               (signal.SIGTERM, 143, "terminated")], ids=["ctrl-c", "sigterm"])
+def test_ctrl_c_or_sigterm_mid_run_ends_in_one_line_with_its_status(tmp_path, sig, status, word):
     (tmp_path / "long.toml").write_text(SHORT.replace("duration_s = 0.1", "duration_s = 60.0"))
-    proc = cli("simulate", str(tmp_path / "long.toml"), "--out", str(tmp_path / "r"), cwd=tmp_path,
-               start_new_session=True)
+    proc = cli("simulate", str(tmp_path / "long.toml"), "--out", str(tmp_path / "r"), "--waveform",
+               str(tmp_path / "w.csv"), cwd=tmp_path, start_new_session=True)
     time.sleep(6)                         # past the imports, well inside the 60 s run
-    os.killpg(proc.pid, signal.SIGINT)    # what the terminal sends on Ctrl-C
+    os.killpg(proc.pid, sig)
     out, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130, err
-    assert err.splitlines() == ["linedrop simulate: interrupted; no output was replaced"]
-    assert sorted(os.listdir(tmp_path)) == ["long.toml"]
+    assert proc.returncode == status, err
+    assert err.splitlines() == [f"linedrop simulate: {word}; no output was replaced"]
+    assert sorted(os.listdir(tmp_path)) == ["long.toml"]      # no half-written waveform beside it

@@ -75,6 +75,17 @@ def test_ctrl_c_while_vectors_are_written_keeps_the_old_set(vec_dir, capsys, mon
     assert snapshot(vec_dir) == before
 
 
+def test_sigterm_while_vectors_are_written_keeps_the_old_set(vec_dir, capsys, monkeypatch):
+    import harness.port.vector_files as vf
+    from harness.cli.main import Terminated
+    before = snapshot(vec_dir)
+    capsys.readouterr()
+    monkeypatch.setattr(vf, "csv_text", after_calls(3, Terminated, vf.csv_text))
+    assert main(["vectors", "--out", str(vec_dir), "--duration-s", "0.07", "--long-s", "0.07"]) == 143
+    assert one_line(capsys) == "linedrop vectors: terminated; no output was replaced\n"
+    assert snapshot(vec_dir) == before
+
+
 def test_a_write_failing_mid_set_ends_in_one_line_and_keeps_the_old_set(vec_dir, capsys, monkeypatch):
     import harness.port.vector_files as vf
     before = snapshot(vec_dir)

@@ -38,6 +38,13 @@ def test_design_file_runs_through_simulate_and_changes_the_run(capsys, short_dem
     assert with_file["r_estimate_ohm"] == recommended["r_estimate_ohm"]
 
 
+def test_an_algorithm_file_that_sets_nothing_is_named_in_the_settings_line(capsys, short_demo, tmp_path):
+    algo = tmp_path / "algo.toml"
+    algo.write_text("[algorithm]\n")
+    doc = _json(capsys, ["simulate", str(short_demo), "--algorithm", str(algo), "--json"])
+    assert f"({algo} sets no key)" in doc["settings"] and "has no [algorithm] table" not in doc["settings"]
+
+
 def test_an_algorithm_file_may_not_set_what_the_plant_fixes(capsys, short_demo, tmp_path):
     algo = tmp_path / "algo.toml"
     algo.write_text("[algorithm]\ntarget_v = 30.0\n")

@@ -5,6 +5,7 @@ harness) are imported inside it, so a Ctrl-C while they load ends in one line to
 """
 import argparse
 import os
+import signal
 import sys
 
 from harness.atomic import finished
@@ -15,6 +16,15 @@ def commands():
     """The subcommand modules, in the order ``--help`` lists them."""
     from harness.cli import bench, check_port, design, replay, simulate, tune, vectors
     return [simulate, replay, bench, design, tune, vectors, check_port]
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM (``kill``, a service stopping, a batch job cancelled), raised where the run is so
+    it stops as Ctrl-C does: outputs left as they were, one line, exit status 143 (128 + 15)."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated
 
 
 class UsageError(InputError):
@@ -50,15 +60,35 @@ def _left(args, mark):
     return left + (f"; {note}" if note else "")
 
 
+def _stopped(exc):
+    """The word and exit status for a run stopped by ``exc`` (Ctrl-C or SIGTERM)."""
+    return ("terminated", 143) if isinstance(exc, Terminated) else ("interrupted", 130)
+
+
 def main(argv=None):
     """Entry point; returns the exit status (0 ok, 1 check failed or the run failed, 2 bad input,
-    130 interrupted, 141 the reader of the output went away)."""
+    130 interrupted, 141 the reader of the output went away, 143 terminated by SIGTERM)."""
+    own = signal.getsignal(signal.SIGTERM) == signal.SIG_DFL
+    try:
+        if own:
+            signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:                   # not the main thread: leave signals to the caller
+        own = False
+    try:
+        return _main(argv)
+    finally:
+        if own:
+            signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def _main(argv):
     try:
         parser = build_parser()
         from algo.config import ConfigError
-    except KeyboardInterrupt:
-        print("linedrop: interrupted; no output was replaced", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        word, status = _stopped(exc)
+        print(f"linedrop: {word}; no output was replaced", file=sys.stderr)
+        return status
     try:
         args = parser.parse_args(argv)
     except UsageError as exc:
@@ -84,9 +114,10 @@ def main(argv=None):
         print(f"linedrop {args.command}: error: {where}{exc.strerror or exc}; {_left(args, mark)}",
               file=sys.stderr)
         return 1
-    except KeyboardInterrupt:
-        print(f"linedrop {args.command}: interrupted; {_left(args, mark)}", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        word, status = _stopped(exc)
+        print(f"linedrop {args.command}: {word}; {_left(args, mark)}", file=sys.stderr)
+        return status
 
 
 if __name__ == "__main__":

@@ -54,8 +54,9 @@ def with_settings(scenario, algorithm_path=None):
     if sc.sensing.sample_rate_hz != scenario.sensing.sample_rate_hz:
         rate = f", at the {sc.sensing.sample_rate_hz:g} Hz sample rate it needs"
     if not given:
-        return sc, ("settings: recommended by linedrop design for this plant (the scenario has no "
-                    f"[algorithm] table){rate}; linedrop design --algorithm-out FILE writes them")
+        why = f"{algorithm_path} sets no key" if algorithm_path else "the scenario has no [algorithm] table"
+        return sc, (f"settings: recommended by linedrop design for this plant ({why}){rate}; "
+                    "linedrop design --algorithm-out FILE writes them")
     return sc, (f"settings: {', '.join(sorted(given))} from {where}; the rest recommended by "
                 f"linedrop design for this plant{rate}")
 

@@ -6,12 +6,16 @@ A byte-order mark and CRLF line ends are read as any editor reads them; a header
 that is not allowed is refused, never ignored.
 """
 import csv
+import re
 
 import numpy as np
 
 from harness.errors import InputError, reading
 
 COLUMNS = ("adc_v", "adc_i")
+#: A decimal integer as a device or a spreadsheet writes it (Python's int() would also take
+#: ``1_000`` and other digit forms no logger writes).
+_INTEGER = re.compile(r"\s*[+-]?[0-9]+\s*")
 
 
 def check_columns(path, header, allowed, required, what="file"):
@@ -64,14 +68,18 @@ def int_cells(path, header, rows, cols, rule):
     A cell that is not an integer is an error naming its row and column; ``rule`` says what
     is allowed (e.g. ``"an integer code in [0, 4095]"``).
     """
+    def cell(text):
+        if not _INTEGER.fullmatch(text):
+            raise ValueError(text)
+        return int(text)
     try:
-        return np.array([[int(r[c]) for c in cols] for _, r in rows], dtype=np.int64).reshape(len(rows), len(cols))
+        return np.array([[cell(r[c]) for c in cols] for _, r in rows], dtype=np.int64).reshape(len(rows), len(cols))
     except (ValueError, OverflowError):
         pass
     for row_no, r in rows:      # slow path, only to name the bad cell
         for c in cols:
             try:
-                np.int64(int(r[c]))
+                np.int64(cell(r[c]))
             except (ValueError, OverflowError):
                 raise InputError(f"{path}: row {row_no}, column {header[c]}: {r[c].strip()!r} is not "
                                  f"{rule}") from None

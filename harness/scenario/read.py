@@ -3,6 +3,7 @@
 from pathlib import Path
 
 from harness.scenario import conductors
+from harness.scenario.algo_toml import check_integers
 from harness.scenario.keys import FAULT_KIND_KEYS, KEYS
 from harness.scenario.toml_file import read_toml
 from harness.errors import InputError
@@ -142,6 +143,7 @@ def parse_scenario(data, source):
     algorithm = data.get("algorithm", {})
     if not isinstance(algorithm, dict):
         raise InputError(f"{src}: algorithm = {show(algorithm)}: must be a table [algorithm]")
+    check_integers(algorithm, src)
     faults = data.get("fault", [])
     if not isinstance(faults, list):
         raise InputError(f"{src}: fault: must be an array of tables [[fault]]")

@@ -81,8 +81,11 @@ class Cache:
 
 
 def _ignore_sigint():
-    """In a worker: leave Ctrl-C to the parent, which reports it in one line and stops the pool."""
+    """In a worker: leave Ctrl-C to the parent, which reports it in one line and stops the pool;
+    SIGTERM (the parent's pool.terminate, or a kill of the group) ends the worker quietly, not
+    through the one-line handler the forked worker inherits from harness.cli.main."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
 
 
 def chunks(jobs, workers):
