@@ -25,11 +25,11 @@ KILLERS = "tests/test_proof_mutants.py"
 
 # name: (file, line as it is, line as mutated, tests that must fail)
 MUTANTS = {
-    "headroom_clamp_removed": (
-        "algo/params.py",
-        "    corr_max_code = min(cfg.corr_max_v / dac_lsb, max(0, _code(cfg.max_v / dac_lsb) - _code(cfg.target_v / dac_lsb)))",
-        "    corr_max_code = cfg.corr_max_v / dac_lsb",
-        KILLERS + "::test_the_correction_never_exceeds_the_headroom_and_reaches_it_when_the_drop_needs_more"),
+    "ceiling_ignores_perturbation": (
+        "algo/batch.py",
+        "        cmax = np.minimum(p.corr_max_q[k], np.maximum(room - s.pert_amp[k], 0) << p.corr_frac[k])",
+        "        cmax = p.corr_max_q[k]",
+        KILLERS + "::test_the_correction_never_exceeds_the_headroom_less_the_perturbation_and_reaches_it_when_the_drop_needs_more"),
     "low_swing_disabled": (
         "algo/batch.py",
         "        low = m < p.swing_min[k]",

@@ -176,13 +176,15 @@ class BatchModel:
         ring guard."""
         s, p = self.s, self.p
         r_est, corr0, integ0, du_prev = s.r_est[k], s.corr[k], s.integ[k], s.du_prev[k]
-        cmax = p.corr_max_q[k]
+        room = p.cmd_max[k] - p.target_code[k]     # algo.step.corr_ceiling
+        cmax = np.minimum(p.corr_max_q[k], np.maximum(room - s.pert_amp[k], 0) << p.corr_frac[k])
         r_c = np.maximum(r_est - p.esr_q[k], 0)
         drop = _sat32(_rsr(r_c * s.psum[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
         tgt = np.clip(_rsr(drop * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k]),
                       0, S32_MAX)
-        tgt = np.where(s.i_zero[k] != 0, 0, tgt)
-        e = tgt - corr0
+        clip = s.i_zero[k] != 0
+        tgt = np.where(clip, 0, tgt)
+        e = np.where(clip, -np.maximum(corr0, integ0), tgt - corr0)
         integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
         kp = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
         on = s.kp_off[k] < 2
@@ -193,7 +195,7 @@ class BatchModel:
         corr = np.clip(u, 0, cmax)
         du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
-                & (np.abs(du) > np.abs(du_prev) + (cmax >> 3)))
+                & (np.abs(du) > np.abs(du_prev) + (p.corr_max_q[k] >> 3)))
         forced = (s.bad_windows[k] >= p.fault_windows[k]) | (s.valid_run[k] < 2)
         upd = on & ~forced
         s.kp_off[k] = np.where(upd, np.where(rang, s.kp_off[k] + 1, 0), s.kp_off[k])

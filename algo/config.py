@@ -64,7 +64,7 @@ SETTINGS = {
     "kp_max": Setting(32.0, 0.0, 256.0, float, "ceiling of the proportional gain"),
     "corr_frac_bits": Setting(4, 0, 8, int, "fraction bits of the correction state (DAC codes)"),
     "corr_max_v": Setting(1000.0, 0.0, 1000.0, float,
-                          "largest correction, V (never more than max_v - target_v)"),
+                          "largest correction, V (never more than max_v - target_v less the perturbation's peak)"),
 }
 
 

@@ -76,6 +76,22 @@ def drop_period(p, s):
                0, S32_MAX)
 
 
+def corr_ceiling(p, s):
+    """Highest correction the command can carry this period, Q corr_frac DAC codes.
+
+    corr_max_q, lowered to the room the command has above target_code under cmd_max with the
+    perturbation on top (command_base's own cap): the law's output is then the correction the
+    plant gets. A correction above that room would reach the command only in part, the law's
+    error would read the load higher than it is, and near the ceiling the loop locks into a
+    cycle from one period to the next with the load left low.
+
+    Scaling and overflow: cmd_max - pert_amp - target_code is below 2**16 and corr_frac at most
+    8, so the room fits int32.
+    """
+    room = p.cmd_max - p.target_code
+    return min(p.corr_max_q, max(room - s.pert_amp, 0) << p.corr_frac)
+
+
 def correct(p, s):
     """One period of the correction law: proportional-plus-integral on the error e = drop - corr.
 
@@ -83,9 +99,9 @@ def correct(p, s):
     e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
     ki = T_period / tau: the zero at R-hat * C cancels the cable-capacitor lag, the loop closes
     with time constant tau, and no steady error is left. The output is
-    clamped to [0, corr_max_q]; the integral does not move while the output sits above
-    corr_max_q and the error pushes further up (conditional integration, the anti-windup). At
-    the floor it moves freely: it is itself kept in [0, corr_max_q], so it cannot wind below
+    clamped to [0, the ceiling]; the integral does not move while the output sits above
+    the ceiling and the error pushes further up (conditional integration, the anti-windup). At
+    the floor it moves freely: it is itself kept in [0, the ceiling], so it cannot wind below
     zero, and holding it there would undo a load dump: the proportional part takes the output
     to 0, the held integral brings it straight back the next period, and the correction
     swings between 0 and its old value every period. While the fault counter
@@ -98,7 +114,12 @@ def correct(p, s):
     (seen when positive, clipped when negative) ratchet the correction up. With the target at
     zero the correction can only fall while the current clips; the load then sits low by at most
     (R - ESR) times a current below the swing, until the window's `clipped` outcome has halved
-    the perturbation enough for the current to clear code 0.
+    the perturbation enough for the current to clear code 0. Its error is taken against the
+    larger of the correction and its integral: once the proportional part has taken the output
+    to 0, a current still at code 0 says the load sits at or above the supply (after a load
+    dump the capacitor feeds back into the supply, which the unipolar ADC cannot show), and the
+    integral falls at the loop's rate instead of holding until the capacitor has discharged
+    through the cable.
 
     Ring guard: with the load capacitor there, a step of the correction draws its own charging
     current and the error hardly sees it; without it (capacitor open) the error sees the whole
@@ -118,14 +139,15 @@ def correct(p, s):
         s.corr = s.corr_target = s.integ = s.du_prev = 0
         return
     s.corr_target = 0 if s.i_zero else drop_period(p, s)
-    e = s.corr_target - s.corr
+    e = -max(s.corr, s.integ) if s.i_zero else s.corr_target - s.corr
     integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
     kp = 0 if s.kp_off >= 2 else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
     u = rshift_round(kp * e, GAIN_FRAC) + integ
-    if u > p.corr_max_q and e > 0:
+    top = corr_ceiling(p, s)
+    if u > top and e > 0:
         integ = s.integ
-    s.integ = sat(integ, 0, p.corr_max_q)
-    corr = sat(u, 0, p.corr_max_q)
+    s.integ = sat(integ, 0, top)
+    corr = sat(u, 0, top)
     du = corr - s.corr
     rang = (du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) > abs(s.du_prev) + (p.corr_max_q >> 3)
     if s.kp_off < 2:

@@ -13,7 +13,7 @@
 
 #define LD_VERSION_MAJOR 0
 #define LD_VERSION_MINOR 4
-#define LD_VERSION_PATCH 1
+#define LD_VERSION_PATCH 2
 
 #define LD_TAB_MAX 256   /* longest perturbation period, samples */
 #define LD_GAIN_FRAC 16  /* fraction bits of corr_gain_q, pert_gain_q, ki_q, kc_q, kp_max_q */

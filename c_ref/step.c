@@ -92,14 +92,35 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
 }
 
 /*
+ * Highest correction the command can carry this period, Q corr_frac DAC codes: corr_max_q,
+ * lowered to the room the command has above target_code under cmd_max with the perturbation
+ * on top (ld_command_base's own cap), so the law's output is the correction the plant gets. A
+ * correction above that room would reach the command only in part, the law's error would read
+ * the load higher than it is, and near the ceiling the loop locks into a cycle from one period
+ * to the next with the load left low.
+ * Scaling and overflow: cmd_max - pert_amp - target_code is below 2**16 and corr_frac at most
+ * 8, so the room fits int32.
+ */
+static int32_t ld_corr_ceiling(const ld_params_t *p, const ld_state_t *s)
+{
+    int32_t room = (int32_t)p->cmd_max - (int32_t)p->target_code;
+    room -= s->pert_amp;
+    if (room < 0) {
+        room = 0;
+    }
+    room = (int32_t)((uint32_t)room << p->corr_frac);
+    return room < p->corr_max_q ? room : p->corr_max_q;
+}
+
+/*
  * One period of the correction law: proportional-plus-integral on the error e = drop - corr.
  * With V-hat = (target + corr) - (R-hat - ESR) * I the supply's reading of the load voltage,
  * e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
  * ki = T_period / tau: the zero at R-hat * C cancels the cable-capacitor lag, the loop closes
  * with time constant tau, and no steady error is left. The output is clamped to
- * [0, corr_max_q]; the integral does not move while the output sits above corr_max_q and the
- * error pushes further up (conditional integration, the anti-windup). At the floor it moves
- * freely: it is itself kept in [0, corr_max_q], so it cannot wind below zero, and holding it
+ * [0, the ceiling] (ld_corr_ceiling); the integral does not move while the output sits above
+ * the ceiling and the error pushes further up (conditional integration, the anti-windup). At the floor it moves
+ * freely: it is itself kept in [0, the ceiling], so it cannot wind below zero, and holding it
  * there would undo a load dump: the proportional part takes the output to 0, the held
  * integral brings it straight back the next period, and the correction swings between 0 and
  * its old value every period. While the fault counter holds
@@ -111,7 +132,12 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
  * (seen when positive, clipped when negative) ratchet the correction up. With the target at
  * zero the correction can only fall while the current clips; the load then sits low by at most
  * (R - ESR) times a current below the swing, until the window's `clipped` outcome has halved
- * the perturbation enough for the current to clear code 0.
+ * the perturbation enough for the current to clear code 0. Its error is taken against the
+ * larger of the correction and its integral: once the proportional part has taken the output
+ * to 0, a current still at code 0 says the load sits at or above the supply (after a load
+ * dump the capacitor feeds back into the supply, which the unipolar ADC cannot show), and the
+ * integral falls at the loop's rate instead of holding until the capacitor has discharged
+ * through the cable.
  * Ring guard: with the load capacitor there, a step of the correction draws its own charging
  * current and the error hardly sees it; without it (capacitor open) the error sees the whole
  * step and a proportional gain above 1 makes the correction swing rail to rail every period.
@@ -128,7 +154,7 @@ static int32_t ld_drop_period(const ld_params_t *p, const ld_state_t *s)
  */
 void ld_correct(const ld_params_t *p, ld_state_t *s)
 {
-    int32_t e, corr, du, adu, adu_prev;
+    int32_t e, corr, du, adu, adu_prev, top;
     int rang;
     int64_t integ, kp, u;
 
@@ -140,7 +166,11 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
         return;
     }
     s->corr_target = s->i_zero != 0u ? 0 : ld_drop_period(p, s);
-    e = s->corr_target - s->corr;
+    if (s->i_zero != 0u) {
+        e = -(s->corr > s->integ ? s->corr : s->integ);
+    } else {
+        e = s->corr_target - s->corr;
+    }
     integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
     kp = 0;
     if (s->kp_off < 2u) {
@@ -150,11 +180,12 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
         }
     }
     u = ld_rshift_round64(kp * e, LD_GAIN_FRAC) + integ;
-    if (u > p->corr_max_q && e > 0) {
+    top = ld_corr_ceiling(p, s);
+    if (u > top && e > 0) {
         integ = s->integ;
     }
-    s->integ = (int32_t)ld_sat64(integ, 0, p->corr_max_q);
-    corr = (int32_t)ld_sat64(u, 0, p->corr_max_q);
+    s->integ = (int32_t)ld_sat64(integ, 0, top);
+    corr = (int32_t)ld_sat64(u, 0, top);
     du = corr - s->corr;
     adu = ld_abs32(du);
     adu_prev = ld_abs32(s->du_prev);

@@ -1,9 +1,10 @@
 """The CI subset of the nightly mutation run (.ci/mutation): one cosmic-ray mutant, chosen by the
 line it mutates, is applied to a scratch copy and must be killed by the test written for it.
 
-Chosen: Sub -> Add in the headroom clamp of algo/params.py (the correction's ceiling becomes
-max_v + target instead of max_v - target, so the clamp never acts), killed by
-test_proof_mutants.py's headroom example. Needs cosmic-ray (the [test] extra); skipped without it,
+Chosen: Sub -> Add in the correction's ceiling in algo/batch.py, the closed loop's model (the
+room becomes the headroom plus the perturbation's peak instead of less it, so only corr_max_q
+bounds the correction, and the command's own cap then carries less than the law believes),
+killed by test_proof_mutants.py's headroom example. Needs cosmic-ray (the [test] extra); skipped without it,
 failed under LINEDROP_REQUIRE_TOOLS=1.
 """
 import json
@@ -15,10 +16,10 @@ import sys
 from support.scratch_tree import ROOT, scratch_copy
 from support.tools import skip_or_fail
 
-MODULE = "algo/params.py"
-LINE = "corr_max_code = min(cfg.corr_max_v / dac_lsb, max(0, _code(cfg.max_v / dac_lsb) - _code(cfg.target_v / dac_lsb)))"
+MODULE = "algo/batch.py"
+LINE = "cmax = np.minimum(p.corr_max_q[k], np.maximum(room - s.pert_amp[k], 0) << p.corr_frac[k])"
 OPERATOR = "core/ReplaceBinaryOperator_Sub_Add"
-KILLER = "tests/test_proof_mutants.py::test_the_correction_never_exceeds_the_headroom_and_reaches_it_when_the_drop_needs_more"
+KILLER = "tests/test_proof_mutants.py::test_the_correction_never_exceeds_the_headroom_less_the_perturbation_and_reaches_it_when_the_drop_needs_more"
 
 
 def _cosmic_ray():
@@ -45,7 +46,7 @@ def test_the_chosen_cosmic_ray_mutant_of_the_headroom_clamp_is_killed(tmp_path):
     subprocess.run(["cosmic-ray", "apply", MODULE, OPERATOR, str(_occurrence(tmp_path))], cwd=tmp_path, check=True,
                    capture_output=True)
     after = (tmp_path / MODULE).read_text()
-    assert after != before and "_code(cfg.max_v / dac_lsb) + _code(cfg.target_v / dac_lsb)" in after
+    assert after != before and "np.maximum(room + s.pert_amp[k], 0)" in after
     env = dict(os.environ, PYTHONPATH=f"{tmp_path}{os.pathsep}{tmp_path / 'tests'}", HYPOTHESIS_PROFILE="ci")
     res = subprocess.run([sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", KILLER], cwd=tmp_path,
                          env=env, capture_output=True, text=True)

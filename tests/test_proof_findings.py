@@ -27,6 +27,9 @@ FILES = sorted(HERE.glob("*.toml"))
 # cut-off locks out and restarts with hysteresis instead of turning into a resistor that latched
 # on the low branch): regression tests now, run with design's own settings.
 FIXED = ("d1", "d2", "d3", "d4", "d6", "d8", "d9")
+FIXED_RECOVERY = ("d13", "d14")     # fixed in the algorithm (0.4.2): the correction's ceiling
+                                    # leaves room for the perturbation (d13), and a period with
+                                    # the current at code 0 bleeds the integral (d14)
 FIXED_STEP = ("d10", "d7")          # fixed in the algorithm: load-step windows do not count as
                                     # faults (d10); the trend removal and the swing-relative step
                                     # detector of 0.4.0 keep a spread-out step out of the estimate (d7)
@@ -34,6 +37,13 @@ FIXED_STEP = ("d10", "d7")          # fixed in the algorithm: load-step windows 
 
 def _fixed(p):
     return p.stem.split("_")[0] in FIXED   # d11 is open (OPEN_START below)
+
+
+def _with_design(path):
+    """The reproducer with the settings `linedrop design` recommends for its plant."""
+    sc = load_scenario(path)
+    rec, fs = recommend(replace(sc, algorithm={}))
+    return replace(sc, algorithm=rec, sensing=replace(sc.sensing, sample_rate_hz=fs))
 
 
 def _converges(path):
@@ -72,6 +82,21 @@ def _estimate_holds_through_the_steps(path):
     allowed = bd.TRANSIENT_R_REL * (sc.cable.resistance_ohm + sc.load_end.esr_ohm) \
         + bd.R_LSB_SLACK * bd.r_lsb_ohm(lr.run.cfgs[b])
     assert float(abs(r[first:] - r[first - 1]).max()) <= allowed
+
+
+@pytest.mark.parametrize("path", [p for p in FILES if p.stem.split("_")[0] in FIXED_RECOVERY],
+                         ids=[p.stem for p in FILES if p.stem.split("_")[0] in FIXED_RECOVERY])
+def test_fixed_recovery_finding_settles_after_its_last_step(path):
+    """Settled over CHECK_WINDOWS from the last step's window + 1 + the recovery bound
+    (max(RECOVER_WINDOWS, the R*C-scaled settle)), as the transient and anti-windup properties
+    check it."""
+    sc = _with_design(path)
+    (lr, b), = run_groups([sc])
+    total = int(lr.trace["windows"][-1, b])
+    win = lr.run.cfgs[b].window_samples / sc.sensing.sample_rate_hz
+    back = int(max(t for t, _ in sc.load.steps) / win) + 1 + max(bd.RECOVER_WINDOWS, settle_windows(sc))
+    back = min(back, total - bd.CHECK_WINDOWS)
+    assert settled_failures(lr, b, lr.run.scenarios[b], back, back + bd.CHECK_WINDOWS) == []
 
 
 OPEN_START = sorted(HERE.glob("d11_*.toml"))     # open: the start overshoot (PROOFS.md, D11)

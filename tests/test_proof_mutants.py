@@ -41,17 +41,26 @@ def _run(plant, windows, faults=(), overrides=None):
     return lr, b, window_ends(lr, b)
 
 
-def test_the_correction_never_exceeds_the_headroom_and_reaches_it_when_the_drop_needs_more():
-    """Drop R*I = 1.5 V, headroom max_v - target = 0.75 V, corr_max_v 2 V: the correction is the
-    headroom (0.75 V, to the DAC code) at most, at every sample, and reaches it (worked by hand)."""
+def test_the_correction_never_exceeds_the_headroom_less_the_perturbation_and_reaches_it_when_the_drop_needs_more():
+    """Drop R*I = 1.5 V, headroom max_v - target = 0.75 V, corr_max_v 2 V: the correction is at
+    most the headroom less the perturbation's peak (to the DAC code; algo.step.corr_ceiling, with
+    the amplitude in force when the period's correction was computed) at every sample, and
+    reaches it (worked by hand)."""
     plant = _plant(max_v=24.75)
     lr, b, ends = _run(plant, 40, overrides={"corr_max_v": 2.0})
     cfg = algo_config(lr.run.scenarios[b])
     lsb = cfg.dac_full_scale_v / (1 << cfg.dac_bits)
     headroom_v = (round(24.75 / lsb) - round(24.0 / lsb)) * lsb
     corr = lr.run.channels["correction_v"][:, b]
-    assert corr.max() <= headroom_v + 0.5 * lsb      # correction_v is float32
-    assert corr[ends[-1]] >= headroom_v - lsb
+    pert = lr.trace["pert_amp"][:, b] * lsb
+    # The correction in force at sample k was computed at the last period end j <= k, with the
+    # amplitude of sample j - 1 (a window end at j moves the amplitude after the correction).
+    n = cfg.period_samples
+    j = (np.arange(corr.size) + 1) // n * n - 1
+    ceiling = headroom_v - pert[np.maximum(j - 1, 0)]
+    assert (corr <= ceiling + 0.5 * lsb).all()      # correction_v is float32
+    assert corr[ends[-1]] >= ceiling[ends[-1]] - lsb
+    assert pert[ends[-1]] > 0
 
 
 def _outcomes(lr, b, ends, first, last):

@@ -18,8 +18,8 @@ from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
 from harness.errors import InputError
-from support.proof_support import (count_plant, report_shares, reproducer, run_groups, samples_between,
-                                   settle_windows, settled_failures, window_ends)
+from support.proof_support import (corr_ceiling_q, count_plant, report_shares, reproducer, run_groups,
+                                   samples_between, settle_windows, settled_failures, window_ends)
 
 from harness.proof import algo_strategies as sa
 
@@ -81,7 +81,8 @@ def test_any_settings_keep_every_state_field_in_range_and_c_bit_exact_at_every_s
 @given(hs.plant_batches(size=6, kinds=("constant_current", "resistive", "constant_power"), max_steps=0),
        st.data())
 def test_nothing_winds_up_while_the_correction_is_clamped(batch, data):
-    """A heavy load needs more correction than the headroom allows, so corr sits at corr_max_q;
+    """A heavy load needs more correction than the headroom allows, so corr sits at its ceiling
+    (the headroom less the perturbation's peak, algo.step.corr_ceiling);
     after a step to a light load the loop settles within RECOVER_WINDOWS as from rest and the
     load never exceeds the overshoot margin (a wound-up state would overshoot or lag)."""
     heavy = bd.SETTLE_WINDOWS
@@ -105,12 +106,13 @@ def test_nothing_winds_up_while_the_correction_is_clamped(batch, data):
         cfg = algo_config(sc)
         ends = window_ends(lr, b)
         corr = lr.trace["corr"][:, b]
-        clamped = corr[ends[heavy - 2]] == derive(cfg).corr_max_q
+        ceiling = corr_ceiling_q(lr, b, derive(cfg))
+        clamped = corr[ends[heavy - 2]] == ceiling[ends[heavy - 2]]
         heavy_light = p_heavy[b] < bd.light_load_a(cfg, sc, sc.cable.resistance_ohm + sc.load_end.esr_ohm)
         count_plant("clamped before release" if clamped else
                     "not clamped: light load, no estimate" if heavy_light else "not clamped")
         if not clamped and not heavy_light:
-            why_clamp = [f"the correction never reached its clamp {derive(cfg).corr_max_q} LSB (need > headroom)"]
+            why_clamp = [f"the correction never reached its ceiling {int(ceiling[ends[heavy - 2]])} LSB (need > headroom)"]
         else:
             why_clamp = []
         lsb = bd.dac_lsb_v(cfg)

@@ -9,8 +9,10 @@ loads [{value, current_a, drop_v, load_v}] (uncompensated, hottest cable),
 uncompensated_drop_v, perturbation_hz, period_samples, periods_per_window, window_s,
 sample_rate_hz, recommended_sample_rate_hz, rc_corner_hz, capacitor_reactance_ohm,
 min_capacitance_f, compensation, loop_tau_ms (closed-loop time constant of the correction),
-capacitance_f (the C its proportional gain assumes), adc_phase_samples, r_max_ohm, corr_max_v,
-headroom_v, compensated_current_a (largest supply current with the load at target_v),
+capacitance_f (the C its proportional gain assumes), adc_phase_samples, r_max_ohm, corr_max_v (the
+highest correction the command carries at the largest current: within headroom_v less
+perturbation_peak_v, the perturbation riding on top of it), headroom_v, perturbation_peak_v,
+compensated_current_a (largest supply current with the load at target_v),
 correction_needed_v (at that current), pert_min_v, pert_max_v, word_lengths {adc_bits, table_bits, acc_bits,
 r_frac_bits, corr_frac_bits}, stability_margin (1 - spectral radius of the period-rate loop),
 spectral_radius, gain_margin (factor on the estimate to instability), convergence_windows,
@@ -97,7 +99,8 @@ def report_text(rep):
             f"(zero at R*C with C = {rep['capacitance_f']:.3g} F), ADC phase "
             f"{rep['adc_phase_samples']:.3g} samples,",
             f"  r_max {rep['r_max_ohm']:.3g} ohm, correction max {rep['corr_max_v']:.3g} V "
-            f"(needs {rep['correction_needed_v']:.3g} V, headroom {rep['headroom_v']:.3g} V)",
+            f"(needs {rep['correction_needed_v']:.3g} V, headroom {rep['headroom_v']:.3g} V less the "
+            f"perturbation's peak {rep['perturbation_peak_v']:.3g} V)",
             f"Word lengths: ADC {w['adc_bits']}, table {w['table_bits']}, accumulator {w['acc_bits']}, "
             f"r_frac {w['r_frac_bits']}, corr_frac {w['corr_frac_bits']} bits",
             f"Predicted load error: {1e3 * rep['predicted_load_error_v']:.3g} mV "

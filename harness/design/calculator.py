@@ -42,7 +42,7 @@ from algo.config import SETTINGS
 from harness.scenario.algo_setup import algo_config
 from harness.scenario.conductors import temperature_scale
 from harness.design.loop_model import analyse, window_plant
-from harness.design.operating_point import load_values, operating_point
+from harness.design.operating_point import correction_ceiling_v, load_values, operating_point, pert_for
 
 AC_SHORT = 10.0          # capacitor reactance at f at most R_min / this
 MIN_PERIOD = 8           # samples per perturbation period, at least (common practice, no published source)
@@ -209,11 +209,6 @@ def operating_points(scenario, cfg):
             for r in sorted({r_min, r_max})]
 
 
-def pert_for(cfg, r_ohm, i_a):
-    """Perturbation amplitude (V peak) the algorithm settles to at estimate ``r_ohm``, current ``i_a``."""
-    return min(max(cfg.pert_fraction * r_ohm * i_a, cfg.pert_min_v), cfg.pert_max_v)
-
-
 def loop_summary(scenario, cfg):
     """Worst case over operating points of the loop model: dict of margins and convergence."""
     sense_gain = 1.0 + scenario.sensing.gain_error
@@ -327,13 +322,12 @@ def predict(scenario, cfg):
     sense_gain = 1.0 + scenario.sensing.gain_error
     dac_lsb = cfg.dac_full_scale_v / (1 << cfg.dac_bits)
     r_lsb = cfg.v_full_scale_v / cfg.i_full_scale_a / (1 << cfg.r_frac_bits)
-    corr_max = min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v))
     err, quant, ripple, swing, i_top = 0.0, 0.0, 0.0, 0.0, 0.0
     for op in operating_points(scenario, cfg):
         an = analyse(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a), sense_gain=sense_gain)
         r0 = an.plant.r0_ohm
         corr = min(max(cfg.compensation * sense_gain * max(r0 - cfg.esr_allowance_ohm, 0) * op.i_a, 0),
-                   corr_max)
+                   correction_ceiling_v(cfg, op.r_ohm + op.esr_ohm, op.i_a))
         e = op.r_ohm * op.i_a - corr
         if abs(e) > abs(err):
             err = e

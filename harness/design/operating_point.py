@@ -93,11 +93,23 @@ def end_real_ohm(load_end, f_hz, g_s):
     return float((zc / (1.0 + g_s * zc)).real)
 
 
+def pert_for(cfg, r_ohm, i_a):
+    """Perturbation amplitude (V peak) the algorithm settles to at estimate ``r_ohm``, current ``i_a``."""
+    return min(max(cfg.pert_fraction * r_ohm * i_a, cfg.pert_min_v), cfg.pert_max_v)
+
+
+def correction_ceiling_v(cfg, r_ohm, i_a):
+    """Highest correction (V) the command carries at estimate ``r_ohm`` and current ``i_a``:
+    corr_max_v, within the headroom max_v - target_v less the perturbation's peak that rides on
+    top of it (algo.step.corr_ceiling)."""
+    return min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v - pert_for(cfg, r_ohm, i_a)))
+
+
 def operating_point(scenario, cfg, value, r_ohm=None):
     """Compensated operating point of ``scenario`` at load ``value`` under AlgoConfig ``cfg``.
 
-    The correction is k * (R + Z - esr_allowance) * I, clamped to [0, min(corr_max_v,
-    max_v - target_v)], with Z the load end's share of the estimate (end_real_ohm: ESR and the
+    The correction is k * (R + Z - esr_allowance) * I, clamped to [0, correction_ceiling_v],
+    with Z the load end's share of the estimate (end_real_ohm: ESR and the
     capacitor in parallel with the load's incremental resistance at the perturbation; the loop
     model adds the sampling's own small part).
 
@@ -113,7 +125,6 @@ def operating_point(scenario, cfg, value, r_ohm=None):
     r = scenario.cable.resistance_ohm if r_ohm is None else r_ohm
     le = scenario.load_end
     g_leak = 1.0 / le.leakage_ohm if le.leakage_ohm else 0.0
-    corr_max = min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v))
     sense_gain = 1.0 + scenario.sensing.gain_error      # scales the measured current
     corr = 0.0
     for _ in range(ITERATIONS):
@@ -121,7 +132,8 @@ def operating_point(scenario, cfg, value, r_ohm=None):
         i, g = load_current(scenario.load, value, v)
         i += g_leak * v
         r_comp = max(r + end_real_ohm(le, cfg.perturbation_hz, g + g_leak) - cfg.esr_allowance_ohm, 0.0)
-        new = min(max(cfg.compensation * sense_gain * r_comp * i, 0.0), corr_max)
+        top = correction_ceiling_v(cfg, r + le.esr_ohm, i)
+        new = min(max(cfg.compensation * sense_gain * r_comp * i, 0.0), top)
         if abs(new - corr) < 1e-12:
             break
         corr = 0.5 * (corr + new)

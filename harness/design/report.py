@@ -4,7 +4,8 @@ from dataclasses import replace
 
 from harness.scenario.algo_setup import FROM_PLANT, algo_config
 from harness.design import calculator as d
-from harness.design.operating_point import correction_at_target, current_at, load_values
+from harness.design.operating_point import (correction_at_target, correction_ceiling_v, current_at,
+                                            load_values, pert_for)
 
 
 #: Extra-low-voltage limit, V DC (SELV, about 60 V DC per the design brief; IEC 61140 class III
@@ -76,10 +77,12 @@ def _warnings(sc, cfg, fig):
     if bw > 0 and f > bw:
         out.append(f"the perturbation frequency {f:.4g} Hz is above the supply's loop bandwidth "
                    f"{bw:.4g} Hz: the swing shrinks; keep it at or below {bw:.4g} Hz")
-    if fig["correction_needed_v"] > fig["headroom_v"]:
+    room = fig["headroom_v"] - fig["perturbation_peak_v"]
+    if fig["correction_needed_v"] > room:
         out.append(f"the correction would need up to {fig['correction_needed_v']:.3g} V (at the "
                    f"{fig['compensated_current_a']:.3g} A the load draws at the target voltage) but the "
-                   f"supply has only {fig['headroom_v']:.3g} V of headroom (max_v - target_v): the load "
+                   f"supply has only {fig['headroom_v']:.3g} V of headroom (max_v - target_v), "
+                   f"{fig['perturbation_peak_v']:.3g} V of it taken by the perturbation's peak: the load "
                    "will sag at high current")
     if sc.supply.max_v > ELV_LIMIT_V:
         out.append(f"the supply may output up to max_v = {sc.supply.max_v:g} V, above the {ELV_LIMIT_V:g} V DC "
@@ -153,7 +156,8 @@ def design_report(sc):
         "capacitance_f": cfg.capacitance_f,
         "adc_phase_samples": cfg.adc_phase_samples,
         "r_max_ohm": cfg.r_max_ohm,
-        "corr_max_v": min(cfg.corr_max_v, max(0.0, cfg.max_v - cfg.target_v)),
+        "corr_max_v": correction_ceiling_v(cfg, r_max + le.esr_ohm, i_comp),
+        "perturbation_peak_v": pert_for(cfg, r_max + le.esr_ohm, i_comp),
         "headroom_v": max(0.0, sc.supply.max_v - sc.supply.target_v),
         "compensated_current_a": i_comp,
         "correction_needed_v": corr_needed,

@@ -112,10 +112,16 @@ def realistic_configs(draw, max_window=1024):
     # At least 0.3 V-code per I-code at r_max, so a cable's swing spans several V codes.
     r_lo = max(0.5, 0.3 * v_fs / i_fs)
     r_max = draw(st.floats(r_lo, max(4 * r_lo, 20.0)))
+    max_v = draw(st.floats(target + 0.05 * v_fs, v_fs))
+    # The perturbation's peak rides on the correction under max_v (algo.step.corr_ceiling): a
+    # designer leaves the correction at least half the headroom (common practice, no published
+    # source; linedrop design warns when the two do not fit).
+    pert_max = min(SETTINGS["pert_max_v"].default, 0.5 * (max_v - target))
     v = dict(
         adc_bits=draw(st.integers(10, 16)), dac_bits=draw(st.integers(10, 16)),
         v_full_scale_v=v_fs, dac_full_scale_v=v_fs, i_full_scale_a=i_fs,
-        target_v=target, min_v=0.0, max_v=draw(st.floats(target + 0.05 * v_fs, v_fs)),
+        target_v=target, min_v=0.0, max_v=max_v,
+        pert_max_v=pert_max, pert_min_v=min(SETTINGS["pert_min_v"].default, pert_max),
         period_samples=period,
         periods_per_window=draw(_int_in("periods_per_window", lo=2,
                                         hi=max(2, min(64, max_window // period)))),
