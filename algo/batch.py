@@ -195,10 +195,13 @@ class BatchModel:
         corr = np.clip(u, 0, cmax)
         du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
-                & (np.abs(du) > np.abs(du_prev) + (p.corr_max_q[k] >> 3)))
+                & (np.abs(du) - np.abs(du_prev) > np.abs(du_prev)) & (np.abs(du) > (p.corr_max_q[k] >> 6)))
         forced = (s.bad_windows[k] >= p.fault_windows[k]) | (s.valid_run[k] < 2)
         upd = on & ~forced
         s.kp_off[k] = np.where(upd, np.where(rang, s.kp_off[k] + 1, 0), s.kp_off[k])
+        trip = upd & (s.kp_off[k] >= 2)
+        corr = np.where(trip, np.clip(integ, 0, cmax), corr)
+        du = corr - corr0
         s.corr_target[k] = np.where(forced, 0, tgt)
         s.integ[k] = np.where(forced, 0, np.clip(integ, 0, cmax))
         s.corr[k] = np.where(forced, 0, corr)

@@ -124,13 +124,18 @@ def correct(p, s):
     Ring guard: with the load capacitor there, a step of the correction draws its own charging
     current and the error hardly sees it; without it (capacitor open) the error sees the whole
     step and a proportional gain above 1 makes the correction swing rail to rail every period.
-    Two steps in a row that each reverse the last one and outgrow it by an eighth of corr_max
-    turn the proportional part off (kp_off reaches 2) until the next valid window; one such
-    step alone (the start's first kick can be one) only counts (kp_off 1). The integral part
-    alone is stable without the capacitor.
+    Two steps in a row that each reverse the last one, more than double it and exceed a
+    64th of corr_max turn the proportional part off (kp_off reaches 2) until the next valid
+    window, from the period that trips it on: that period's output is the integral alone, so
+    the step that would have been the third swing is never taken. (A load with a negative
+    incremental resistance, constant power, makes the swing grow several-fold a period; an
+    absolute growth test against the ceiling let it reach the ceiling first.) One such step
+    alone (the start's first kick can be one) only counts (kp_off 1). The integral part alone
+    is stable without the capacitor.
 
     Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
-    and |du_prev| + corr_max_q / 8 fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
+    and |du| - |du_prev| fit int32 (the doubling test is written |du| - |du_prev| > |du_prev|, so
+    it never forms 2 |du_prev|). r_est (< 2**31) times kc_q (< 2**31) is below
     2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
     ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
     before it is stored.
@@ -149,9 +154,13 @@ def correct(p, s):
     s.integ = sat(integ, 0, top)
     corr = sat(u, 0, top)
     du = corr - s.corr
-    rang = (du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) > abs(s.du_prev) + (p.corr_max_q >> 3)
+    rang = ((du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) - abs(s.du_prev) > abs(s.du_prev)
+            and abs(du) > p.corr_max_q >> 6)
     if s.kp_off < 2:
         s.kp_off = s.kp_off + 1 if rang else 0
+        if s.kp_off == 2:
+            corr = s.integ
+            du = corr - s.corr
     s.corr, s.du_prev = corr, du
 
 

@@ -141,16 +141,20 @@ static int32_t ld_corr_ceiling(const ld_params_t *p, const ld_state_t *s)
  * Ring guard: with the load capacitor there, a step of the correction draws its own charging
  * current and the error hardly sees it; without it (capacitor open) the error sees the whole
  * step and a proportional gain above 1 makes the correction swing rail to rail every period.
- * Two steps in a row that each reverse the last one and outgrow it by an eighth of corr_max
- * turn the proportional part off (kp_off reaches 2) until the next valid window; one such
- * step alone (the start's first kick can be one) only counts (kp_off 1). The integral part
- * alone is stable without the capacitor.
+ * Two steps in a row that each reverse the last one, more than double it and exceed a 64th
+ * of corr_max turn the proportional part off (kp_off reaches 2) until the next valid window,
+ * from the period that trips it on: that period's output is the integral alone, so the step
+ * that would have been the third swing is never taken. (A load with a negative incremental
+ * resistance, constant power, makes the swing grow several-fold a period; an absolute growth
+ * test against the ceiling let it reach the ceiling first.) One such step alone (the start's
+ * first kick can be one) only counts (kp_off 1). The integral part alone is stable without
+ * the capacitor.
  * Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
- * and |du_prev| + corr_max_q / 8 fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
+ * and |du| - |du_prev| fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
  * 2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
  * ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
- * before it is stored. (The growth test is written |du| - |du_prev| > corr_max_q / 8, the
- * same integers, so it never forms the sum.)
+ * before it is stored. (The doubling test is written |du| - |du_prev| > |du_prev|, the same
+ * integers, so it never forms 2 |du_prev|.)
  */
 void ld_correct(const ld_params_t *p, ld_state_t *s)
 {
@@ -190,9 +194,13 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
     adu = ld_abs32(du);
     adu_prev = ld_abs32(s->du_prev);
     rang = ((du > 0 && s->du_prev < 0) || (du < 0 && s->du_prev > 0)) &&
-           adu - adu_prev > (p->corr_max_q >> 3);
+           adu - adu_prev > adu_prev && adu > (p->corr_max_q >> 6);
     if (s->kp_off < 2u) {
         s->kp_off = rang ? (uint8_t)(s->kp_off + 1u) : 0u;
+        if (s->kp_off == 2u) {
+            corr = s->integ;
+            du = corr - s->corr;
+        }
     }
     s->corr = corr;
     s->du_prev = du;

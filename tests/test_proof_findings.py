@@ -16,7 +16,7 @@ import pytest
 
 from harness.design.calculator import recommend
 from harness.scenario.read import load_scenario
-from support.proof_support import run_groups, settle_windows, settled_failures
+from support.proof_support import run_groups, samples_between, settle_windows, settled_failures, window_ends
 from harness.proof import bounds as bd
 
 HERE = Path(__file__).parent / "proof_findings"
@@ -97,6 +97,24 @@ def test_fixed_recovery_finding_settles_after_its_last_step(path):
     back = int(max(t for t, _ in sc.load.steps) / win) + 1 + max(bd.RECOVER_WINDOWS, settle_windows(sc))
     back = min(back, total - bd.CHECK_WINDOWS)
     assert settled_failures(lr, b, lr.run.scenarios[b], back, back + bd.CHECK_WINDOWS) == []
+
+
+FIXED_FAULT = sorted(HERE.glob("d15_*.toml"))    # fixed in the algorithm (0.4.2): the ring guard
+
+
+@pytest.mark.parametrize("path", FIXED_FAULT, ids=[p.stem for p in FIXED_FAULT])
+def test_fixed_fault_finding_stays_under_the_overshoot_margin(path):
+    """From the fault's first window to the end the load stays under target + the correction in
+    force before the fault + the margin, the fallback property's bound."""
+    sc = _with_design(path)
+    (lr, b), = run_groups([sc])
+    cfg = lr.run.cfgs[b]
+    ends = window_ends(lr, b)
+    w_fault = int(sc.faults[0].at_s / (cfg.window_samples / sc.sensing.sample_rate_hz))
+    corr_before = float(lr.run.channels["correction_v"][ends[w_fault - 1], b])
+    limit = bd.overshoot_limit_v(cfg, corr_before, 0.0, 0.0, sc.cable.inductance_h, sc.load_end.capacitance_f,
+                                 ripple_v=bd.ripple_excess_v(cfg, sc))
+    assert float(lr.run.channels["v_load_v"][samples_between(lr, b, w_fault, len(ends)), b].max()) <= limit
 
 
 OPEN_START = sorted(HERE.glob("d11_*.toml"))     # open: the start overshoot (PROOFS.md, D11)
