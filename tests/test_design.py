@@ -1,6 +1,7 @@
 """linedrop design: cable figures against published tables, warnings, JSON keys, outputs, bad input."""
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -160,10 +161,15 @@ def test_json_keys(capsys):
 
 
 def test_report_carries_the_cautions(capsys):
-    """The readable report ends with the cautions line (design brief 5)."""
+    """The readable report ends with the cautions line (design brief 5); the lamp line only
+    where the load is a lamp (the demo's is a constant-current mast, garden_lamps' lamps)."""
     assert main(["design", DEMO]) == 0
-    out = capsys.readouterr().out
-    assert "max_v" in out and "cable heating" in out and "60 V" in out and "Lamp life" in out
+    out = capsys.readouterr().out.splitlines()[-1]
+    assert out.startswith("Cautions:")
+    assert "max_v" in out and "cable heating" in out and "60 V" in out and "Lamp life" not in out
+    lamps = str(Path(DEMO).with_name("garden_lamps.toml"))
+    assert main(["design", lamps]) == 0
+    assert "Lamp life" in capsys.readouterr().out.splitlines()[-1]
 
 
 def test_algorithm_out_and_header_round_trip(tmp_path, capsys):

@@ -81,3 +81,21 @@ def test_bad_scenario_exits_2_with_one_line_naming_the_key(tmp_path, capsys, pat
     assert main(["simulate", str(path), "--json"]) == 2
     err = capsys.readouterr().err
     assert needle in err and str(path) in err and err.count("\n") == 1
+
+
+@pytest.mark.parametrize("name, lamp", [("demo_mast", False), ("garden_lamps", True)])
+def test_design_and_simulate_carry_the_same_cautions_and_the_lamp_line_for_lamps_only(name, lamp, capsys):
+    """One list of cautions (harness.loop.cautions.cautions_for) in design's text and --json and
+    in simulate's text and --json; the lamp line only where the load is a lamp."""
+    path = f"harness/scenario/scenarios/{name}.toml"
+    assert main(["design", path, "--json"]) == 0
+    design_json = json.loads(capsys.readouterr().out)["cautions"]
+    assert main(["design", path]) == 0
+    design_text = capsys.readouterr().out.splitlines()[-1]
+    assert main(["simulate", path, "--json"]) == 0
+    sim = json.loads(capsys.readouterr().out)
+    assert main(["simulate", path]) == 0
+    sim_text = capsys.readouterr().out.splitlines()[-1]
+    assert design_text == sim_text == "Cautions: " + " ".join(design_json)
+    assert sim["cautions"][-len(design_json):] == design_json      # after any voltage caution
+    assert any("Lamp life" in c for c in design_json) == lamp

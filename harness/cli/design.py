@@ -19,7 +19,8 @@ spectral_radius, gain_margin (factor on the estimate to instability), convergenc
 convergence_s, dominant_poles [[re, im]], predicted_load_error_v (steady error plus
 quantisation bound plus the lag behind a drifting cable), load_error_steady_v, quantisation_error_v,
 drift_lag_error_v, ripple_load_v_pp,
-current_swing_a, warnings [str], configuration ("scenario" or "recommended"), algorithm
+current_swing_a, warnings [str], cautions [str] (the usual cautions; the lamp line for lamp loads
+only), configuration ("scenario" or "recommended"), algorithm
 (recommended [algorithm] keys), from_plant (the settings [supply]/[sensing] fix).
 
 ``--algorithm-out FILE.toml`` writes the recommended [algorithm] table (the [supply]/[sensing]
@@ -35,13 +36,6 @@ from harness.atomic import atomic_write, check_file_target
 from harness.design.report import design_report
 from harness.port.params_header import params_header
 from harness.scenario.read import load_scenario
-
-CAUTIONS = ("Cautions: this raises the supply's output on purpose; cap it with max_v whatever the "
-            "estimate. Compensation does not reduce cable heating: size conductors for the current. "
-            "Respect extra-low-voltage limits (about 60 V DC; lower for lighting and Class 2 "
-            "circuits). Lamp life falls steeply with over-voltage. Defer to local codes and licensed "
-            "practice.")
-
 
 def add_parser(sub):
     p = sub.add_parser("design", help="size perturbation, window, gains and word lengths for a scenario",
@@ -112,7 +106,7 @@ def report_text(rep):
             f"{rep['spectral_radius']:.3f}), gain margin x{rep['gain_margin']:.3g}, "
             f"converges to 1 % in {rep['convergence_windows']:.3g} windows ({rep['convergence_s']:.3g} s)"]
     out += ["Warnings:"] + [f"  - {x}" for x in rep["warnings"]] if rep["warnings"] else ["Warnings: none"]
-    out += [CAUTIONS]
+    out += ["Cautions: " + " ".join(rep["cautions"])]
     return "\n".join(out)
 
 

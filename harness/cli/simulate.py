@@ -8,7 +8,7 @@ from harness.atomic import atomic_folder, atomic_write, check_file_target, check
 from harness.cli.version import tool_version
 from harness.design.settings import given_table, with_settings
 from harness.loop.backends import BACKENDS
-from harness.loop.cautions import voltage_cautions
+from harness.loop.cautions import cautions_for, voltage_cautions
 from harness.loop.closed_loop import CHANNELS, COMPENSATIONS, sample_times, simulate, stream
 from harness.loop.decimate import Decimated
 from harness.loop.metrics import Accumulator, metrics
@@ -168,7 +168,7 @@ def run(args):
     warn = voltage_cautions(m["max_load_v"], m["max_supply_v"])
     if args.json:
         out = dict(m, scenario=path, backend=args.backend, compensation=args.compensation,
-                   settings=settings, warnings=warnings, cautions=warn)
+                   settings=settings, warnings=warnings, cautions=warn + cautions_for(sc.load.kind))
         if len(all_m) > 1:
             out["baselines"] = {k: v for k, v in all_m.items() if k != args.compensation}
         print(json.dumps(out, indent=2))
@@ -177,4 +177,5 @@ def run(args):
         _print_summary(os.path.basename(path), m, warnings + warn)
         if args.out:
             print(f"report: {os.path.join(args.out, 'report.md')}")
+        print("Cautions: " + " ".join(cautions_for(sc.load.kind)))
     return 0

@@ -2,6 +2,7 @@
 import math
 from dataclasses import replace
 
+from harness.loop.cautions import cautions_for
 from harness.scenario.algo_setup import FROM_PLANT, algo_config
 from harness.design import calculator as d
 from harness.design.operating_point import (correction_at_target, correction_ceiling_v, current_at,
@@ -176,6 +177,7 @@ def design_report(sc):
     }
     fig.update(d.predict(sc, cfg))
     fig["warnings"] = _warnings(sc, cfg, fig)
+    fig["cautions"] = cautions_for(sc.load.kind)
     fig["algorithm"] = {k: v for k, v in rec.items() if k not in FROM_PLANT}
     fig["from_plant"] = {k: (fs if k == "sample_rate_hz" else getattr(getattr(sc, s), n))
                          for k, (s, n) in FROM_PLANT.items()}

@@ -9,9 +9,20 @@ CAUTIONS = (
     "Compensation does not reduce cable heating: size the conductors for the current.",
     f"Respect extra-low-voltage limits (SELV about {ELV_DC_LIMIT_V:g} V DC; low-voltage lighting and "
     "Class 2 circuits are lower).",
-    "Lamp life falls steeply with over-voltage.",
-    "These are simulations; defer to local codes and licensed practice.",
+    "These figures are simulations and sizing rules; defer to local codes and licensed practice.",
 )
+#: Added for lamp loads only.
+LAMP_CAUTION = "Lamp life falls steeply with over-voltage."
+
+
+def cautions_for(load_kind):
+    """The usual cautions for a design or a run with a load of ``load_kind`` (list of str): the
+    lamp line only where the load is a lamp. design, simulate (text and --json) and report.md
+    all print this list."""
+    out = list(CAUTIONS)
+    if load_kind == "lamp":
+        out.insert(-1, LAMP_CAUTION)
+    return out
 
 
 def voltage_cautions(max_load_v, max_supply_v):

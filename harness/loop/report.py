@@ -3,7 +3,7 @@ import json
 import os
 
 from harness.atomic import atomic_write
-from harness.loop.cautions import CAUTIONS, voltage_cautions
+from harness.loop.cautions import cautions_for, voltage_cautions
 from harness.loop.metrics import last_event_s
 from harness.loop.report_plots import plot_comparison, plot_run
 from harness.loop.report_text import (COMPENSATION_LINES, definitions, events, fault_lines, header, outcome_table,
@@ -89,7 +89,8 @@ def write_report(out_dir, runs, all_metrics, b=0, settings=None):
     warn = voltage_cautions(max(x["max_load_v"] for x in all_metrics.values()),
                             max(x["max_supply_v"] for x in all_metrics.values()))
     text = _body(runs, all_metrics, b, settings)
-    text += warn + ([""] if warn else []) + ["## Cautions", ""] + [f"- {c}" for c in CAUTIONS]
+    text += warn + ([""] if warn else []) + ["## Cautions", ""] + [
+        f"- {c}" for c in cautions_for(runs[main].scenarios[b].load.kind)]
     with atomic_write(os.path.join(out_dir, "report.md")) as f:
         f.write("\n".join(text) + "\n")
     with atomic_write(os.path.join(out_dir, "metrics.json")) as f:
