@@ -10,6 +10,7 @@ from algo import VERSION
 from algo.config import AlgoConfig
 from algo.params import derive
 from algo.state import STATE_FIELDS, STATUS_NAMES
+from c_ref.binding import CBatch
 from harness.port import vectors
 from harness.cli.main import main
 from support.vector_helpers import read_note, write_vectors
@@ -100,10 +101,18 @@ def test_provenance_names_scenario_settings_params_seed_and_version(vec_dir):
         assert hashlib.sha256((vec_dir / entry["file"]).read_bytes()).hexdigest() == entry["sha256"]
 
 
-def test_closed_loop_vector_is_what_the_model_answers_for_its_inputs(vec_dir):
+def test_closed_loop_vector_is_what_the_c_reference_answers_on_every_sample(vec_dir):
+    """The vector is written from the Python model (model_trace); the C reference, stepped one
+    sample at a time over its ADC codes from ld_init, must give the same command and every state
+    field after every sample, exactly. (It replaces a check of model_trace against its own
+    output, which could not fail.)"""
     rows = _rows(vec_dir, "load_step")
     params = derive(AlgoConfig(**read_note(vec_dir)["algo_config"]))
-    assert np.array_equal(vectors.model_trace(params, rows[:, 0], rows[:, 1]), rows[:, 2:])
+    c = CBatch([params])
+    for t, (v, i) in enumerate(rows[:, :2].tolist()):
+        cmd = int(c.run(np.array([[v]], np.uint16), np.array([[i]], np.uint16))[0][0])
+        state = c.state(0)
+        assert [cmd] + [state[f] for f in STATE_FIELDS] == rows[t, 2:].tolist(), f"sample {t}"
 
 
 @pytest.mark.parametrize("args, message", [
