@@ -17,7 +17,7 @@ from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
 from harness.scenario.specs import LoadSpec
 from support.plant_factory import make_scenario
-from support.proof_support import run_groups, window_ends
+from support.proof_support import amplitude_in_force, run_groups, window_ends
 
 FAULT_AT, FAULT_UNTIL = 30, 45      # windows: the faults start and end on window boundaries
 
@@ -52,12 +52,8 @@ def test_the_correction_never_exceeds_the_headroom_less_the_perturbation_and_rea
     lsb = cfg.dac_full_scale_v / (1 << cfg.dac_bits)
     headroom_v = (round(24.75 / lsb) - round(24.0 / lsb)) * lsb
     corr = lr.run.channels["correction_v"][:, b]
-    pert = lr.trace["pert_amp"][:, b] * lsb
-    # The correction in force at sample k was computed at the last period end j <= k, with the
-    # amplitude of sample j - 1 (a window end at j moves the amplitude after the correction).
-    n = cfg.period_samples
-    j = (np.arange(corr.size) + 1) // n * n - 1
-    ceiling = headroom_v - pert[np.maximum(j - 1, 0)]
+    pert = amplitude_in_force(lr, b, cfg.period_samples) * lsb
+    ceiling = headroom_v - pert
     assert (corr <= ceiling + 0.5 * lsb).all()      # correction_v is float32
     assert corr[ends[-1]] >= ceiling[ends[-1]] - lsb
     assert pert[ends[-1]] > 0

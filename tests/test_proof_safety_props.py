@@ -18,8 +18,9 @@ from harness.proof import bounds as bd
 from harness.proof import strategies as hs
 from harness.scenario.algo_setup import algo_config
 from harness.errors import InputError
-from support.proof_support import (corr_ceiling_q, count_plant, report_shares, reproducer, run_groups,
-                                   samples_between, settle_windows, settled_failures, window_ends)
+from support.proof_support import (corr_ceiling_q, count_plant, r_cable_at, report_shares, reproducer,
+                                   run_groups, samples_between, settle_windows, settled_failures,
+                                   window_ends)
 
 from harness.proof import algo_strategies as sa
 
@@ -92,11 +93,16 @@ def test_nothing_winds_up_while_the_correction_is_clamped(batch, data):
         need = p.r_cable_ohm * p.load_current_a    # the correction asked for: (R-hat - ESR allowance) I
         p = replace(p, max_v=p.target_v + 0.5 * need)
         # The light load is drawn above bounds.light_load_a where the plant allows it (the settled
-        # checks then run in full) and below half the heavy one (the drop then fits the headroom).
+        # checks then run in full) and low enough that its drop, on the hottest cable, fits the
+        # correction's ceiling: the headroom less the perturbation's largest peak
+        # (algo.step.corr_ceiling), with a tenth to spare.
         probe = hs.design_scenario(p, 1)
-        floor = 2 * bd.light_load_a(algo_config(probe), probe, p.r_cable_ohm + p.esr_ohm) / p.load_current_a
-        lo = max(0.05, floor) if floor < 0.4 else 0.05
-        light = data.draw(st.floats(lo, max(lo, 0.45) if floor < 0.4 else 0.3))
+        cfg = algo_config(probe)
+        hot = r_cable_at(probe, probe.run.duration_s) / p.r_cable_ohm
+        top = max(0.05, min(0.45, 0.9 * (0.5 * need - cfg.pert_max_v) / (hot * need)))
+        floor = 2 * bd.light_load_a(cfg, probe, p.r_cable_ohm + p.esr_ohm) / p.load_current_a
+        lo = max(0.05, floor) if floor < top else 0.05
+        light = data.draw(st.floats(lo, max(lo, top)))
         p = replace(p, load_steps=((float(heavy), light),))
         recover = max(bd.RECOVER_WINDOWS, settle_windows(probe))   # like the settling, scales with R*C
         sc = hs.design_scenario(p, heavy + recover + bd.CHECK_WINDOWS, seed=n)

@@ -78,16 +78,20 @@ def window_ends(lr, b):
     return np.flatnonzero(np.diff(np.concatenate(([0], w))) != 0)
 
 
+def amplitude_in_force(lr, b, period_samples):
+    """Per sample, the perturbation amplitude (DAC codes, int64) the correction in force for
+    scenario ``b`` was computed with: that of sample j - 1 for the last period end j (a window
+    end at j moves the amplitude after the correction)."""
+    pert = lr.trace["pert_amp"][:, b].astype(np.int64)
+    j = (np.arange(pert.size) + 1) // period_samples * period_samples - 1
+    return pert[np.maximum(j - 1, 0)]
+
+
 def corr_ceiling_q(lr, b, p):
     """Per sample, the correction's ceiling (algo.step.corr_ceiling, Q corr_frac DAC codes) that
-    bounded the correction in force for scenario ``b`` under Params ``p``: the one of the last
-    period end j, with the perturbation amplitude of sample j - 1 (a window end at j moves the
-    amplitude after the correction)."""
-    pert = lr.trace["pert_amp"][:, b].astype(np.int64)
-    n = 1 << p.period_log2
-    j = (np.arange(pert.size) + 1) // n * n - 1
-    room = np.maximum(p.cmd_max - p.target_code - pert[np.maximum(j - 1, 0)], 0) << p.corr_frac
-    return np.minimum(p.corr_max_q, room)
+    bounded the correction in force for scenario ``b`` under Params ``p``."""
+    room = np.maximum(p.cmd_max - p.target_code - amplitude_in_force(lr, b, 1 << p.period_log2), 0)
+    return np.minimum(p.corr_max_q, room << p.corr_frac)
 
 
 def samples_between(lr, b, w0, w1):
