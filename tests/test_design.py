@@ -239,3 +239,57 @@ def test_prediction_counts_the_lag_behind_a_warming_cable(tmp_path):
     assert design_report(base)["drift_lag_error_v"] == 0.0
     assert rep["predicted_load_error_v"] == pytest.approx(
         abs(rep["load_error_steady_v"]) + rep["quantisation_error_v"] + rep["drift_lag_error_v"], rel=1e-12)
+
+
+START_BIAS = """
+[supply]
+target_v = 24.0
+max_v = 32.0
+[cable]
+resistance_ohm = 2.0
+[load_end]
+capacitance_f = 22e-3
+esr_ohm = 1.0
+[load]
+kind = "{kind}"
+{load}
+"""
+
+
+@pytest.mark.parametrize("kind, load, fast", [("constant_power", "power_w = 60.0", True),
+                                              ("constant_current", "current_a = 2.5", False)])
+def test_start_bias_is_the_load_ends_share_at_the_sagged_point_less_at_target(tmp_path, kind, load, fast):
+    """Invented 24 V run, 2 ohm, 22 mF with 1 ohm ESR. 60 W constant power sags uncompensated to
+    V = 12 + sqrt(144 - 120) = 16.9 V (V^2 - 24 V + 120 = 0) and draws 2.5 A at target. The load
+    end is Zc = ESR + 1/(j w C) in parallel with the load's incremental resistance -V^2/P (circuit
+    algebra, Z = Zc / (1 + g Zc) with g = -P/V^2); the bias is the real part's excess at 16.9 V
+    over 24 V, times 2.5 A. The calculator takes the shares from the sampled plant, which adds the
+    sampling's own small part: within 5 % of the circuit-algebra figure. A constant-current load's
+    share does not move with its voltage: no bias, and the steady filter."""
+    from dataclasses import replace
+    from harness.design import calculator as calc
+    path = tmp_path / "p.toml"
+    path.write_text(START_BIAS.format(kind=kind, load=load))
+    sc = load_scenario(path)
+    rec, fs = calc.recommend(replace(sc, algorithm={}))
+    bias = calc.start_bias_v(sc, dict(rec, sample_rate_hz=fs))
+    f = fs / rec["period_samples"]
+    zc = 1.0 + 1.0 / (1j * 2 * math.pi * f * 22e-3)
+    if kind == "constant_power":
+        v_sag = 12.0 + math.sqrt(24.0)
+        share = [(zc / (1.0 - 60.0 / v ** 2 * zc)).real for v in (v_sag, 24.0)]
+        assert bias == pytest.approx((share[0] - share[1]) * 2.5, rel=0.05)
+    else:
+        assert abs(bias) < 1e-9
+    assert (bias > calc.START_BIAS_SHARE * 24.0) is fast
+    assert rec.get("r_filter_shift", 2) == (calc.FAST_FILTER_SHIFT if fast else 2)
+
+
+def test_the_loop_margins_are_twice_the_estimate_move_the_proof_suite_accepts():
+    """The calculator's robustness rule (GM_TARGET above, LOW_TARGET below) is stated as twice
+    the move through a load step that the proof suite lets a valid window make; the two must
+    not drift apart."""
+    from harness.design import calculator as calc
+    from harness.proof.bounds import TRANSIENT_R_REL
+    assert calc.GM_TARGET == pytest.approx(1.0 + 2.0 * TRANSIENT_R_REL)
+    assert calc.LOW_TARGET == pytest.approx(1.0 - 2.0 * TRANSIENT_R_REL)
