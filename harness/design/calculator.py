@@ -207,11 +207,16 @@ def end_share_ohm(scenario, settings):
     cfg = algo_config(scenario, settings)
     best = None
     for op in operating_points(scenario, cfg):
-        wp = window_plant(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a),
-                          n_samples=cfg.period_samples)
         if best is None or op.i_a > best[0]:
-            best = (op.i_a, wp.r0_ohm - op.r_ohm)
+            best = (op.i_a, _share_at(op, cfg))
     return max(best[1], 0.0)
+
+
+def _share_at(op, cfg):
+    """The load end's share of the estimate (ohm) at operating point ``op``: the sampled plant's
+    Re(V/I), turned back by the ADC phase (harness.design.loop_model), less the cable."""
+    wp = window_plant(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a), n_samples=cfg.period_samples)
+    return wp.r0_ohm - op.r_ohm
 
 
 def start_bias_v(scenario, settings):
@@ -228,12 +233,8 @@ def start_bias_v(scenario, settings):
     r = scenario.cable.resistance_ohm
     worst = 0.0
     for v in load_values(scenario.load):
-        shares = []
-        for c in (sag, cfg):
-            op = operating_point(scenario, c, v, r)
-            wp = window_plant(op, c, pert_for(c, op.r_ohm + op.esr_ohm, op.i_a), n_samples=c.period_samples)
-            shares.append((wp.r0_ohm - op.r_ohm, op.i_a))
-        worst = max(worst, (shares[0][0] - shares[1][0]) * shares[1][1])
+        start, target = (operating_point(scenario, c, v, r) for c in (sag, cfg))
+        worst = max(worst, (_share_at(start, sag) - _share_at(target, cfg)) * target.i_a)
     return worst
 
 
