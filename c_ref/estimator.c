@@ -65,6 +65,9 @@ static inline unsigned ld_bit_length64(int64_t u)
  * after the shift (its ratio to the current pair is at most 2**31 / 2**14 V-codes per I-code
  * before saturating r_raw anyway), which keeps num << r_frac below 2**62 and
  * x_max_q * den below 2**62: int64 suffices.
+ * So the shifted current pair is within 2**14 and the clamped voltage pair within int32: both
+ * are held as int32 and their products are 32 x 32 -> 64-bit multiplies (one instruction on a
+ * Cortex-M3/M4; a 64 x 64 multiply there is three).
  * den > 0 because the larger current magnitude is at least swing_min >= 1.
  * The half-window differences fit int32: isum, vsum < 2**30 and isum_h, vsum_h < 2**29.
  */
@@ -75,7 +78,8 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     int64_t ii0 = ld_detrend(s->acc_ii, di, p->kt_s_q);
     int64_t iq0 = ld_detrend(s->acc_iq, di, p->kt_c_q);
     int64_t m = ld_abs64(ii0) > ld_abs64(iq0) ? ld_abs64(ii0) : ld_abs64(iq0);
-    int64_t vi0, vq0, vi, vq, ii, iq, den, num, xnum;
+    int64_t vi0, vq0, den, num, xnum;
+    int32_t vi, vq, ii, iq;
     unsigned bl, sh;
 
     *r_raw = 0;
@@ -89,11 +93,11 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
     vi = ld_sat_s32(ld_rshift_round64(vi0, sh));
     vq = ld_sat_s32(ld_rshift_round64(vq0, sh));
-    ii = ld_rshift_round64(ii0, sh);
-    iq = ld_rshift_round64(iq0, sh);
-    den = ii * ii + iq * iq;
-    num = vi * ii + vq * iq;
-    xnum = vq * ii - vi * iq;
+    ii = (int32_t)ld_rshift_round64(ii0, sh);
+    iq = (int32_t)ld_rshift_round64(iq0, sh);
+    den = (int64_t)ii * ii + (int64_t)iq * iq;
+    num = (int64_t)vi * ii + (int64_t)vq * iq;
+    xnum = (int64_t)vq * ii - (int64_t)vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
     if (s->clipped != 0u) {
         return LD_STATUS_CLIPPED;
