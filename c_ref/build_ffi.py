@@ -5,7 +5,7 @@ import re
 from cffi import FFI
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-SOURCES = ["step.c", "estimator.c", "batch.c"]
+SOURCES = ["step.c", "estimator.c", "fixed.c", "batch.c"]
 
 
 def cdef_text(header=os.path.join(HERE, "linedrop.h"), prefix="LD_"):

@@ -9,12 +9,17 @@
 
 #include <stdint.h>
 
-/* In a build for size (gcc/clang -Os) the 64-bit helpers stay out of line: they serve the
- * once-per-period and once-per-window code, and inlined at each of their dozen call sites they
- * cost about 570 bytes of flash on Cortex-M. A build for speed (-O2) inlines them: out of line
- * they add about 45 % to the window-end sample's instructions. Same results either way. */
+/* In a build for size (gcc/clang -Os) the 64-bit helpers below stay out of line and are defined
+ * once, in fixed.c: they serve the once-per-period and once-per-window code, and inlined at each
+ * of their dozen call sites they cost about 570 bytes of flash on Cortex-M (a static copy in each
+ * of step.c and estimator.c another 140). A build for speed (-O2) inlines them: out of line they
+ * add about 45 % to the window-end sample's instructions. Same results either way. */
 #if defined(__GNUC__) && defined(__OPTIMIZE_SIZE__)
-#define LD_COLD static __attribute__((noinline, unused))
+#define LD_FIXED_OUT_OF_LINE 1
+int64_t ld_sat64(int64_t x, int64_t lo, int64_t hi);
+int32_t ld_sat_s32(int64_t x);
+int64_t ld_rshift_round64(int64_t x, unsigned s);
+#define LD_COLD __attribute__((noinline))
 #else
 #define LD_COLD static inline
 #endif
@@ -24,16 +29,6 @@ static inline int32_t ld_sat(int32_t x, int32_t lo, int32_t hi)
     return x < lo ? lo : (x > hi ? hi : x);
 }
 
-LD_COLD int64_t ld_sat64(int64_t x, int64_t lo, int64_t hi)
-{
-    return x < lo ? lo : (x > hi ? hi : x);
-}
-
-static inline int32_t ld_sat_s32(int64_t x)
-{
-    return (int32_t)ld_sat64(x, INT32_MIN, INT32_MAX);
-}
-
 /* Scaling and overflow: x + 2**(s-1) must fit int32; callers keep
  * |x| < 2**31 - 2**(s-1) by range analysis. */
 static inline int32_t ld_rshift_round(int32_t x, unsigned s)
@@ -41,11 +36,24 @@ static inline int32_t ld_rshift_round(int32_t x, unsigned s)
     return s == 0u ? x : (int32_t)((x + (int32_t)(1L << (s - 1u))) >> s);
 }
 
+/* fixed.c defines LD_FIXED_DEFINE: there, and in a build for speed everywhere, the bodies. */
+#if !defined(LD_FIXED_OUT_OF_LINE) || defined(LD_FIXED_DEFINE)
+LD_COLD int64_t ld_sat64(int64_t x, int64_t lo, int64_t hi)
+{
+    return x < lo ? lo : (x > hi ? hi : x);
+}
+
+LD_COLD int32_t ld_sat_s32(int64_t x)
+{
+    return (int32_t)ld_sat64(x, INT32_MIN, INT32_MAX);
+}
+
 /* Scaling and overflow: as ld_rshift_round, in int64 (|x| < 2**63 - 2**(s-1)). */
 LD_COLD int64_t ld_rshift_round64(int64_t x, unsigned s)
 {
     return s == 0u ? x : (x + ((int64_t)1 << (s - 1u))) >> s;
 }
+#endif
 
 /* C99 '/' truncates toward zero; algo/fixed.py div_trunc mirrors it. */
 static inline int64_t ld_div_trunc(int64_t a, int64_t b)

@@ -151,16 +151,16 @@ static int32_t ld_corr_ceiling(const ld_params_t *p, const ld_state_t *s)
  * the capacitor.
  * Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
  * and |du| - |du_prev| fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
- * 2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
+ * 2**62 and kp is clamped to kp_max_q <= 2**24 (then held as int32), so kp * e is below 2**55; ki_q <= 2**16 keeps
  * ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
  * before it is stored. (The doubling test is written |du| - |du_prev| > |du_prev|, the same
  * integers, so it never forms 2 |du_prev|.)
  */
 void ld_correct(const ld_params_t *p, ld_state_t *s)
 {
-    int32_t e, corr, du, adu, adu_prev, top;
+    int32_t e, corr, du, adu, adu_prev, top, kp;
     int rang;
-    int64_t integ, kp, u;
+    int64_t integ, u;
 
     if (s->bad_windows >= p->fault_windows || s->valid_run < 2u) {
         s->corr = 0;
@@ -178,12 +178,10 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
     integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
     kp = 0;
     if (s->kp_off < 2u) {
-        kp = ld_rshift_round64((int64_t)s->r_est * p->kc_q, p->r_frac);
-        if (kp > p->kp_max_q) {
-            kp = p->kp_max_q;
-        }
+        int64_t kp64 = ld_rshift_round64((int64_t)s->r_est * p->kc_q, p->r_frac);
+        kp = kp64 > p->kp_max_q ? p->kp_max_q : (int32_t)kp64;
     }
-    u = ld_rshift_round64(kp * e, LD_GAIN_FRAC) + integ;
+    u = ld_rshift_round64((int64_t)kp * e, LD_GAIN_FRAC) + integ;
     top = ld_corr_ceiling(p, s);
     if (u > top && e > 0) {
         integ = s->integ;

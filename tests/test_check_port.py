@@ -60,6 +60,7 @@ def _first_divergence_by_driver(port, vec_dir, tmp_path):
     differs from the vectors."""
     exe = str(tmp_path / "replay")
     res = gcc([*STRICT, "-O2", "-I", str(port), DRIVER, str(port / "step.c"), str(port / "estimator.c"),
+               str(port / "fixed.c"),
                "-o", exe])
     assert res.returncode == 0, res.stderr
     note = read_note(vec_dir)

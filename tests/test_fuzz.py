@@ -21,7 +21,7 @@ C_REF = os.path.join(ROOT, "c_ref")
 FUZZ_FLAGS = ["-std=c99", "-g", "-O1", "-Wall", "-Wextra", "-Werror",
               "-fsanitize=fuzzer,address,undefined", "-fno-sanitize-recover=all"]
 SOURCES = [os.path.join(C_REF, "fuzz", "fuzz_step.c"), os.path.join(C_REF, "step.c"),
-           os.path.join(C_REF, "estimator.c")]
+           os.path.join(C_REF, "estimator.c"), os.path.join(C_REF, "fixed.c")]
 
 
 @pytest.fixture(scope="module")

@@ -18,8 +18,8 @@ QEMU = "qemu-system-arm"
 QEMU_MACHINE = "mps2-an386"
 
 CPUS = {"m4": "cortex-m4", "m0plus": "cortex-m0plus"}
-# The firmware needs these two files and the headers; batch.c is host-only.
-ALGO_SOURCES = ("step.c", "estimator.c")
+# The firmware needs these three files and the headers; batch.c is host-only.
+ALGO_SOURCES = ("step.c", "estimator.c", "fixed.c")
 WARNINGS = ("-std=c99", "-Wall", "-Wextra", "-Wconversion", "-Wsign-conversion", "-pedantic",
             "-Werror")
 # Entry points an application calls; everything else is reached from them.

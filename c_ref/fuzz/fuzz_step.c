@@ -4,7 +4,7 @@
  * Build and run (see c_ref/fuzz/README.md):
  *   clang -std=c99 -g -O1 -fsanitize=fuzzer,address,undefined \
  *         -fno-sanitize-recover=all -I c_ref c_ref/fuzz/fuzz_step.c \
- *         c_ref/step.c c_ref/estimator.c -o fuzz_step
+ *         c_ref/step.c c_ref/estimator.c c_ref/fixed.c -o fuzz_step
  *   ./fuzz_step -max_total_time=600 corpus/
  *
  * Input bytes: [0] params block index (mod LD_FUZZ_N_PARAMS); [1] mode: bit 0

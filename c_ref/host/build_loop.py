@@ -12,7 +12,7 @@ from build_ffi import cdef_text  # noqa: E402  (c_ref/build_ffi.py, beside this 
 del sys.path[0]
 #: The algorithm's sources (batch.c: its header declares ld_step_batch), compiled into this module too,
 #: and the plant loop.
-SOURCES = [os.path.join(C_REF, "step.c"), os.path.join(C_REF, "estimator.c"), os.path.join(C_REF, "batch.c"),
+SOURCES = [os.path.join(C_REF, "step.c"), os.path.join(C_REF, "estimator.c"), os.path.join(C_REF, "fixed.c"), os.path.join(C_REF, "batch.c"),
            os.path.join(HERE, "plant_loop.c")]
 
 

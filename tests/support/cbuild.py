@@ -6,7 +6,7 @@ import subprocess
 
 C_REF = os.path.join(os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))), "c_ref")
 STRICT = ["-std=c99", "-Wall", "-Wextra", "-Wconversion", "-Wsign-conversion", "-pedantic", "-Werror"]
-LIBRARY_SOURCES = ["step.c", "estimator.c"]
+LIBRARY_SOURCES = ["step.c", "estimator.c", "fixed.c"]
 DRIVER = os.path.join("tools", "replay_main.c")
 
 # name -> (extra gcc flags, tool the variant needs; see tools.require_tool)
