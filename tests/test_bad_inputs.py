@@ -21,11 +21,13 @@ def _scenario_files(command):
     ]
     return [(f"{command[0]}-scenario-{name}", files, command + [arg] + rest, 2, frags)
             for name, files, arg, frags in out
-            for rest in [["--out", "{d}/o"] if command[0] == "tune" else []]]
+            for rest in [{"tune": ["--out", "{d}/o"], "spread": ["--out", "{d}/o", "--max-error-mv", "30"]}
+                         .get(command[0], [])]]
 
 
 SCENARIO_FILE_CASES = (_scenario_files(["design"]) + _scenario_files(["simulate"])
-                       + _scenario_files(["tune"]) + _scenario_files(["vectors", "--out", "{d}/v"])
+                       + _scenario_files(["tune"]) + _scenario_files(["spread"])
+                       + _scenario_files(["vectors", "--out", "{d}/v"])
                        + _scenario_files(["bench", "--regulation", "--scenarios"]))
 
 

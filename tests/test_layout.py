@@ -18,7 +18,7 @@ LAYERS = [
     {"plant"},
     {"loop"},
     {"design"},
-    {"tune", "port", "proof"},
+    {"tune", "port", "proof", "spread"},
     {"cli"},
 ]
 #: Top-level modules kept only as import paths documented for users' own ports.

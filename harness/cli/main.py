@@ -14,8 +14,8 @@ from harness.errors import InputError
 
 def commands():
     """The subcommand modules, in the order ``--help`` lists them."""
-    from harness.cli import bench, check_port, design, replay, simulate, tune, vectors
-    return [simulate, replay, bench, design, tune, vectors, check_port]
+    from harness.cli import bench, check_port, design, replay, simulate, spread, tune, vectors
+    return [simulate, replay, bench, design, tune, spread, vectors, check_port]
 
 
 class Terminated(KeyboardInterrupt):

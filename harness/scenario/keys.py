@@ -92,6 +92,17 @@ KEYS = {
         "seed": Range(0, 2**63 - 1, integer=True),
         "start": Choice(("steady", "cold")),
     },
+    # linedrop spread's production tolerances (harness.scenario.spread_section; pairs are [lo, hi]).
+    "spread": {
+        "temperature_c": Range(-60.0, 250.0),
+        "capacitance_tol": Range(0.0, 0.9),
+        "esr_tol": Range(0.0, 0.9),
+        "esr_doubling_c": Range(0.0, 100.0),
+        "adc_gain_tol": Range(0.0, 0.1),
+        "adc_offset_lsb": Range(0.0, 100.0),
+        "bandwidth_tol": Range(0.0, 0.9),
+        "load_range": Range(0.0, 10.0, lo_open=True),
+    },
     "fault": {
         "kind": Choice(FAULT_KINDS),
         "at_s": Range(0.0, "run.duration_s", hi_open=True),

@@ -11,11 +11,12 @@ from harness.scenario.load_section import parse_load
 from harness.scenario.specs import (DEFAULT_INDUCTANCE_H_PER_M, CableSpec, FaultSpec, LoadEndSpec, RunSpec,
                            Scenario, SensingSpec, SupplySpec)
 from harness.scenario.validate import REQUIRED, Section, show
+from harness.scenario.spread_section import parse_spread
 
 #: The built-in demo scenario (an invented sensor mast), used when a command is given no file.
 DEMO = str(Path(__file__).parent / "scenarios" / "demo_mast.toml")
 
-SECTIONS = ("supply", "cable", "load_end", "load", "sensing", "algorithm", "run", "fault")
+SECTIONS = ("supply", "cable", "load_end", "load", "sensing", "algorithm", "run", "fault", "spread")
 #: Default supply.max_v as a multiple of supply.target_v.
 MAX_V_FACTOR = 1.25
 #: Default supply.dac_full_scale_v as a multiple of supply.max_v.
@@ -148,8 +149,9 @@ def parse_scenario(data, source):
     if not isinstance(faults, list):
         raise InputError(f"{src}: fault: must be an array of tables [[fault]]")
     faults = tuple(_fault(src, n, f, run, sensing) for n, f in enumerate(faults))
+    spread = parse_spread(src, data.get("spread", {}))
     return Scenario(source=src, supply=supply, cable=cable, load_end=load_end, load=load, sensing=sensing,
-                    run=run, faults=faults, algorithm=dict(algorithm))
+                    run=run, faults=faults, algorithm=dict(algorithm), spread=spread)
 
 
 def load_scenario(path):

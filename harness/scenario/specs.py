@@ -143,3 +143,6 @@ class Scenario:
     run: RunSpec = RunSpec()
     faults: tuple = ()
     algorithm: dict = field(default_factory=dict, compare=False, hash=False)
+    #: The [spread] table's tolerances (harness.scenario.spread_section.Tolerances); only
+    #: ``linedrop spread`` reads them, every other command checks and ignores them.
+    spread: object = field(default=None, compare=False, hash=False)

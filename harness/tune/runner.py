@@ -88,15 +88,16 @@ def _ignore_sigint():
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
 
 
-def chunks(jobs, workers):
-    """Split jobs into lockstep batches: one scenario and backend each, about ``workers`` in all."""
+def chunks(jobs, workers, max_chunk=MAX_CHUNK):
+    """Split jobs into lockstep batches: one scenario and backend each, about ``workers`` in all,
+    none over ``max_chunk``."""
     groups = {}
     for job in jobs:
         groups.setdefault((job.scenario.source, job.backend), []).append(job)
     total = max(1, len(jobs))
     out = []
     for group in groups.values():
-        n = max(1, round(workers * len(group) / total), math.ceil(len(group) / MAX_CHUNK))
+        n = max(1, round(workers * len(group) / total), math.ceil(len(group) / max_chunk))
         size = math.ceil(len(group) / n)
         out += [group[i:i + size] for i in range(0, len(group), size)]
     return out
@@ -114,10 +115,17 @@ class Runner:
         Local worker processes.
     progress : bool
         Show a tqdm progress bar (on stderr).
+    evaluate : callable
+        Rows (dicts with the job's ``key``) of a list of jobs run as one batch; jobs have ``key``,
+        ``scenario`` and ``backend``. Default: tune's (harness.tune.evaluate.evaluate).
+    desc, max_chunk :
+        The progress bar's label, and the most jobs in one batch.
     """
 
-    def __init__(self, cache, scheduler=None, workers=2, progress=True):
+    def __init__(self, cache, scheduler=None, workers=2, progress=True, evaluate=evaluate, desc="tune",
+                 max_chunk=MAX_CHUNK):
         self.cache = cache
+        self.evaluate, self.max_chunk = evaluate, max_chunk
         self.new = 0
         self.cached = 0
         self._client = None
@@ -133,7 +141,7 @@ class Runner:
                                  f"{str(exc).splitlines()[0] if str(exc) else type(exc).__name__}") from None
             self.workers = max(1, sum(self._client.nthreads().values()))
         from tqdm import tqdm
-        self.bar = tqdm(total=0, desc="tune", unit="run", disable=None if progress else True,
+        self.bar = tqdm(total=0, desc=desc, unit="run", disable=None if progress else True,
                         leave=False, mininterval=0.5)
 
     def close(self):
@@ -149,17 +157,17 @@ class Runner:
     def _submit_all(self, parts):
         if self._client is not None:
             from distributed import as_completed as dask_completed
-            futures = [self._client.submit(evaluate, part, pure=False) for part in parts]
+            futures = [self._client.submit(self.evaluate, part, pure=False) for part in parts]
             for fut in dask_completed(futures):
                 yield fut.result()
             return
         if self.workers <= 1 or len(parts) == 1:
             for part in parts:
-                yield evaluate(part)
+                yield self.evaluate(part)
             return
         if self._pool is None:
             self._pool = multiprocessing.Pool(self.workers, initializer=_ignore_sigint)
-        yield from self._pool.imap_unordered(evaluate, parts)
+        yield from self._pool.imap_unordered(self.evaluate, parts)
 
     def run(self, jobs):
         """Results (dicts) for ``jobs``, from the cache or freshly evaluated, in order."""
@@ -173,7 +181,7 @@ class Runner:
         if todo:
             self.bar.total += len(todo)
             self.bar.refresh()
-            for rows in self._submit_all(chunks(todo, self.workers)):
+            for rows in self._submit_all(chunks(todo, self.workers, self.max_chunk)):
                 self.cache.put_many(rows)
                 self.new += len(rows)
                 self.bar.update(len(rows))
