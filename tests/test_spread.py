@@ -1,7 +1,8 @@
 """linedrop spread: tolerances, draws, yield interval, batch independence, replay, Dask, resume.
 
 The plant is the invented demo mast (harness/scenario/scenarios/demo_mast.toml) shortened to
-0.2 s with its load step at 0.1 s, so each test runs a few draws in seconds.
+0.2 s with its load step at 0.1 s and its own [spread] table replaced by SPREAD, so each test runs a
+few draws in seconds.
 """
 import json
 import math
@@ -34,9 +35,14 @@ load_range = [0.8, 1.1]
 LIMITS = ["--max-error-mv", "30", "--max-overshoot-pct", "1", "--max-settle-ms", "40"]
 
 
+def _demo_text():
+    """The demo scenario's text without its own [spread] table (the last table of the file)."""
+    return open(DEMO, encoding="utf-8").read().split("\n[spread]")[0]
+
+
 @pytest.fixture
 def scenario_file(tmp_path):
-    text = open(DEMO, encoding="utf-8").read()
+    text = _demo_text()
     text = text.replace("duration_s = 1.0", "duration_s = 0.2").replace("steps = [[0.5, 2.2]]", "steps = [[0.1, 2.2]]")
     path = tmp_path / "mast_spread.toml"
     path.write_text(text + SPREAD, encoding="utf-8")
@@ -84,7 +90,7 @@ def test_a_draw_passes_only_when_every_given_limit_holds_and_never_settling_fail
 ])
 def test_a_bad_spread_key_is_one_line_naming_file_key_and_range(tmp_path, line, needle):
     path = tmp_path / "bad.toml"
-    path.write_text(open(DEMO, encoding="utf-8").read() + f"\n[spread]\n{line}\n", encoding="utf-8")
+    path.write_text(_demo_text() + f"\n[spread]\n{line}\n", encoding="utf-8")
     with pytest.raises(InputError) as exc:
         load_scenario(path)
     msg = str(exc.value)
@@ -186,3 +192,22 @@ def test_spread_reads_its_table_from_the_scenario_and_every_other_command_ignore
     assert replace(sc, spread=plain.spread, source=plain.source) == replace(
         plain, run=replace(plain.run, duration_s=0.2), load=replace(plain.load, steps=((0.1, 2.2),)))
     assert math.isfinite(sc.spread.capacitance_tol)
+
+
+def test_the_drivers_of_failing_are_spearmans_rank_correlation_as_scipy_computes_it():
+    # Reference: scipy.stats.spearmanr on the same columns (no ties in either).
+    stats = pytest.importorskip("scipy.stats")
+    import numpy as np
+    rng = np.random.default_rng(5)
+    spec = {"max_error_mv": 10.0}
+    rows = []
+    for k in range(40):
+        x = {name: float(rng.normal()) for name in report.DRAWN}
+        rows.append({"index": k, **x, "error_mv": 10.0 * math.exp(x["esr_factor"] - 0.5 * x["load_factor"]),
+                     "overshoot_pct": 0.0, "settle_ms": 1.0})
+    got = report.drivers(rows, spec)
+    sev = [r["error_mv"] / 10.0 for r in rows]
+    for name in report.DRAWN:
+        want = stats.spearmanr([r[name] for r in rows], sev).statistic
+        assert got[name] == pytest.approx(want, abs=1e-12), name
+    assert list(got)[0] == "esr_factor"

@@ -109,7 +109,7 @@ def run(args):
         rows = runner.run(jobs)
     finally:
         runner.close()
-    result = report.yield_of(rows, spec)
+    result = {**report.yield_of(rows, spec), "drivers": report.drivers(rows, spec)}
     worst = [(jobs[r["index"]].scenario, r) for r in report.worst_rows(rows, spec, args.worst)]
     paths = report.write_outputs(args.out, rows, spec, worst, cache.path)
     counts = {"draws": len(rows), "new": runner.new, "cached": runner.cached}
