@@ -293,3 +293,29 @@ def test_the_loop_margins_are_twice_the_estimate_move_the_proof_suite_accepts():
     from harness.proof.bounds import TRANSIENT_R_REL
     assert calc.GM_TARGET == pytest.approx(1.0 + 2.0 * TRANSIENT_R_REL)
     assert calc.LOW_TARGET == pytest.approx(1.0 - 2.0 * TRANSIENT_R_REL)
+
+
+def test_the_esr_and_current_gain_sensitivities_are_the_load_shifts_the_plant_shows():
+    # Circuit law: the ESR carries no DC current, so ESR the allowance does not cover is corrected
+    # as if it were cable and the load rises by that excess times the current; a current ADC
+    # reading 1 + g times the current scales the correction by 1 + g. The simulated plant (exact
+    # zero-order-hold of the R-L-C-ESR network) must show the shifts design predicts, within
+    # the DAC LSB and the estimate's LSB times the current (quantisation_error_v).
+    from dataclasses import replace
+    from harness.design.settings import recommended
+    from harness.loop.closed_loop import simulate
+    from harness.loop.metrics import metrics
+    sc = recommended(load_scenario(DEMO))
+    rep = design_report(sc)
+
+    def error(s):
+        return metrics(simulate([s], backend="c"))["load_error_v"]
+
+    base = error(sc)
+    d_esr = 0.05
+    esr = error(replace(sc, load_end=replace(sc.load_end, esr_ohm=sc.load_end.esr_ohm + d_esr)))
+    gain = error(replace(sc, sensing=replace(sc.sensing, gain_error=sc.sensing.gain_error + 0.01)))
+    slack = rep["quantisation_error_v"]
+    assert base - esr == pytest.approx(d_esr * rep["esr_sensitivity_v_per_ohm"], abs=slack)
+    assert base - gain == pytest.approx(rep["gain_sensitivity_v_per_pct"], abs=slack)
+    assert d_esr * rep["esr_sensitivity_v_per_ohm"] > 5 * slack and rep["gain_sensitivity_v_per_pct"] > 5 * slack

@@ -9,7 +9,8 @@ loads [{value, current_a, drop_v, load_v}] (uncompensated, hottest cable),
 uncompensated_drop_v, perturbation_hz, period_samples, periods_per_window, window_s,
 sample_rate_hz, recommended_sample_rate_hz, rc_corner_hz, capacitor_reactance_ohm,
 min_capacitance_f, compensation, loop_tau_ms (closed-loop time constant of the correction),
-capacitance_f (the C its proportional gain assumes), adc_phase_samples, r_max_ohm, corr_max_v (the
+capacitance_f (the C its proportional gain assumes), adc_phase_samples, r_max_ohm,
+esr_allowance_ohm (the ESR and load-end share the correction leaves out), corr_max_v (the
 highest correction the command carries at the largest current: within headroom_v less
 perturbation_peak_v, the perturbation riding on top of it), headroom_v, perturbation_peak_v,
 compensated_current_a (largest supply current with the load at target_v),
@@ -18,7 +19,9 @@ r_frac_bits, corr_frac_bits}, stability_margin (1 - spectral radius of the perio
 spectral_radius, gain_margin (factor on the estimate to instability), convergence_windows,
 convergence_s, dominant_poles [[re, im]], predicted_load_error_v (steady error plus
 quantisation bound plus the lag behind a drifting cable), load_error_steady_v, quantisation_error_v,
-drift_lag_error_v, ripple_load_v_pp,
+drift_lag_error_v, esr_sensitivity_v_per_ohm and gain_sensitivity_v_per_pct (how far the load
+rises at the largest current per ohm of ESR above the allowance and per 1 % of current-ADC gain
+error), ripple_load_v_pp,
 current_swing_a, warnings [str], cautions [str] (the usual cautions; the lamp line for lamp loads
 only), configuration ("scenario" or "recommended"), algorithm
 (recommended [algorithm] keys), from_plant (the settings [supply]/[sensing] fix).
@@ -101,6 +104,10 @@ def report_text(rep):
             f"(steady {1e3 * rep['load_error_steady_v']:.3g} mV + quantisation "
             f"{1e3 * rep['quantisation_error_v']:.3g} mV"
             + (f" + drift lag {1e3 * rep['drift_lag_error_v']:.3g} mV" if rep["drift_lag_error_v"] else "") + ")",
+            f"Sensitivity at {rep['compensated_current_a']:.3g} A: the load rises "
+            f"{1e3 * rep['esr_sensitivity_v_per_ohm'] / 100:.3g} mV per 10 mOhm the ESR rises above "
+            f"what the {1e3 * rep['esr_allowance_ohm']:.3g} mOhm allowance was set for (the cold raises it), and "
+            f"{1e3 * rep['gain_sensitivity_v_per_pct']:.3g} mV per 1 % the current ADC reads high",
             f"Perturbation ripple at the load: {1e3 * rep['ripple_load_v_pp']:.3g} mV p-p",
             f"Loop: stability margin {rep['stability_margin']:.3f} (spectral radius "
             f"{rep['spectral_radius']:.3f}), gain margin x{rep['gain_margin']:.3g}, "

@@ -355,12 +355,14 @@ def predict(scenario, cfg):
     The load error is target_v - V_load at the compensated operating point, from the
     estimate the loop settles to (cable + ESR + the load's share, harness.design.loop_model), plus a
     quantisation bound: half a DAC LSB plus one estimate LSB times the current, plus the lag
-    behind a drifting cable (drift_lag_v) at the largest current.
+    behind a drifting cable (drift_lag_v) at the largest current. Also how far the load moves
+    at the largest current per ohm of ESR away from the allowance and per 1 % of current-ADC
+    gain error (production spread: ``linedrop spread``).
     """
     sense_gain = 1.0 + scenario.sensing.gain_error
     dac_lsb = cfg.dac_full_scale_v / (1 << cfg.dac_bits)
     r_lsb = cfg.v_full_scale_v / cfg.i_full_scale_a / (1 << cfg.r_frac_bits)
-    err, quant, ripple, swing, i_top = 0.0, 0.0, 0.0, 0.0, 0.0
+    err, quant, ripple, swing, i_top, corr_top = 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
     for op in operating_points(scenario, cfg):
         an = analyse(op, cfg, pert_for(cfg, op.r_ohm + op.esr_ohm, op.i_a), sense_gain=sense_gain)
         r0 = an.plant.r0_ohm
@@ -370,11 +372,18 @@ def predict(scenario, cfg):
         if abs(e) > abs(err):
             err = e
         quant = max(quant, dac_lsb / 2 + r_lsb * op.i_a)
-        i_top = max(i_top, op.i_a)
+        if op.i_a >= i_top:
+            i_top, corr_top = op.i_a, corr
         rp, sw = pert_ripple(scenario, cfg, r0, op.i_a)
         ripple, swing = max(ripple, rp), max(swing, sw)
     lag = drift_lag_v(scenario, cfg, i_top)
-    return {"predicted_load_error_v": float(abs(err) + quant + lag), "load_error_steady_v": float(err),
+    # Sensitivities at the largest current. The ESR carries no DC current, so an ESR above the
+    # allowance is corrected as if it were cable: the load rises by that excess times the current
+    # (per ohm: the current). A current-ADC gain error g reads the current, and so the
+    # correction, 1 + g times too high (per 1 %: 1 % of the correction).
+    return {"esr_sensitivity_v_per_ohm": float(sense_gain * i_top),
+            "gain_sensitivity_v_per_pct": float(0.01 * corr_top / sense_gain),
+            "predicted_load_error_v": float(abs(err) + quant + lag), "load_error_steady_v": float(err),
             "quantisation_error_v": float(quant), "drift_lag_error_v": float(lag),
             "ripple_load_v_pp": float(ripple),
             "current_swing_a": float(swing)}

@@ -157,6 +157,7 @@ def design_report(sc):
         "capacitance_f": cfg.capacitance_f,
         "adc_phase_samples": cfg.adc_phase_samples,
         "r_max_ohm": cfg.r_max_ohm,
+        "esr_allowance_ohm": cfg.esr_allowance_ohm,
         "corr_max_v": correction_ceiling_v(cfg, r_max + le.esr_ohm, i_comp),
         "perturbation_peak_v": pert_for(cfg, r_max + le.esr_ohm, i_comp),
         "headroom_v": max(0.0, sc.supply.max_v - sc.supply.target_v),
