@@ -1,7 +1,7 @@
 """Batched nonlinear loads, each reduced per sample to a Norton companion (conductance + current)."""
 
 import numpy as np
-from scipy.optimize import brentq
+from harness.plant.roots import brentq
 
 from harness.scenario.specs import restart_voltage
 
