@@ -11,13 +11,20 @@ from algo.params import derive
 BACKENDS = ("model", "c", "ideal")
 
 
+def derived(cfgs):
+    """``algo.params.derive`` of each AlgoConfig, derived once for equal configs (a batch of
+    copies derives one)."""
+    done = {}
+    return [done[c] if c in done else done.setdefault(c, derive(c)) for c in cfgs]
+
+
 def make(backend, cfgs):
     """Build ``len(cfgs)`` instances of ``backend`` from a list of AlgoConfig."""
     if backend == "model":
-        return BatchModel([derive(c) for c in cfgs])
+        return BatchModel(derived(cfgs))
     if backend == "c":
         from c_ref.binding import CBatch
-        return CBatch([derive(c) for c in cfgs])
+        return CBatch(derived(cfgs))
     if backend == "ideal":
         return IdealBatch(cfgs)
     raise ValueError(f"unknown backend {backend!r}; choose one of {', '.join(BACKENDS)}")
