@@ -74,11 +74,27 @@ typedef struct {
     double z[6];
 } ldp_local_t;
 
+/* DiscreteSystems.advance for one scenario: out[r] = sum over c of w[c * 5 + r] z[c], each sum
+ * taken in einsum's order (c ascending, from 0.0); the five rows side by side, so the five sums
+ * do not wait on each other. */
+static void ldp_product(const double *w, const double *z, size_t n_in, double out[5])
+{
+    size_t r, c;
+    for (r = 0; r < 5; r++) {
+        out[r] = 0.0;
+    }
+    for (c = 0; c < n_in; c++) {
+        for (r = 0; r < 5; r++) {
+            out[r] += w[c * 5 + r] * z[c];
+        }
+    }
+}
+
 /* One scenario's sample after the checks: Plant.step from the clamp on, LoadBank.advance and
  * update_lockout, Adc.convert with stuck codes, and the next command. */
 static void ldp_sample(ldp_batch_t *b, ldp_local_t *loc, size_t j, size_t k, size_t row, double g, double i_n)
 {
-    size_t n = b->n, r, c;
+    size_t n = b->n, r;
     double *z = loc->z;
     double command_v, v0 = b->v_load[j], out[5], outc[5], noise_v, noise_i;
     int64_t vc, ic;
@@ -89,25 +105,13 @@ static void ldp_sample(ldp_batch_t *b, ldp_local_t *loc, size_t j, size_t k, siz
     /* Plant.step: clamp, load current source, the linear step. */
     z[3] = ldp_min(ldp_max(command_v, 0.0), b->max_v[j]);
     z[4] = i_n + (g - b->g_fold[j]) * v0;
-    for (r = 0; r < 5; r++) {
-        double acc = 0.0;
-        for (c = 0; c < 5; c++) {
-            acc += loc->w0[c * 5 + r] * z[c];
-        }
-        out[r] = acc;
-    }
+    ldp_product(loc->w0, z, 5, out);
     /* Plant._limit. */
     if (b->has_limit) {
         int to_cc = out[1] > b->i_lim[j];
         if (b->mode[j] || to_cc) {
             int now;
-            for (r = 0; r < 5; r++) {
-                double acc = 0.0;
-                for (c = 0; c < 6; c++) {
-                    acc += loc->w1[c * 5 + r] * z[c];
-                }
-                outc[r] = acc;
-            }
+            ldp_product(loc->w1, z, 6, outc);
             now = (b->mode[j] || to_cc) && !(b->mode[j] && outc[3] > out[3]) && b->closed[j];
             if (now) {
                 for (r = 0; r < 5; r++) {
