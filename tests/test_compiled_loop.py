@@ -121,6 +121,14 @@ def test_compiled_loop_agrees_on_each_generated_scenario_alone(k):
     _assert_agree([_generated("steady")[k]], pieces=3)
 
 
+def test_compiled_loop_agrees_on_a_batch_of_copies_sharing_their_refreshes():
+    """Copies refresh at the same samples, and the C loop reuses one discretisation for them:
+    a warming cable's (plant_systems.c) and a constant-power load's (numpy's, called back)."""
+    ramp, cp = _generated("steady")[3], _generated("steady")[2]
+    loop = _assert_agree([ramp, cp, ramp, cp, ramp])
+    assert loop.refreshes > 0, loop.refreshes
+
+
 def test_compiled_loop_without_compensation_agrees_on_the_generated_batch():
     _assert_agree(_generated("cold"), "none", pieces=2)
 
