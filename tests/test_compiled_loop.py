@@ -112,13 +112,21 @@ def test_compiled_loop_agrees_with_numpy_plant_on_every_shipped_scenario(path, c
 @pytest.mark.parametrize("start", ["steady", "cold"])
 def test_compiled_loop_agrees_on_every_load_fault_and_converter_kind_in_one_batch(start):
     loop = _assert_agree(_generated(start))
-    # The run crossed windows and refolds, so the numpy plant's preamble was exercised.
-    assert loop.reasons.get("window", 0) > 0 and loop.reasons.get("refold", 0) > 0, loop.reasons
+    # The run crossed windows (the numpy plant's preamble ran) and refolds (the C loop's own).
+    assert loop.reasons.get("window", 0) > 0 and loop.refreshes > 0, (loop.reasons, loop.refreshes)
 
 
 @pytest.mark.parametrize("k", range(9))
 def test_compiled_loop_agrees_on_each_generated_scenario_alone(k):
     _assert_agree([_generated("steady")[k]], pieces=3)
+
+
+def test_compiled_loop_agrees_on_a_batch_of_copies_sharing_their_refreshes():
+    """Copies refresh at the same samples, and the C loop reuses one discretisation for them:
+    a warming cable's (plant_systems.c) and a constant-power load's (numpy's, called back)."""
+    ramp, cp = _generated("steady")[3], _generated("steady")[2]
+    loop = _assert_agree([ramp, cp, ramp, cp, ramp])
+    assert loop.refreshes > 0, loop.refreshes
 
 
 def test_compiled_loop_without_compensation_agrees_on_the_generated_batch():

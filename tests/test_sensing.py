@@ -82,3 +82,16 @@ def test_dac_volts_are_code_times_full_scale_over_two_to_bits():
     assert dac.to_volts(np.array([5000]))[0] == 1023 * 32.0 / 1024
     assert dac.to_code(np.array([24.0]))[0] == 768
     assert dac.to_code(np.array([24.0 + 0.49 * 32 / 1024]))[0] == 768
+
+
+@pytest.mark.parametrize("planned", [1, 4096, 5000])
+def test_a_planned_run_length_leaves_the_noise_unchanged_before_and_past_it(planned):
+    """The reference is the same ADC without a plan (its noise drawn block after block)."""
+    spec = replace(SPEC, noise_lsb_rms=3.0)
+    v = np.full(3, 20.0)
+    ref, got = Adc([spec] * 3, seeds=range(3)), Adc([spec] * 3, seeds=range(3))
+    got.plan(planned)
+    for _ in range(9000):
+        np.testing.assert_array_equal(got.convert(v, v / 10)[0], ref.convert(v, v / 10)[0])
+    ref.close()
+    got.close()

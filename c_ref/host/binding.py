@@ -7,7 +7,7 @@ except ImportError as exc:  # pragma: no cover - exercised only on a broken inst
     raise ImportError("the compiled closed loop is not built; run 'pip install .' in the project root") from exc
 
 #: Why ldp_run stopped, by its code.
-REASONS = {lib.LDP_DONE: "done", lib.LDP_WINDOW: "window", lib.LDP_REFOLD: "refold",
+REASONS = {lib.LDP_DONE: "done", lib.LDP_WINDOW: "window",
            lib.LDP_STUCK: "stuck", lib.LDP_NOISE: "noise"}
 N_REC = lib.LDP_N_REC
 _CTYPE = {np.dtype(np.float64): "double *", np.dtype(np.float32): "float *", np.dtype(np.uint8): "uint8_t *",
@@ -58,7 +58,27 @@ class LoopBatch:
             self._b.rec[i] = ffi.NULL if a is None else ffi.cast("float *", ffi.from_buffer(a))
             self._held[f"rec{i}"] = a
 
+    def on_refresh(self, fn):
+        """Point ``numpy_refresh`` at ``fn(j)``; returns the callback, which the caller keeps alive."""
+        cb = ffi.callback("void(size_t)", fn)
+        self._b.numpy_refresh = cb
+        self._held["numpy_refresh"] = cb
+        return cb
+
+    def refreshes(self):
+        """Discretisations ldp_run refreshed so far."""
+        return int(self._b.refreshes)
+
     def run(self, k0, n_samples, rec_row):
         """Run samples ``k0 ..`` (at most ``n_samples``); returns (samples done, reason name)."""
         done = lib.ldp_run(self._b, k0, n_samples, rec_row, self._why)
         return done, REASONS[self._why[0]]
+
+
+def systems(r, l, c, esr, g, omega, is_open, dt_s):
+    """plant_systems.c's step matrices of one scenario: w0 (5, 5) and w1 (6, 5), laid out as
+    ``DiscreteSystems.w[mode][:, :, j]`` (input, output)."""
+    w0, w1 = np.empty((5, 5)), np.empty((6, 5))
+    lib.ldp_systems(r, l, c, esr, g, omega, int(is_open), dt_s, ffi.cast("double *", ffi.from_buffer(w0)),
+                    ffi.cast("double *", ffi.from_buffer(w1)))
+    return w0, w1

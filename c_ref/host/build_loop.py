@@ -11,19 +11,22 @@ from build_ffi import cdef_text  # noqa: E402  (c_ref/build_ffi.py, beside this 
 
 del sys.path[0]
 #: The algorithm's sources (batch.c: its header declares ld_step_batch), compiled into this module too,
-#: and the plant loop.
-SOURCES = [os.path.join(C_REF, "step.c"), os.path.join(C_REF, "estimator.c"), os.path.join(C_REF, "fixed.c"), os.path.join(C_REF, "batch.c"),
-           os.path.join(HERE, "plant_loop.c")]
+#: the plant loop and its discretisation.
+SOURCES = [os.path.join(C_REF, "step.c"), os.path.join(C_REF, "estimator.c"), os.path.join(C_REF, "fixed.c"),
+           os.path.join(C_REF, "batch.c"),
+           os.path.join(HERE, "plant_loop.c"), os.path.join(HERE, "plant_systems.c")]
 
 
 ffibuilder = FFI()
-ffibuilder.cdef(cdef_text() + "\n" + cdef_text(os.path.join(HERE, "plant_loop.h"), "LDP_"))
+ffibuilder.cdef(cdef_text() + "\n" + cdef_text(os.path.join(HERE, "plant_loop.h"), "LDP_") + "\n"
+                + cdef_text(os.path.join(HERE, "plant_systems.h"), "LDP_"))
 ffibuilder.set_source(
     "c_ref.host._plant_loop_cffi",
-    '#include "plant_loop.h"',
+    '#include "plant_loop.h"\n#include "plant_systems.h"',
     sources=[os.path.relpath(s) for s in SOURCES],
     include_dirs=[os.path.relpath(C_REF), os.path.relpath(HERE)],
-    extra_compile_args=["-std=c99", "-O2"],
+    # No fused multiply-adds: the plant follows numpy's rounding operation for operation.
+    extra_compile_args=["-std=c99", "-O2", "-ffp-contract=off"],
     libraries=["m"],
 )
 

@@ -16,22 +16,45 @@
 
 /* Why ldp_run returned. */
 #define LDP_DONE 0      /* every requested sample ran */
-#define LDP_WINDOW 1    /* a fault or load window edge, or a cable ramp refresh, is due */
-#define LDP_REFOLD 2    /* a load's conductance moved past the refold tolerance */
-#define LDP_STUCK 3     /* the stuck-ADC window changes at the next sample's end */
-#define LDP_NOISE 4     /* the noise block is used up */
+#define LDP_WINDOW 1    /* a fault or load window edge is due */
+#define LDP_STUCK 2     /* the stuck-ADC window changes at the next sample's end */
+#define LDP_NOISE 3     /* the noise block is used up */
 
 /* Pointers to the caller's arrays; every per-scenario array has n entries. */
 typedef struct {
     size_t n;
     double dt_s;
-    /* Discrete systems, input-major, scenario last: w0 (5, 5, n), w1 (6, 5, n). */
-    const double *w0;
-    const double *w1;
+    /* Discrete systems, input-major, scenario last: w0 (5, 5, n), w1 (6, 5, n); refreshed in
+     * place (Plant._sync) from the parameters they were last computed with. */
+    double *w0;
+    double *w1;
+    double *r;                /* loop resistance, ohm */
+    const double *l_h;
+    const double *c_f;        /* capacitance of this window, F */
+    const double *esr;        /* ESR of this window, ohm */
+    const double *g_leak;     /* leakage conductance, S */
+    const double *omega;      /* supply loop bandwidth, rad/s */
+    const uint8_t *open;      /* cable open (the systems' own, this window) */
+    size_t refreshes;         /* discretisations refreshed, counted */
+    /* Refreshes scenario j's w0 and w1 with the numpy plant's own discretisation, where the
+     * load end is unstable (see ldp_refresh); NULL: plant_systems.c's everywhere. */
+    void (*numpy_refresh)(size_t j);
+    /* Cable ramps (CableBank): which ramp, their constants, the next sample each drifts. */
+    const uint8_t *ramp;
+    const double *r_start;
+    const double *t0_c;
+    const double *t1_c;
+    const double *ramp_s;
+    const double *rho20;
+    const double *alpha;
+    const double *rho0;
+    double t_ref_c;           /* conductors.T_REF_C */
+    double r_refresh_rel;     /* plant.R_REFRESH_REL */
+    double *ramp_k;           /* CableBank.first_drift_k of each ramp; inf elsewhere */
     /* Plant inputs and state z (6, n): v_int, i_cable, v_cap, v_cmd, i_src, i_lim. */
     double *z;
     double *v_load;
-    const double *g_fold;     /* conductance folded into the systems, S */
+    double *g_fold;           /* conductance folded into the systems, S */
     const double *max_v;
     const double *i_lim;      /* inf where the supply has no limit */
     int has_limit;
@@ -78,18 +101,16 @@ typedef struct {
     double *cmd;              /* command codes in force (from the last step) */
     /* Windows. */
     double t_next_s;
-    double ramp_due_k;
     /* Recording: LDP_N_REC float arrays (rows, n), NULL to skip; units for r_est and corr. */
     float *rec[LDP_N_REC];
     double *trace;            /* NULL, or (rows, 4, n): v_supply, i_supply, v_load, next command code */
     const double *r_unit;
     const double *corr_unit;
-    double *g_scratch;
-    double *i_scratch;
 } ldp_batch_t;
 
 /* Run samples k0 .. k0 + n_samples - 1 (recorded from row rec_row); stops early before a
- * sample the numpy plant must prepare, except sample k0 (already prepared by the caller).
+ * sample the numpy plant must prepare (a window edge), except sample k0 (already prepared by
+ * the caller). A load refold or a cable ramp refresh is done here, as Plant._sync does it.
  * Returns the samples done; *why gets LDP_DONE or the reason it stopped. */
 size_t ldp_run(ldp_batch_t *b, size_t k0, size_t n_samples, size_t rec_row, int *why);
 

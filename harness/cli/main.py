@@ -12,10 +12,20 @@ from harness.atomic import finished
 from harness.errors import InputError
 
 
-def commands():
-    """The subcommand modules, in the order ``--help`` lists them."""
-    from harness.cli import bench, check_port, design, replay, simulate, spread, tune, vectors
-    return [simulate, replay, bench, design, tune, spread, vectors, check_port]
+#: Subcommand names and their modules (harness.cli.<module>), in the order ``--help`` lists them.
+COMMANDS = (("simulate", "simulate"), ("replay", "replay"), ("bench", "bench"), ("design", "design"),
+            ("tune", "tune"), ("spread", "spread"), ("vectors", "vectors"), ("check-port", "check_port"))
+
+
+def commands(name=None):
+    """The subcommand modules, in the order ``--help`` lists them; only ``name``'s where it is one.
+
+    Importing every subcommand takes longer than a short simulation, so a command line naming
+    one imports that one alone."""
+    import importlib
+    known = dict(COMMANDS)
+    wanted = [known[name]] if name in known else [m for _, m in COMMANDS]
+    return [importlib.import_module(f"harness.cli.{m}") for m in wanted]
 
 
 class Terminated(KeyboardInterrupt):
@@ -38,14 +48,27 @@ class Parser(argparse.ArgumentParser):
         raise UsageError(f"{self.prog}: error: {message} (see {self.prog} --help)")
 
 
-def build_parser():
-    from harness.cli.version import tool_version
+class _Version(argparse.Action):
+    """``--version``: the version is looked up only when asked for (the package metadata is slow to read)."""
+
+    def __init__(self, option_strings, dest, **kwargs):
+        super().__init__(option_strings, dest, nargs=0, help="show the version and exit", **kwargs)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        from harness.cli.version import tool_version
+        print(tool_version())
+        parser.exit()
+
+
+def build_parser(argv=None):
+    """The parser; with ``argv`` (the arguments, without the program name) starting with a
+    subcommand's name, the parser knows that subcommand only."""
     parser = Parser(
         prog="linedrop",
         description="Sense-wire-free line-drop compensation: model, C reference and harness.")
-    parser.add_argument("--version", action="version", version=tool_version())
+    parser.add_argument("--version", action=_Version)
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    for mod in commands():
+    for mod in commands(argv[0] if argv else None):
         mod.add_parser(sub)
     return parser
 
@@ -83,7 +106,7 @@ def main(argv=None):
 
 def _main(argv):
     try:
-        parser = build_parser()
+        parser = build_parser(sys.argv[1:] if argv is None else list(argv))
         from algo.config import ConfigError
     except KeyboardInterrupt as exc:
         word, status = _stopped(exc)

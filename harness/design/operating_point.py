@@ -1,7 +1,7 @@
 """DC operating points of a scenario's plant under compensation, linearised for the loop model."""
 import math
 
-from scipy.optimize import brentq
+from harness.plant.roots import brentq
 
 from harness.plant.loads import LAMP_R_EXPONENT, lamp_steady_u
 from harness.design.loop_model import OperatingPoint

@@ -4,21 +4,28 @@ Every backend steps ``n`` independent instances in lockstep and offers
 ``step(adc_v, adc_i) -> commands``, ``run`` over (n, T) arrays, ``state(k)``
 and ``states()``. Commands are DAC codes (fractional for the ideal).
 """
-from algo.batch import BatchModel
-from algo.ideal import IdealBatch
 from algo.params import derive
 
 BACKENDS = ("model", "c", "ideal")
 
 
+def derived(cfgs):
+    """``algo.params.derive`` of each AlgoConfig, derived once for equal configs (a batch of
+    copies derives one)."""
+    done = {}
+    return [done[c] if c in done else done.setdefault(c, derive(c)) for c in cfgs]
+
+
 def make(backend, cfgs):
     """Build ``len(cfgs)`` instances of ``backend`` from a list of AlgoConfig."""
     if backend == "model":
-        return BatchModel([derive(c) for c in cfgs])
+        from algo.batch import BatchModel
+        return BatchModel(derived(cfgs))
     if backend == "c":
         from c_ref.binding import CBatch
-        return CBatch([derive(c) for c in cfgs])
+        return CBatch(derived(cfgs))
     if backend == "ideal":
+        from algo.ideal import IdealBatch
         return IdealBatch(cfgs)
     raise ValueError(f"unknown backend {backend!r}; choose one of {', '.join(BACKENDS)}")
 

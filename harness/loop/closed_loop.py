@@ -187,19 +187,24 @@ def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=
     durations = {s.run.duration_s for s in scenarios}
     if len(durations) != 1:
         raise ValueError(f"scenarios in one batch must share run.duration_s, got {sorted(durations)}")
-    cfgs = [algo_config(s, overrides) for s in scenarios]
+    reason = None if plant == "numpy" else compiled.why_not(backend, compensation)
+    if plant not in compiled.PLANT_CHOICES or (plant == "compiled" and reason):
+        raise ValueError(f"plant {plant!r}: {reason or 'choose from ' + ', '.join(compiled.PLANT_CHOICES)}")
+    cfgs = _configs(scenarios, overrides)
     rig = build_rig(scenarios)
-    comp, fixed_point = make_compensator(compensation, backend, cfgs, scenarios)
-    r_unit, corr_unit = _units(comp, cfgs, fixed_point)
     n_t = int(round(durations.pop() * cfgs[0].sample_rate_hz))
+    rig.adc.plan(n_t)    # the first noise block is drawn on the worker while the rest is set up
+    try:
+        comp, fixed_point = make_compensator(compensation, backend, cfgs, scenarios)
+        obs = rig.reset()
+    except BaseException:
+        rig.adc.close()
+        raise
+    r_unit, corr_unit = _units(comp, cfgs, fixed_point)
     chunk = n_t if chunk_samples is None else max(1, min(int(chunk_samples), n_t))
     if compensation != "linedrop":
         channels = [n for n in channels if n not in OUTCOME_CHANNELS]
     rec = {name: np.empty((chunk, len(scenarios)), dtype=np.float32) for name in channels}
-    obs = rig.reset()
-    reason = None if plant == "numpy" else compiled.why_not(backend, compensation)
-    if plant not in compiled.PLANT_CHOICES or (plant == "compiled" and reason):
-        raise ValueError(f"plant {plant!r}: {reason or 'choose from ' + ', '.join(compiled.PLANT_CHOICES)}")
     if plant != "numpy" and reason is None:
         loop = compiled.CompiledLoop(rig, comp, r_unit, corr_unit)
         _stream_compiled(loop, rec, sink, n_t, chunk, cfgs[0].sample_rate_hz, progress, compensation)
@@ -236,6 +241,13 @@ def stream(scenarios, sink, backend="model", compensation="linedrop", overrides=
     return Run(t_s=np.empty(0), channels={}, scenarios=list(scenarios), cfgs=cfgs,
                r_cable_ohm=np.asarray(obs.r_cable_ohm, dtype=float).copy(), backend=backend,
                compensation=compensation, plant_path="numpy" if plant == "numpy" else f"numpy ({reason})")
+
+
+def _configs(scenarios, overrides):
+    """``algo_config`` of each scenario, read once for a scenario given more than once."""
+    done = {}
+    return [done[id(s)] if id(s) in done else done.setdefault(id(s), algo_config(s, overrides))
+            for s in scenarios]
 
 
 def _stream_compiled(loop, rec, sink, n_t, chunk, rate_hz, progress, compensation):

@@ -1,17 +1,21 @@
 """The closed loop in C: the numpy plant's per-sample update, its converters and ld_step, many samples per call.
 
-The numpy plant (harness.plant.plant.Plant) stays the reference and keeps every decision that
-is not per sample: at a fault or load window edge, a cable-ramp refresh or a load conductance
-past the refold tolerance, the C loop stops before the sample, :meth:`CompiledLoop._prepare`
-runs exactly the preamble of ``Plant.step`` (window, companion, discretisation refresh by
-subset) and the C loop carries on from that sample. The C code follows the numpy operations one
-for one (c_ref/host/plant_loop.c); tests/test_compiled_loop.py holds the two together.
+The numpy plant (harness.plant.plant.Plant) stays the reference and keeps the decisions taken
+at a fault or load window edge: there the C loop stops before the sample,
+:meth:`CompiledLoop._prepare` runs exactly the preamble of ``Plant.step`` (window, companion,
+discretisation refresh by subset) and the C loop carries on from that sample. Between edges
+the C loop refolds a load conductance past the tolerance and follows a cable ramp itself
+(``Plant._sync``, with the discretisation of c_ref/host/plant_systems.c), writing the plant's
+own resistance, folded conductance and step matrices in place. The C code follows the numpy
+operations one for one (c_ref/host/plant_loop.c); tests/test_compiled_loop.py holds the two
+together.
 """
 import numpy as np
 
 from harness.loop import backends
-from harness.plant.plant import REFOLD_REL
+from harness.plant.plant import REFOLD_REL, R_REFRESH_REL
 from harness.plant.loads import LAMP_R_EXPONENT, LAMP_U_AMBIENT
+from harness.scenario.conductors import T_REF_C
 from harness.scenario.specs import LOAD_SHORT_OHM
 
 #: Recorded channels in the C loop's order (c_ref/host/plant_loop.h, ldp_batch_t.rec).
@@ -52,11 +56,19 @@ class CompiledLoop:
 
     def __init__(self, rig, comp, r_unit, corr_unit):
         self.rig, self.plant, self.adc, self.dac = rig, rig.plant, rig.adc, rig.dac
-        p, loads, n = self.plant, self.plant.loads, self.plant.n_batch
+        p, loads, n, cables = self.plant, self.plant.loads, self.plant.n_batch, self.plant.cables
         self.n = n
         self.cmd = np.array(comp.field("cmd"), dtype=np.float64)
+        self._ramp = np.zeros(n, dtype=np.uint8)
+        self._ramp[cables.ramps] = 1
+        self._ramp_k = np.full(n, np.inf)
         self._b = b = backends.compiled_loop().LoopBatch(n, p.dt_s)
-        b.set(w0=p.systems.w[0], w1=p.systems.w[1], z=p._z, max_v=_f64(p.max_v), i_lim=_f64(p.i_lim),
+        b.set(l_h=_f64(p.l_h), g_leak=_f64(p.g_leak), omega=_f64(p.omega), ramp=self._ramp,
+              r_start=_f64(cables.r_start), t0_c=_f64(cables.t0_c), t1_c=_f64(cables.t1_c),
+              ramp_s=_f64(cables.ramp_s), rho20=_f64(cables.rho20), alpha=_f64(cables.alpha),
+              rho0=_f64(cables._rho0), t_ref_c=float(T_REF_C), r_refresh_rel=R_REFRESH_REL,
+              ramp_k=self._ramp_k)
+        b.set(z=p._z, max_v=_f64(p.max_v), i_lim=_f64(p.i_lim),
               has_limit=int(p._limited), g_short=1.0 / LOAD_SHORT_OHM,
               kind=np.ascontiguousarray(loads.kind, dtype=np.int32), lockout=_u8(loads.lockout),
               cutoff_v=_f64(loads.cutoff_v), restart_v=_f64(loads.restart_v), r_hot=_f64(loads.r_hot),
@@ -65,8 +77,8 @@ class CompiledLoop:
               refold_rel=REFOLD_REL, lsb=_f64(self.adc._lsb), gain=_f64(self.adc.gain),
               offset=_f64(self.adc.offset), adc_max=_f64(self.adc._code_max),
               v_per_code=_f64(self.dac.v_per_code), dac_max=self.dac.code_max.astype(np.float64),
-              cmd=self.cmd, r_unit=_f64(r_unit), corr_unit=_f64(corr_unit),
-              g_scratch=np.zeros(n), i_scratch=np.zeros(n))
+              cmd=self.cmd, r_unit=_f64(r_unit), corr_unit=_f64(corr_unit))
+        self._refresh_cb = b.on_refresh(self._numpy_refresh)
         if hasattr(comp, "_states"):
             b.set_algorithm(comp._params, comp._states)
             b.set(cmd_const=None)
@@ -77,6 +89,13 @@ class CompiledLoop:
         self._mode = np.zeros(n, dtype=np.uint8)
         self._zeros = np.zeros(n, dtype=np.uint8)
         self.reasons = {}
+
+    def _numpy_refresh(self, j):
+        """``DiscreteSystems.refresh`` of scenario ``j`` from the parameters the C loop holds
+        (called from C where the load end is unstable; c_ref/host/plant_loop.c, ldp_refresh)."""
+        p = self.plant
+        idx = np.array([j])
+        p.systems.refresh(idx, p._r, p.l_h, p._c, p._esr, p._g + p.g_leak, p.omega, p._open)
 
     def _prepare(self, k):
         """``Plant.step``'s preamble at sample ``k``: the window, the companion, the refresh."""
@@ -104,13 +123,16 @@ class CompiledLoop:
         stuck_v, stuck_i = self.rig.plant.faults.stuck_codes((k + 1) * p.dt_s)
         lo, hi = self.rig.plant.faults._stuck_win
         noise = self.adc.noise_ahead()
-        b.set(v_load=self._v_load, on=self._on, mode=self._mode, g_fold=_f64(p._g),
+        # The plant's own arrays where the C loop refreshes them in place (float64 already).
+        b.set(w0=p.systems.w[0], w1=p.systems.w[1], r=p._r, g_fold=p._g, c_f=p._c, esr=p._esr,
+              open=_u8(p._open))
+        b.set(v_load=self._v_load, on=self._on, mode=self._mode,
               closed=_u8(p._closed), shorted=self._zeros if p._short is None else _u8(p._short),
               val_base=val, prof=prof, slope=slope, x0=x0, y0=y0,
               stuck_v=None if stuck_v is None else np.ascontiguousarray(stuck_v, dtype=np.int64),
               stuck_i=None if stuck_i is None else np.ascontiguousarray(stuck_i, dtype=np.int64),
               stuck_lo=float(lo), stuck_hi=float(hi), noise=noise, noise_rows=noise.shape[0],
-              t_next_s=float(p._t_next), ramp_due_k=float(p._ramp_due))
+              t_next_s=float(p._t_next))
 
     def _pull(self, k):
         """Hand the C loop's state back to the numpy plant, now at sample ``k``."""
@@ -121,6 +143,13 @@ class CompiledLoop:
         mode = self._mode.astype(bool)
         mode.flags.writeable = False
         p.mode, p._in_limit = mode, bool(mode.any())
+        if p.cables.ramps.size:
+            p._ramp_due = self._ramp_k[p.cables.ramps].min()
+
+    @property
+    def refreshes(self):
+        """Discretisations the C loop refreshed itself (refolds and cable-ramp refreshes)."""
+        return self._b.refreshes()
 
     def run(self, k0, n_samples, rec, row0, trace=None):
         """Run samples ``k0 .. k0 + n_samples - 1``, recording into rows ``row0 ..`` of ``rec``.

@@ -28,7 +28,8 @@ class FaultSchedule:
         self._stuck_v = stuck & np.array([f.channel == "v" for _, f in rows], dtype=bool)
         self._stuck_i = stuck & ~self._stuck_v
         self._code = np.array([f.code if f.code is not None else -1 for _, f in rows], dtype=np.int64)
-        self.edges_s = np.unique(np.concatenate([self._at, self._until, [np.inf]]))
+        # Sorted without repeats; np.unique would import numpy.ma, a sizeable part of start-up.
+        self.edges_s = np.array(sorted({*self._at.tolist(), *self._until.tolist(), np.inf}), dtype=float)
         self.has_stuck = bool(stuck.any())
         self._none = {k: np.zeros(n, dtype=bool) for k in FAULT_KINDS}
         self._active = self._stuck = None

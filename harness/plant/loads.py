@@ -1,7 +1,7 @@
 """Batched nonlinear loads, each reduced per sample to a Norton companion (conductance + current)."""
 
 import numpy as np
-from scipy.optimize import brentq
+from harness.plant.roots import brentq
 
 from harness.scenario.specs import restart_voltage
 
@@ -97,7 +97,7 @@ class LoadBank:
         self._steps = _padded([s.steps for s in self.specs])
         self._profiles = _padded([s.profile for s in self.specs])
         edges = [p[0] for s in self.specs for p in (*s.steps, *s.profile)]
-        self.edges_s = np.unique(np.array(edges + [np.inf], dtype=float))
+        self.edges_s = np.array(sorted({*map(float, edges), np.inf}), dtype=float)    # not np.unique: see faults
         self._cp = _selector(self.kind == _CP)
         self._lamp = _selector(self.kind == _LAMP)
         self._has_lockout = bool(self.lockout.any())

@@ -1,7 +1,7 @@
 """Batched plant: supply, cable, load end and loads of B scenarios advanced in lockstep."""
 
 import numpy as np
-from scipy.optimize import brentq
+from harness.plant.roots import brentq
 
 from harness.plant.cable import CableBank, CableResistance
 from harness.plant.faults import FaultSchedule

@@ -48,6 +48,19 @@ class Adc:
         self._pos = 0
         self._next = None
         self._bufs, self._scratch, self._which = [None, None], None, 0
+        self._rows_drawn, self._rows_wanted, self._pool = 0, None, None
+
+    def plan(self, n_samples):
+        """The run takes ``n_samples`` samples' noise: the first block is drawn now on the
+        worker (while the caller sets up the rest) and none past them (the blocks, and so the
+        noise, stay the same)."""
+        self._rows_wanted = int(n_samples)
+        if self._pool is None and self._rows_wanted > 0:
+            self._start()
+
+    def _start(self):
+        self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
+        self._next = self._pool.submit(self._block, self._which)
 
     def _block(self, which):
         """Fill and return noise buffer ``which`` (0 or 1) with the next (block, 2, B) array of
@@ -78,13 +91,16 @@ class Adc:
         this uses the second core); one worker draws them strictly in order, so the noise
         sequence is the same as drawing them here."""
         if self._pos >= self._noise.shape[0]:
-            if self._next is None:
-                self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
-                self._noise = self._block(0)
+            if self._pool is None:
+                self._start()
+            if self._next is None:    # past the planned run: drawn here, in the same order
+                self._noise = self._block(self._which)
             else:
                 self._noise = self._next.result()
+            self._rows_drawn += _NOISE_BLOCK
             self._which ^= 1
-            self._next = self._pool.submit(self._block, self._which)
+            wanted = self._rows_wanted is None or self._rows_drawn < self._rows_wanted
+            self._next = self._pool.submit(self._block, self._which) if wanted else None
             self._pos = 0
         self._pos += 1
         return self._noise[self._pos - 1]
@@ -103,8 +119,9 @@ class Adc:
 
     def close(self):
         """Stop the noise worker (drawing nothing more)."""
-        if self._next is not None:
-            self._next.cancel()
+        if self._pool is not None:
+            if self._next is not None:
+                self._next.cancel()
             self._pool.shutdown(wait=True)
             self._next = None
 
