@@ -211,3 +211,11 @@ def test_the_drivers_of_failing_are_spearmans_rank_correlation_as_scipy_computes
         want = stats.spearmanr([r[name] for r in rows], sev).statistic
         assert got[name] == pytest.approx(want, abs=1e-12), name
     assert list(got)[0] == "esr_factor"
+
+
+def test_bench_spread_prints_its_figures_and_the_target(capsys):
+    assert main(["bench", "--spread", "--draws", "4", "--json"]) == 0
+    fig = json.loads(capsys.readouterr().out)
+    assert fig["spread_draws"] == 4 and fig["spread_wall_s"] > 0 and fig["spread_target_s"] == 60.0
+    assert fig["spread_10000_draws_of_1s_wall_s"] == pytest.approx(fig["spread_wall_s"] * 2500 / fig["spread_duration_s"])
+    assert main(["bench", "--spread", "--regulation"]) == 2

@@ -50,6 +50,11 @@ def add_parser(sub):
                         "streamed in chunks and held whole, side by side (each run in a fresh process)")
     p.add_argument("--durations", nargs="+", type=float, default=[10.0, 100.0], metavar="S",
                    help="with --memory: run lengths in seconds (default 10 100)")
+    p.add_argument("--spread", action="store_true",
+                   help="instead, the wall time of linedrop spread on the demo's [spread] table "
+                        "(every draw simulated, two local workers) beside its target")
+    p.add_argument("--draws", type=integer(1, 1_000_000),
+                   help="with --spread: draws, 1 .. 1000000 (default 10000)")
     p.set_defaults(func=run)
 
 
@@ -206,6 +211,11 @@ def _regulation(args):
 
 def _check_options(args):
     """One-line InputError for options that do not go together; fills in the defaults."""
+    if args.spread and (args.regulation or args.firmware or args.memory):
+        raise InputError("--spread is a benchmark of its own; give one of --regulation, --firmware, "
+                         "--memory, --spread")
+    if args.draws is not None and not args.spread:
+        raise InputError("--draws applies only with --spread")
     if args.regulation and args.firmware:
         raise InputError("--regulation and --firmware are two different benchmarks; give one of them")
     if args.memory and (args.regulation or args.firmware):
@@ -216,8 +226,9 @@ def _check_options(args):
         if given:
             raise InputError(f"--{given[0]} applies only with --regulation"
                              + (" or --memory" if given[0] == "backend" else ""))
-    if args.instances is not None and (args.regulation or args.firmware or args.memory):
-        mode = "--regulation" if args.regulation else "--firmware" if args.firmware else "--memory"
+    if args.instances is not None and (args.regulation or args.firmware or args.memory or args.spread):
+        mode = ("--regulation" if args.regulation else "--firmware" if args.firmware
+                else "--memory" if args.memory else "--spread")
         raise InputError(f"--instances applies only to the throughput benchmark, not with {mode}")
     for name, default in REGULATION_ONLY.items():
         if getattr(args, name) is None:
@@ -232,6 +243,15 @@ def run(args):
         return _regulation(args)
     if args.memory:
         return _memory(args)
+    if args.spread:
+        from harness.cli import bench_spread
+        fig = bench_spread.measure(args.draws or bench_spread.TARGET_DRAWS, progress=not args.json)
+        if args.json:
+            print(json.dumps(fig))
+        else:
+            for key, value in fig.items():
+                print(f"{key:48s} {value:14.3f}" if isinstance(value, float) else f"{key:48s} {value}")
+        return 0
     if args.firmware:
         from c_ref.cortexm.build import toolchain_missing
         reason = toolchain_missing()
