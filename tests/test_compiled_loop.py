@@ -100,6 +100,8 @@ def _generated(start):
         make_scenario(load=LoadSpec("constant_power", 25.0, cutoff_v=10.0), faults=faults[:3], seed=9, **base),
     ]
     from dataclasses import replace
+    out[6] = replace(out[6], supply=replace(out[6].supply, dac_gain_error=0.01))     # the setpoint's gain error
+    out[3] = replace(out[3], supply=replace(out[3].supply, dac_gain_error=-0.02))
     return [replace(s, run=replace(s.run, start=start)) for s in out]
 
 

@@ -95,3 +95,26 @@ def test_a_planned_run_length_leaves_the_noise_unchanged_before_and_past_it(plan
         np.testing.assert_array_equal(got.convert(v, v / 10)[0], ref.convert(v, v / 10)[0])
     ref.close()
     got.close()
+
+
+def test_a_setpoint_gain_error_moves_the_load_by_that_share_of_the_command():
+    # A converter's gain error is the slope of its transfer line against the ideal one (the
+    # usual definition, IEEE Std 1658 for DACs, from memory): with 1 + g volts per nominal volt the
+    # supply puts out the firmware's command times 1 + g, which its ADC-side estimate cannot see,
+    # so the load moves by g times the command the loop settles to (within the DAC LSB and the
+    # estimate's LSB times the current, design's quantisation bound).
+    from dataclasses import replace
+    from harness.design.report import design_report
+    from harness.design.settings import recommended
+    from harness.loop.closed_loop import simulate
+    from harness.loop.metrics import TAIL, metrics
+    from harness.scenario.read import DEMO, load_scenario
+    sc = recommended(load_scenario(DEMO))
+    base = simulate([sc], backend="c")
+    g = 0.005
+    off = simulate([replace(sc, supply=replace(sc.supply, dac_gain_error=g))], backend="c")
+    t = base.t_s
+    command_v = float(base.channels["command_v"][t >= t[-1] * (1 - TAIL), 0].mean())
+    shift = metrics(base)["load_error_v"] - metrics(off)["load_error_v"]
+    assert shift == pytest.approx(g * command_v, abs=design_report(sc)["quantisation_error_v"])
+    assert g * command_v > 10 * design_report(sc)["quantisation_error_v"]

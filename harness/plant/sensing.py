@@ -161,7 +161,8 @@ class Adc:
 
 
 class Dac:
-    """Command DAC of B scenarios: ``volts = code * dac_full_scale_v / 2**dac_bits``.
+    """Command DAC of B scenarios: ``volts = code * dac_full_scale_v * (1 + dac_gain_error) / 2**dac_bits``
+    (the supply's own setpoint gain error: the firmware assumes the nominal full scale).
 
     Parameters
     ----------
@@ -172,7 +173,8 @@ class Dac:
     def __init__(self, supplies):
         self.bits = np.array([s.dac_bits for s in supplies], dtype=np.int64)
         self.code_max = (1 << self.bits) - 1
-        self.v_per_code = np.array([s.dac_full_scale_v for s in supplies], dtype=float) / 2.0**self.bits
+        self.v_per_code = (np.array([s.dac_full_scale_v for s in supplies], dtype=float)
+                           * np.array([1.0 + s.dac_gain_error for s in supplies])) / 2.0**self.bits
 
     def to_volts(self, code):
         """Output voltage (V) for integer ``code`` (B,), clipped to [0, 2**dac_bits - 1]."""

@@ -49,6 +49,7 @@ KEYS = {
         "current_limit_a": Range(0.0, 1000.0, lo_open=True),
         "dac_bits": _algo("dac_bits"),
         "dac_full_scale_v": _algo("dac_full_scale_v", lo="max_v"),
+        "dac_gain_error": Range(-0.5, 0.5),
     },
     "cable": {
         "resistance_ohm": Range(0.0, 1000.0, lo_open=True),
@@ -101,6 +102,7 @@ KEYS = {
         "adc_gain_tol": Range(0.0, 0.1),
         "adc_offset_lsb": Range(0.0, 100.0),
         "bandwidth_tol": Range(0.0, 0.9),
+        "dac_gain_tol": Range(0.0, 0.1),
         "load_range": Range(0.0, 10.0, lo_open=True),
     },
     "fault": {

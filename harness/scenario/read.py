@@ -41,9 +41,10 @@ def _supply(src, t):
     limit = s.number("current_limit_a", default=None)
     bits = s.integer("dac_bits", default=12)
     dac_fs = s.number("dac_full_scale_v", default=DAC_FS_FACTOR * max_v, lo=max_v)
+    dac_gain = s.number("dac_gain_error", default=0.0)
     s.finish()
     return SupplySpec(target_v=target, max_v=max_v, min_v=min_v, loop_bandwidth_hz=bw, current_limit_a=limit,
-                      dac_bits=bits, dac_full_scale_v=dac_fs)
+                      dac_bits=bits, dac_full_scale_v=dac_fs, dac_gain_error=dac_gain)
 
 
 def _cable(src, t):

@@ -34,6 +34,7 @@ class SupplySpec:
     current_limit_a: Optional[float] = None  # None: no limit
     dac_bits: int = 12
     dac_full_scale_v: float = 0.0  # volts for code 2**dac_bits
+    dac_gain_error: float = 0.0  # the supply's output per code is (1 + this) times what the firmware assumes
 
 
 @dataclass(frozen=True)

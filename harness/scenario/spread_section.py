@@ -25,6 +25,7 @@ class Tolerances:
     adc_gain_tol: float = 0.0
     adc_offset_lsb: float = 0.0
     bandwidth_tol: float = 0.0
+    dac_gain_tol: float = 0.0
     load_range: Optional[tuple] = None
 
     def varies(self):

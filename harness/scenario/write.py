@@ -33,7 +33,8 @@ def scenario_to_toml(sc, comment=None):
     s, c, le, ld, se, r = sc.supply, sc.cable, sc.load_end, sc.load, sc.sensing, sc.run
     out += _table("supply", [("target_v", s.target_v), ("max_v", s.max_v), ("min_v", s.min_v),
                              ("loop_bandwidth_hz", s.loop_bandwidth_hz), ("current_limit_a", s.current_limit_a),
-                             ("dac_bits", s.dac_bits), ("dac_full_scale_v", s.dac_full_scale_v)])
+                             ("dac_bits", s.dac_bits), ("dac_full_scale_v", s.dac_full_scale_v),
+                             ("dac_gain_error", s.dac_gain_error)])
     out += _table("cable", [("resistance_ohm", c.resistance_ohm), ("material", c.material),
                             ("temperature_c", c.temperature_c), ("temperature_end_c", c.temperature_end_c),
                             ("inductance_h", c.inductance_h), ("length_m", c.length_m)])

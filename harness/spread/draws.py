@@ -15,7 +15,7 @@ from harness.scenario.keys import KEYS
 
 #: The generator's numbers, in the order they are taken (one each, whether or not a key varies).
 ORDER = ("temperature_c", "capacitance_tol", "esr_tol", "adc_gain_tol", "adc_offset_lsb",
-         "bandwidth_tol", "load_range")
+         "bandwidth_tol", "load_range", "dac_gain_tol")
 _T_LO, _T_HI = KEYS["cable"]["temperature_c"].lo, KEYS["cable"]["temperature_c"].hi
 
 
@@ -38,13 +38,15 @@ def draw_values(tol, seed, k, nominal):
     t0 = nominal.cable.temperature_c
     t = _between(u["temperature_c"], tol.temperature_c) if tol.temperature_c else t0
     esr_temp = 2.0 ** ((t0 - t) / tol.esr_doubling_c) if tol.esr_doubling_c > 0 else 1.0
-    return {"temperature_c": t,
-            "capacitance_factor": _factor(u["capacitance_tol"], tol.capacitance_tol),
-            "esr_factor": _factor(u["esr_tol"], tol.esr_tol) * esr_temp,
-            "adc_gain_error": nominal.sensing.gain_error + tol.adc_gain_tol * (2.0 * u["adc_gain_tol"] - 1.0),
-            "adc_offset_lsb": nominal.sensing.offset_lsb + tol.adc_offset_lsb * (2.0 * u["adc_offset_lsb"] - 1.0),
-            "bandwidth_factor": _factor(u["bandwidth_tol"], tol.bandwidth_tol),
-            "load_factor": _between(u["load_range"], tol.load_range) if tol.load_range else 1.0}, noise_seed
+    values = {"temperature_c": t,
+              "capacitance_factor": _factor(u["capacitance_tol"], tol.capacitance_tol),
+              "esr_factor": _factor(u["esr_tol"], tol.esr_tol) * esr_temp,
+              "adc_gain_error": nominal.sensing.gain_error + tol.adc_gain_tol * (2.0 * u["adc_gain_tol"] - 1.0),
+              "adc_offset_lsb": nominal.sensing.offset_lsb + tol.adc_offset_lsb * (2.0 * u["adc_offset_lsb"] - 1.0),
+              "bandwidth_factor": _factor(u["bandwidth_tol"], tol.bandwidth_tol),
+              "load_factor": _between(u["load_range"], tol.load_range) if tol.load_range else 1.0,
+              "dac_gain_error": nominal.supply.dac_gain_error + tol.dac_gain_tol * (2.0 * u["dac_gain_tol"] - 1.0)}
+    return values, noise_seed
 
 
 def apply(nominal, values, noise_seed):
@@ -69,7 +71,8 @@ def apply(nominal, values, noise_seed):
                    load=load,
                    sensing=replace(se, gain_error=min(0.5, max(-0.5, values["adc_gain_error"])),
                                    offset_lsb=values["adc_offset_lsb"]),
-                   supply=replace(su, loop_bandwidth_hz=su.loop_bandwidth_hz * values["bandwidth_factor"]),
+                   supply=replace(su, loop_bandwidth_hz=su.loop_bandwidth_hz * values["bandwidth_factor"],
+                                  dac_gain_error=min(0.5, max(-0.5, values["dac_gain_error"]))),
                    run=replace(nominal.run, seed=noise_seed))
 
 
