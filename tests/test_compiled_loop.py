@@ -102,6 +102,7 @@ def _generated(start):
     from dataclasses import replace
     out[6] = replace(out[6], supply=replace(out[6].supply, dac_gain_error=0.01))     # the setpoint's gain error
     out[3] = replace(out[3], supply=replace(out[3].supply, dac_gain_error=-0.02))
+    out[1] = replace(out[1], sensing=replace(out[1].sensing, current_gain_error=0.02, current_offset_lsb=-1.5))
     return [replace(s, run=replace(s.run, start=start)) for s in out]
 
 

@@ -295,10 +295,10 @@ def test_the_loop_margins_are_twice_the_estimate_move_the_proof_suite_accepts():
     assert calc.LOW_TARGET == pytest.approx(1.0 - 2.0 * TRANSIENT_R_REL)
 
 
-def test_the_esr_and_current_gain_sensitivities_are_the_load_shifts_the_plant_shows():
+def test_the_esr_and_adc_gain_sensitivities_are_the_load_shifts_the_plant_shows():
     # Circuit law: the ESR carries no DC current, so ESR the allowance does not cover is corrected
-    # as if it were cable and the load rises by that excess times the current; a current ADC
-    # reading 1 + g times the current scales the correction by 1 + g. The simulated plant (exact
+    # as if it were cable and the load rises by that excess times the current; both ADC channels
+    # reading 1 + g times high scale the correction by 1 + g. The simulated plant (exact
     # zero-order-hold of the R-L-C-ESR network) must show the shifts design predicts, within
     # the DAC LSB and the estimate's LSB times the current (quantisation_error_v).
     from dataclasses import replace

@@ -118,3 +118,35 @@ def test_a_setpoint_gain_error_moves_the_load_by_that_share_of_the_command():
     shift = metrics(base)["load_error_v"] - metrics(off)["load_error_v"]
     assert shift == pytest.approx(g * command_v, abs=design_report(sc)["quantisation_error_v"])
     assert g * command_v > 10 * design_report(sc)["quantisation_error_v"]
+
+
+def test_each_adc_channels_own_gain_moves_the_load_as_the_ratio_estimate_predicts():
+    # The estimate is V/I in codes and the drop it gives is that ratio times the current code, so
+    # the correction scales with the voltage channel's gain g_v, and the current channel's gain
+    # g_i cancels except in the fixed ESR allowance, whose share of the drop (allowance times the
+    # current code) it scales: the load moves by g_v * correction - g_i * allowance * I (circuit
+    # algebra on the ratio; within design's quantisation bound).
+    from dataclasses import replace
+    from harness.design.report import design_report
+    from harness.design.settings import recommended
+    from harness.loop.closed_loop import simulate
+    from harness.loop.metrics import TAIL, metrics
+    from harness.scenario.read import DEMO, load_scenario
+    sc = recommended(load_scenario(DEMO))
+    rep = design_report(sc)
+    slack = rep["quantisation_error_v"]
+
+    def run(**k):
+        r = simulate([replace(sc, sensing=replace(sc.sensing, **k))], backend="c")
+        t = r.t_s
+        tail = t >= t[-1] * (1 - TAIL)
+        corr = float(r.channels["correction_v"][tail, 0].mean())
+        i = float(r.channels["i_supply_a"][tail, 0].mean())
+        return metrics(r)["load_error_v"], corr, i
+
+    base, corr, i = run()
+    g = 0.01
+    v_only = base - run(gain_error=g, current_gain_error=-g)[0]
+    i_only = base - run(current_gain_error=g)[0]
+    assert v_only == pytest.approx(g * corr, abs=slack) and g * corr > 5 * slack
+    assert i_only == pytest.approx(-g * sc.algorithm["esr_allowance_ohm"] * i, abs=slack)

@@ -31,6 +31,8 @@ adc_gain_tol = 0.01
 adc_offset_lsb = 2.0
 bandwidth_tol = 0.3
 dac_gain_tol = 0.004
+current_gain_tol = 0.01
+current_offset_lsb = 1.0
 load_range = [0.8, 1.1]
 """
 LIMITS = ["--max-error-mv", "30", "--max-overshoot-pct", "1", "--max-settle-ms", "40"]
@@ -119,6 +121,7 @@ def test_a_draw_is_the_same_whatever_else_is_drawn_and_stays_inside_its_toleranc
         assert abs(v["capacitance_factor"] - 1) <= 0.2 and abs(v["bandwidth_factor"] - 1) <= 0.3
         assert abs(sc.sensing.gain_error - nom.sensing.gain_error) <= 0.01
         assert abs(sc.supply.dac_gain_error - nom.supply.dac_gain_error) <= 0.004
+        assert abs(sc.sensing.current_gain_error) <= 0.01 and abs(sc.sensing.current_offset_lsb) <= 1.0
         assert sc.algorithm == nom.algorithm and sc.sensing.sample_rate_hz == nom.sensing.sample_rate_hz
         assert sc.load.steps[0][1] == pytest.approx(nom.load.steps[0][1] * v["load_factor"])
         # Copper's temperature coefficient 0.00393 /K at 20 degC (IEC 60028), referred to t0.
@@ -190,7 +193,7 @@ def test_spread_reads_its_table_from_the_scenario_and_every_other_command_ignore
     assert sc.spread == parse_spread(str(scenario_file), {
         "temperature_c": [-20.0, 40.0], "capacitance_tol": 0.2, "esr_tol": 0.3, "esr_doubling_c": 15.0,
         "adc_gain_tol": 0.01, "adc_offset_lsb": 2.0, "bandwidth_tol": 0.3, "dac_gain_tol": 0.004,
-        "load_range": [0.8, 1.1]})
+        "current_gain_tol": 0.01, "current_offset_lsb": 1.0, "load_range": [0.8, 1.1]})
     plain = load_scenario(DEMO)
     assert replace(sc, spread=plain.spread, source=plain.source) == replace(
         plain, run=replace(plain.run, duration_s=0.2), load=replace(plain.load, steps=((0.1, 2.2),)))

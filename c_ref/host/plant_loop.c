@@ -141,7 +141,7 @@ static void ldp_sample(ldp_batch_t *b, ldp_local_t *loc, size_t j, size_t k, siz
     noise_v = b->noise[(k * 2) * n + j];
     noise_i = b->noise[(k * 2 + 1) * n + j];
     vc = ldp_code(out[3], b->lsb[j], b->gain[j], b->offset[j], noise_v, b->adc_max[j]);
-    ic = ldp_code(out[1], b->lsb[n + j], b->gain[j], b->offset[j], noise_i, b->adc_max[j]);
+    ic = ldp_code(out[1], b->lsb[n + j], b->gain[n + j], b->offset[n + j], noise_i, b->adc_max[j]);
     if (b->stuck_v && b->stuck_v[j] >= 0) {
         vc = b->stuck_v[j];
     }

@@ -81,7 +81,7 @@ typedef struct {
     double lamp_u_amb;        /* LAMP_U_AMBIENT */
     double lamp_u_amb4;       /* LAMP_U_AMBIENT ** 4 */
     double refold_rel;        /* REFOLD_REL */
-    /* ADC: lsb (2, n) per V and per A, gain, offset, code max; noise (rows, 2, n), LSB. */
+    /* ADC: lsb, gain and offset (2, n) for V then I, code max; noise (rows, 2, n), LSB. */
     const double *lsb;
     const double *gain;
     const double *offset;

@@ -20,8 +20,9 @@ spectral_radius, gain_margin (factor on the estimate to instability), convergenc
 convergence_s, dominant_poles [[re, im]], predicted_load_error_v (steady error plus
 quantisation bound plus the lag behind a drifting cable), load_error_steady_v, quantisation_error_v,
 drift_lag_error_v, esr_sensitivity_v_per_ohm and gain_sensitivity_v_per_pct (how far the load
-rises at the largest current per ohm of ESR above the allowance and per 1 % of current-ADC gain
-error), ripple_load_v_pp,
+rises at the largest current per ohm of ESR above the allowance and per 1 % of voltage-ADC gain
+error: the estimate is the ratio of the two channels, so the current channel's own gain cancels in
+the drop it gives), ripple_load_v_pp,
 current_swing_a, warnings [str], cautions [str] (the usual cautions; the lamp line for lamp loads
 only), configuration ("scenario" or "recommended"), algorithm
 (recommended [algorithm] keys), from_plant (the settings [supply]/[sensing] fix).
@@ -107,7 +108,7 @@ def report_text(rep):
             f"Sensitivity at {rep['compensated_current_a']:.3g} A: the load rises "
             f"{1e3 * rep['esr_sensitivity_v_per_ohm'] / 100:.3g} mV per 10 mOhm the ESR rises above "
             f"what the {1e3 * rep['esr_allowance_ohm']:.3g} mOhm allowance was set for (the cold raises it), and "
-            f"{1e3 * rep['gain_sensitivity_v_per_pct']:.3g} mV per 1 % the current ADC reads high",
+            f"{1e3 * rep['gain_sensitivity_v_per_pct']:.3g} mV per 1 % the voltage ADC reads high",
             f"Perturbation ripple at the load: {1e3 * rep['ripple_load_v_pp']:.3g} mV p-p",
             f"Loop: stability margin {rep['stability_margin']:.3f} (spectral radius "
             f"{rep['spectral_radius']:.3f}), gain margin x{rep['gain_margin']:.3g}, "

@@ -356,7 +356,7 @@ def predict(scenario, cfg):
     estimate the loop settles to (cable + ESR + the load's share, harness.design.loop_model), plus a
     quantisation bound: half a DAC LSB plus one estimate LSB times the current, plus the lag
     behind a drifting cable (drift_lag_v) at the largest current. Also how far the load moves
-    at the largest current per ohm of ESR away from the allowance and per 1 % of current-ADC
+    at the largest current per ohm of ESR away from the allowance and per 1 % of voltage-ADC
     gain error (production spread: ``linedrop spread``).
     """
     sense_gain = 1.0 + scenario.sensing.gain_error
@@ -379,8 +379,9 @@ def predict(scenario, cfg):
     lag = drift_lag_v(scenario, cfg, i_top)
     # Sensitivities at the largest current. The ESR carries no DC current, so an ESR above the
     # allowance is corrected as if it were cable: the load rises by that excess times the current
-    # (per ohm: the current). A current-ADC gain error g reads the current, and so the
-    # correction, 1 + g times too high (per 1 %: 1 % of the correction).
+    # (per ohm: the current). The drop is the estimate (V/I in codes) times the current code, so
+    # the current channel's gain cancels and a voltage-ADC gain error g makes the correction
+    # 1 + g times too high (per 1 %: 1 % of the correction).
     return {"esr_sensitivity_v_per_ohm": float(sense_gain * i_top),
             "gain_sensitivity_v_per_pct": float(0.01 * corr_top / sense_gain),
             "predicted_load_error_v": float(abs(err) + quant + lag), "load_error_steady_v": float(err),

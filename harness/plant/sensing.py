@@ -36,8 +36,10 @@ class Adc:
         self.code_max = (1 << self.bits) - 1
         self.v_lsb_per_v = 2.0**self.bits / arr(lambda s: s.v_full_scale_v)
         self.i_lsb_per_a = 2.0**self.bits / arr(lambda s: s.i_full_scale_a)
-        self.gain = 1.0 + arr(lambda s: s.gain_error)
-        self.offset = arr(lambda s: s.offset_lsb)
+        # (2, B): the voltage channel, then the current channel with its own error on top.
+        self.gain = 1.0 + np.stack([arr(lambda s: s.gain_error),
+                                    arr(lambda s: s.gain_error + s.current_gain_error)])
+        self.offset = np.stack([arr(lambda s: s.offset_lsb), arr(lambda s: s.offset_lsb + s.current_offset_lsb)])
         self.sigma = arr(lambda s: s.noise_lsb_rms)
         self._rngs = [np.random.default_rng(seed) for seed in seeds]
         n = len(self.specs)

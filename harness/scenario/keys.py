@@ -86,6 +86,8 @@ KEYS = {
         "noise_lsb_rms": Range(0.0, 100.0),
         "offset_lsb": Range(-1000.0, 1000.0),
         "gain_error": Range(-0.5, 0.5),
+        "current_gain_error": Range(-0.5, 0.5),
+        "current_offset_lsb": Range(-1000.0, 1000.0),
         "sample_rate_hz": _algo("sample_rate_hz"),
     },
     "run": {
@@ -103,6 +105,8 @@ KEYS = {
         "adc_offset_lsb": Range(0.0, 100.0),
         "bandwidth_tol": Range(0.0, 0.9),
         "dac_gain_tol": Range(0.0, 0.1),
+        "current_gain_tol": Range(0.0, 0.1),
+        "current_offset_lsb": Range(0.0, 100.0),
         "load_range": Range(0.0, 10.0, lo_open=True),
     },
     "fault": {

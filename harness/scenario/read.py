@@ -91,10 +91,13 @@ def _sensing(src, t, supply):
     noise = s.number("noise_lsb_rms", default=0.5)
     offset = s.number("offset_lsb", default=0.0)
     gain = s.number("gain_error", default=0.0)
+    i_gain = s.number("current_gain_error", default=0.0)
+    i_offset = s.number("current_offset_lsb", default=0.0)
     rate = s.number("sample_rate_hz", default=32000.0)
     s.finish()
     return SensingSpec(v_full_scale_v=v_fs, i_full_scale_a=i_fs, adc_bits=bits, noise_lsb_rms=noise,
-                       offset_lsb=offset, gain_error=gain, sample_rate_hz=rate)
+                       offset_lsb=offset, gain_error=gain, current_gain_error=i_gain,
+                       current_offset_lsb=i_offset, sample_rate_hz=rate)
 
 
 def _run(src, t):

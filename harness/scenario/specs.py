@@ -108,6 +108,8 @@ class SensingSpec:
     noise_lsb_rms: float = 0.5
     offset_lsb: float = 0.0
     gain_error: float = 0.0  # fractional, e.g. 0.01 reads 1 % high
+    current_gain_error: float = 0.0  # the current channel's own, on top of gain_error
+    current_offset_lsb: float = 0.0  # the current channel's own, on top of offset_lsb
     sample_rate_hz: float = 32000.0
 
 

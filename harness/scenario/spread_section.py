@@ -26,6 +26,8 @@ class Tolerances:
     adc_offset_lsb: float = 0.0
     bandwidth_tol: float = 0.0
     dac_gain_tol: float = 0.0
+    current_gain_tol: float = 0.0
+    current_offset_lsb: float = 0.0
     load_range: Optional[tuple] = None
 
     def varies(self):

@@ -54,6 +54,8 @@ def scenario_to_toml(sc, comment=None):
     out += _table("sensing", [("adc_bits", se.adc_bits), ("v_full_scale_v", se.v_full_scale_v),
                               ("i_full_scale_a", se.i_full_scale_a), ("noise_lsb_rms", se.noise_lsb_rms),
                               ("offset_lsb", se.offset_lsb), ("gain_error", se.gain_error),
+                              ("current_gain_error", se.current_gain_error),
+                              ("current_offset_lsb", se.current_offset_lsb),
                               ("sample_rate_hz", se.sample_rate_hz)])
     out += _table("run", [("duration_s", r.duration_s), ("seed", r.seed), ("start", r.start)])
     for f in sc.faults:

@@ -15,7 +15,7 @@ from harness.scenario.keys import KEYS
 
 #: The generator's numbers, in the order they are taken (one each, whether or not a key varies).
 ORDER = ("temperature_c", "capacitance_tol", "esr_tol", "adc_gain_tol", "adc_offset_lsb",
-         "bandwidth_tol", "load_range", "dac_gain_tol")
+         "bandwidth_tol", "load_range", "dac_gain_tol", "current_gain_tol", "current_offset_lsb")
 _T_LO, _T_HI = KEYS["cable"]["temperature_c"].lo, KEYS["cable"]["temperature_c"].hi
 
 
@@ -45,7 +45,11 @@ def draw_values(tol, seed, k, nominal):
               "adc_offset_lsb": nominal.sensing.offset_lsb + tol.adc_offset_lsb * (2.0 * u["adc_offset_lsb"] - 1.0),
               "bandwidth_factor": _factor(u["bandwidth_tol"], tol.bandwidth_tol),
               "load_factor": _between(u["load_range"], tol.load_range) if tol.load_range else 1.0,
-              "dac_gain_error": nominal.supply.dac_gain_error + tol.dac_gain_tol * (2.0 * u["dac_gain_tol"] - 1.0)}
+              "dac_gain_error": nominal.supply.dac_gain_error + tol.dac_gain_tol * (2.0 * u["dac_gain_tol"] - 1.0),
+              "current_gain_error": (nominal.sensing.current_gain_error
+                                     + tol.current_gain_tol * (2.0 * u["current_gain_tol"] - 1.0)),
+              "current_offset_lsb": (nominal.sensing.current_offset_lsb
+                                     + tol.current_offset_lsb * (2.0 * u["current_offset_lsb"] - 1.0))}
     return values, noise_seed
 
 
@@ -70,7 +74,9 @@ def apply(nominal, values, noise_seed):
                                     esr_ohm=le.esr_ohm * values["esr_factor"]),
                    load=load,
                    sensing=replace(se, gain_error=min(0.5, max(-0.5, values["adc_gain_error"])),
-                                   offset_lsb=values["adc_offset_lsb"]),
+                                   offset_lsb=values["adc_offset_lsb"],
+                                   current_gain_error=min(0.5, max(-0.5, values["current_gain_error"])),
+                                   current_offset_lsb=values["current_offset_lsb"]),
                    supply=replace(su, loop_bandwidth_hz=su.loop_bandwidth_hz * values["bandwidth_factor"],
                                   dac_gain_error=min(0.5, max(-0.5, values["dac_gain_error"]))),
                    run=replace(nominal.run, seed=noise_seed))

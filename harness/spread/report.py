@@ -73,7 +73,7 @@ def yield_of(rows, spec):
 
 #: Drawn quantities (spread.csv columns) whose link to failing is reported.
 DRAWN = ("temperature_c", "capacitance_factor", "esr_factor", "adc_gain_error", "adc_offset_lsb",
-         "bandwidth_factor", "load_factor", "dac_gain_error")
+         "bandwidth_factor", "load_factor", "dac_gain_error", "current_gain_error", "current_offset_lsb")
 
 
 def drivers(rows, spec):
