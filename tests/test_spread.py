@@ -6,6 +6,7 @@ few draws in seconds.
 """
 import json
 import math
+import os
 from dataclasses import replace
 
 import pytest
@@ -225,3 +226,22 @@ def test_bench_spread_prints_its_figures_and_the_target(capsys):
     assert fig["spread_draws"] == 4 and fig["spread_wall_s"] > 0 and fig["spread_target_s"] == 60.0
     assert fig["spread_10000_draws_of_1s_wall_s"] == pytest.approx(fig["spread_wall_s"] * 2500 / fig["spread_duration_s"])
     assert main(["bench", "--spread", "--regulation"]) == 2
+
+
+def test_ctrl_c_while_the_outputs_are_written_keeps_the_old_ones_and_the_next_run_resumes(
+        scenario_file, tmp_path, capsys, monkeypatch):
+    out = tmp_path / "out"
+    argv = [str(scenario_file), "--out", str(out), *LIMITS, "--workers", "1"]
+    _spread([*argv, "--draws", "3"], capsys)
+    before = {n: (out / n).read_bytes() for n in os.listdir(out) if n != report.CACHE_FILE}
+
+    def interrupted(*args, **kw):
+        raise KeyboardInterrupt
+    monkeypatch.setattr(report, "_plots", interrupted)          # after spread.csv is written
+    assert main(["spread", *argv, "--draws", "5"]) == 130
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "interrupted" in err and "resume" in err
+    assert {n: (out / n).read_bytes() for n in os.listdir(out) if n != report.CACHE_FILE} == before
+    monkeypatch.undo()
+    _, again = _spread([*argv, "--draws", "5"], capsys)
+    assert (again["draws_new"], again["draws_cached"]) == (0, 5)
