@@ -19,7 +19,8 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "tests"))
-from support.scratch_tree import mutate_line, scratch_copy  # noqa: E402
+from support.scratch_tree import mutate_line, prefer_a_built_root, scratch_copy  # noqa: E402
+prefer_a_built_root(sys.path)
 
 KILLERS = "tests/test_proof_mutants.py"
 

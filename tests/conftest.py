@@ -9,14 +9,14 @@ does. A built source tree (``pip install -e .``) is left first and tested.
 
 Hypothesis profiles, chosen by the HYPOTHESIS_PROFILE env var: ``dev`` (quick local runs), ``ci`` (the default, and what CI runs:
 derandomized, so a CI run is repeatable), ``nightly`` (ten times ``ci``, random
-examples each night, to keep exploring).
+examples each night, to keep exploring), ``mutation`` (``ci`` without shrinking, for .ci/mutation).
 """
 import importlib.machinery
 import os
 import sys
 from pathlib import Path
 
-from hypothesis import HealthCheck, settings
+from hypothesis import HealthCheck, Phase, settings
 
 ROOT = Path(__file__).resolve().parent.parent
 PACKAGES = ("algo", "c_ref", "harness")
@@ -51,4 +51,9 @@ settings.register_profile("ci", max_examples=CI_EXAMPLES, deadline=None, print_b
                           suppress_health_check=[HealthCheck.too_slow])
 settings.register_profile("nightly", max_examples=10 * CI_EXAMPLES, deadline=None,
                           suppress_health_check=[HealthCheck.too_slow])
+# The mutation run's (.ci/mutation): ci's derandomized examples, without the shrink phase (a mutant
+# is killed or not by the same examples; shrinking only costs time) and without the example
+# database (a failure found against one mutant is not replayed against the next).
+settings.register_profile("mutation", parent=settings.get_profile("ci"), database=None,
+                          phases=(Phase.explicit, Phase.reuse, Phase.generate, Phase.target))
 settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))

@@ -31,7 +31,9 @@ def _fault_case(draw):
         kind = draw(st.sampled_from(KINDS))
         settle = max(bd.SETTLE_WINDOWS, settle_windows(hs.design_scenario(p, 1)))
         at = settle + draw(st.floats(0.0, 0.999))
-        until = at + bd.LOAD_OFF_WINDOWS + draw(st.integers(0, 8))
+        # At least one whole window past LOAD_OFF_WINDOWS, so the load-off decay is checked on
+        # some samples (a load back at exactly LOAD_OFF_WINDOWS leaves none).
+        until = at + bd.LOAD_OFF_WINDOWS + draw(st.integers(1, 8))
         total = int(math.ceil(until)) + settle + bd.CHECK_WINDOWS
         if kind == "load_off":
             p = replace(p, load_steps=((at, 0.0), (until, 1.0)))

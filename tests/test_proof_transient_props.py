@@ -7,13 +7,12 @@ from hypothesis import Phase, given, settings
 
 from harness.proof import bounds as bd
 from harness.proof import strategies as hs
-from harness.design.operating_point import load_current
 from harness.scenario.algo_setup import algo_config
+from support.proof_cases import above_converter_floor, as_drawn, light_steps, steps_above_light
 from support.proof_support import (count_plant, report_shares, reproducer, run_groups, samples_between, settle_windows, settled_failures,
                                    window_ends)
 
 STEP_SPAN = 20      # steps land in the STEP_SPAN windows after settling (harness.proof.strategies.plants)
-LIFT_EVERY = 4      # all plants but every LIFT_EVERY-th step above the light-load current
 
 
 def _examples(fraction):
@@ -29,19 +28,16 @@ def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_over
     scs = []
     for n, p in enumerate(batch):
         count_plant("load steps drawn" if p.load_steps else "no load step drawn: not run")
-        if p.load_steps and n % LIFT_EVERY:
-            # Generate the steps the estimate check is about: three plants in four step to at
-            # least twice the light-load current (bounds.light_load_a) where that is below the
-            # load itself (so the drawn headroom still covers every step); the fourth keeps its
-            # drawn steps, load dumps to zero included.
-            probe = hs.design_scenario(p, 1)
-            floor = 2 * bd.light_load_a(algo_config(probe), probe, p.r_cable_ohm + p.esr_ohm) / p.load_current_a
-            if floor < 1.0:
-                p = replace(p, load_steps=tuple((w, max(f, floor)) for w, f in p.load_steps))
+        if p.load_steps and not as_drawn(n):
+            # Generate the steps the estimate check is about: five plants in six carry a load
+            # above the converters' own light-load floor and step to at least twice the
+            # light-load current (support.proof_cases); the first keeps its drawn load and
+            # steps, light loads and load dumps to zero included.
+            p = steps_above_light(above_converter_floor(p), total)
         if p.load_steps:    # the recovery after a step, like the settling, scales with R*C
             sc = hs.design_scenario(p, bd.SETTLE_WINDOWS, seed=n)
-            scs.append(hs.design_scenario(p, total + max(bd.RECOVER_WINDOWS, settle_windows(sc)), seed=n))
-    scs = [replace(sc, source=repr(p.load_current_a)) for p, sc in zip([p for p in batch if p.load_steps], scs)]
+            sc = hs.design_scenario(p, total + max(bd.RECOVER_WINDOWS, settle_windows(sc)), seed=n)
+            scs.append(replace(sc, source=repr(p.load_current_a)))
     for lr, b in run_groups(scs):
         sc = lr.run.scenarios[b]
         cfg = algo_config(sc)
@@ -60,9 +56,7 @@ def test_load_steps_anywhere_in_a_window_move_the_estimate_little_and_never_over
         # windows clip or, while the capacitor feeds back into the supply, read no swing at all,
         # and the estimate may be dropped with the correction (the fallback). The overshoot and
         # settled checks below still hold it.
-        r_loop = sc.cable.resistance_ohm + sc.load_end.esr_ohm
-        light = any(load_current(sc.load, v, cfg.target_v)[0] < bd.light_load_a(cfg, sc, r_loop)
-                    for _, v in sc.load.steps)
+        light = light_steps(sc)
         count_plant("a step to a light load: estimate not held" if light else "estimate held through the steps")
         if move > allowed and not light:
             why.append(f"a load step moved the estimate by {move:.4g} ohm (> {allowed:.4g} ohm) from {r_before:.5g}")

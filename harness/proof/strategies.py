@@ -162,6 +162,23 @@ def plants(draw, f_lo_hz=None, kinds=LOAD_KINDS, max_steps=2, steps_after=0.0, s
         lamp_tau_s=draw(_log(LAMP_TAU_RANGE_S[0], LAMP_TAU_RANGE_S[1])))
 
 
+def scale_load(plant, k):
+    """``plant`` with its load current ``k`` times larger, and with it the part of max_v above
+    target that covers the drop (the drawn 1.3-2 times, less the 2 % of target margin) and the
+    current ADC's full scale: the same plant with a ``k`` times larger drop."""
+    margin = 0.02 * plant.target_v
+    return replace(plant, load_current_a=plant.load_current_a * k, i_full_scale_a=plant.i_full_scale_a * k,
+                   max_v=plant.target_v + (plant.max_v - plant.target_v - margin) * k + margin)
+
+
+def load_room(plant):
+    """Largest factor :func:`scale_load` may apply while the heaviest load the plant reaches keeps
+    within its kind's DROP_MAX and CURRENT_RANGE_A."""
+    i_max = plant.load_current_a * max([1.0] + [f for _, f in plant.load_steps])
+    return max(1.0, min(DROP_MAX[plant.load_kind] * plant.target_v / (plant.r_cable_ohm * i_max),
+                        CURRENT_RANGE_A[1] / i_max))
+
+
 def unservable_plants():
     """Plants whose capacitor cannot be an AC short at any frequency the sizing rules allow."""
     return plants(servable=False, max_steps=0)

@@ -151,6 +151,18 @@ def report_shares(n_plants):
             return
 
 
+MARGINS_FILE = os.environ.get("LINEDROP_PROOF_MARGINS")
+
+
+def _record_margins(*figures):
+    """Append the settled check's figures (estimate error, Re Z, its tolerance; load error, (R +
+    ESR) I, its tolerance; period-mean swing, drop, its bound) as one line to $LINEDROP_PROOF_MARGINS,
+    when set: what the bounds are measured against (harness/proof/PROOFS.md)."""
+    if MARGINS_FILE:
+        with open(MARGINS_FILE, "a") as f:
+            f.write(" ".join(f"{x:.6g}" for x in figures) + "\n")
+
+
 def settled_failures(lr, b, sc, w_from, w_to):
     """Reasons (list of str) the run is not settled over windows [w_from, w_to) (bounds.py)."""
     cfg = algo_config(sc)
@@ -187,14 +199,16 @@ def settled_failures(lr, b, sc, w_from, w_to):
                        f"{float(v.max()):.6g} V outside [{lo:.6g}, {hi:.6g}] V (uncompensated, expected) by "
                        f"more than {ltol:.3g} V")
         return out
+    osc = bd.OSCILLATION_REL * abs(drop) + bd.DAC_LSB_SLACK * bd.dac_lsb_v(cfg) \
+        + bd.correction_noise_v(cfg, sc.sensing, r_true)
+    _record_margins(abs(r_hat - r_meas), r_meas, tol, abs(v_mean - want), r_true * i_mean, ltol,
+                    float(np.ptp(v)) if v.size else 0.0, abs(drop), osc)
     if abs(r_hat - r_meas) > tol:
         out.append(f"estimate {r_hat:.6g} ohm vs Re(Z) {r_meas:.6g} ohm (R_cable+ESR {r_true:.6g}): off "
                    f"by more than {tol:.3g} ohm")
     if abs(v_mean - want) > ltol:
         out.append(f"load {v_mean:.6g} V vs expected {want:.6g} V (target {cfg.target_v:.6g}, drop "
                    f"{drop:.4g}): off by more than {ltol:.3g} V")
-    osc = bd.OSCILLATION_REL * abs(drop) + bd.DAC_LSB_SLACK * bd.dac_lsb_v(cfg) \
-        + bd.correction_noise_v(cfg, sc.sensing, r_true)
     if v.size and float(np.ptp(v)) > osc:
         out.append(f"load swings {float(np.ptp(v)):.4g} V peak-to-peak period to period "
                    f"(> {osc:.3g} V): oscillating")

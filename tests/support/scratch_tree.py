@@ -1,5 +1,6 @@
 """A scratch copy of the source tree for mutation runs: the tree itself is never modified."""
 import importlib
+import importlib.machinery
 import shutil
 import subprocess
 from pathlib import Path
@@ -7,6 +8,14 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 #: The compiled modules ``pip install`` builds, by import name.
 EXTENSIONS = ("c_ref._linedrop_cffi", "c_ref.host._plant_loop_cffi")
+
+
+def prefer_a_built_root(path, root=ROOT):
+    """Put ``root`` first on the import ``path`` (a list, sys.path) when it holds its own built C
+    reference, so scratch_copy takes this tree's extensions rather than those of whichever
+    linedrop is installed (an editable install of another checkout would otherwise win)."""
+    if any((root / "c_ref" / f"_linedrop_cffi{s}").is_file() for s in importlib.machinery.EXTENSION_SUFFIXES):
+        path.insert(0, str(root))
 
 
 def scratch_copy(dest, root=ROOT):
