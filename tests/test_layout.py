@@ -137,3 +137,13 @@ def test_harness_import_graph_has_no_cycle():
     for m in sorted(graph):
         if m not in state:
             visit(m)
+
+
+def test_every_package_folder_is_installed_by_pyproject():
+    # A folder missing from [tool.setuptools] packages works in the source tree and is absent
+    # from a plain `pip install .` (what CI runs).
+    import tomllib
+    listed = set(tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"]["packages"])
+    found = {".".join(p.parent.relative_to(ROOT).parts) for top in ("algo", "harness", "c_ref")
+             for p in (ROOT / top).rglob("__init__.py")}
+    assert found == listed, (sorted(found - listed), sorted(listed - found))
