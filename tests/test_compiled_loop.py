@@ -19,12 +19,17 @@ from harness.scenario.algo_setup import algo_config
 from harness.scenario.read import load_scenario
 from harness.scenario.specs import LoadSpec
 from support.plant_factory import make_scenario
+from support.tools import skip_or_fail
 
 REL = 1e-12
 SHIPPED = sorted(glob.glob(os.path.join(os.path.dirname(compiled.__file__), "..", "scenario", "scenarios", "*.toml")))
 DURATION = 0.25
-pytestmark = pytest.mark.skipif(compiled.why_not("c", "linedrop") is not None,
-                                reason=str(compiled.why_not("c", "linedrop")))
+
+
+@pytest.fixture(autouse=True)
+def _compiled_loop_built():
+    """Each test skips, or fails under LINEDROP_REQUIRE_TOOLS=1, where the compiled loop is not built."""
+    skip_or_fail(compiled.why_not("c", "linedrop"))
 
 
 def _setup(scenarios, compensation):

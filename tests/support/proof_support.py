@@ -15,7 +15,6 @@ from pathlib import Path
 
 import numpy as np
 
-from algo.params import derive
 from harness.proof import bounds as bd
 from harness.scenario.algo_setup import algo_config
 from harness.scenario.conductors import temperature_scale
