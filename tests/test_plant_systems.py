@@ -11,8 +11,15 @@ from scipy.signal import cont2discrete
 
 from harness.loop import compiled
 from harness.plant.linear_model import OUT_ROWS, DiscreteSystems, continuous_model
+from support.tools import skip_or_fail
 
-pytestmark = pytest.mark.skipif(compiled.why_not("c", "none") is not None, reason=str(compiled.why_not("c", "none")))
+
+
+@pytest.fixture(autouse=True)
+def _compiled_loop_built():
+    """Each test skips, or fails under LINEDROP_REQUIRE_TOOLS=1, where the compiled loop is not built."""
+    skip_or_fail(compiled.why_not("c", "none"))
+
 
 DT = 1.0 / 32000.0
 # (r, l, c, esr, g, omega, is_open): each branch of the model (inductive, resistive, open cable,
