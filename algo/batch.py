@@ -96,6 +96,7 @@ class BatchModel:
             if name not in ("r_est", "windows"):
                 getattr(s, name)[mask] = 0
         s.pert_amp[mask] = s.pert_next[mask] = p.pert_min[mask]
+        s.step_thr[mask] = s.thr_next[mask] = self._threshold(np.zeros(self.n, np.int64), self._idx)[mask]
         s.bad_windows[mask] = p.fault_windows[mask]
         s.cmd_base[mask] = p.target_code[mask]
         s.cmd[mask] = self._command()[mask]
@@ -161,13 +162,17 @@ class BatchModel:
         top = np.maximum(p.target_code[k], p.cmd_max[k] - s.pert_amp[k])
         s.cmd_base[k] = np.minimum(p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k]), top)
 
+    def _threshold(self, swing, k):
+        """algo.estimator.step_threshold for instances ``k``."""
+        p = self.p
+        return _sat32(np.maximum(p.step_min[k], _rsr(swing * p.swing_psum_q[k],
+                                                     SWING_FRAC + p.step_rel_shift[k])))
+
     def _period_end(self, k):
         """algo.step._period_end: the swing-relative load-step detector."""
-        s, p = self.s, self.p
+        s = self.s
         psum, prev = s.psum[k], s.psum_prev[k]
-        thr = np.maximum(p.step_min[k], _rsr(s.swing[k] * p.swing_psum_q[k],
-                                             SWING_FRAC + p.step_rel_shift[k]))
-        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > thr)
+        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > s.step_thr[k])
         s.transient[k[jump]] = 1
         s.psum_prev[k] = psum
         s.have_prev[k] = 1
@@ -187,7 +192,7 @@ class BatchModel:
         tgt = np.where(clip, 0, tgt)
         e = np.where(clip, -np.maximum(corr0, integ0), tgt - corr0)
         integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
-        kp = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
+        kp = s.kp[k]
         on = s.kp_off[k] < 2
         kp = np.where(on, kp, 0)
         u = _rsr(kp * e, GAIN_FRAC) + integ
@@ -219,7 +224,7 @@ class BatchModel:
             getattr(s, name)[k] = 0
 
     def _classify(self, k):
-        """algo.estimator.classify for instances ``k``; sets swing_next where valid, returns (status, r_raw)."""
+        """algo.estimator.classify for instances ``k``; sets swing where valid, returns (status, r_raw)."""
         s, p = self.s, self.p
         kt_s, kt_c = p.kt_s_q[k], p.kt_c_q[k]
         di, dv = s.w_di[k], s.w_dv[k]
@@ -246,7 +251,7 @@ class BatchModel:
              st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
         valid = status == st.STATUS_VALID
-        s.swing_next[k] = np.where(valid, _sat32(m), s.swing[k])
+        s.swing[k] = np.where(valid, _sat32(m), s.swing[k])
         return status, r_raw
 
     def _window_work(self, k):
@@ -279,7 +284,8 @@ class BatchModel:
         amp = np.where(status == st.STATUS_CLIPPED, amp0 >> 1, amp)
         amp = np.where(status == st.STATUS_LOW_SWING, amp0 << 1, amp)
         s.pert_next[k] = s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
-        s.swing[k] = s.swing_next[k]
+        s.kp[k] = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
+        s.thr_next[k] = s.step_thr[k] = self._threshold(s.swing[k], k)
         s.kp_off[k[valid]] = 0
         s.r_est[k] = r_est
         s.bad_windows[k] = bad

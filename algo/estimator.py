@@ -7,7 +7,7 @@ perturbation amplitude. The correction itself moves
 every period (algo.step.correct). The only divisions are here.
 """
 from algo.fixed import sat, sat_s32, rshift_round, div_trunc, bit_length, step_toward
-from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, KT_FRAC, ROT_FRAC
+from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, KT_FRAC, ROT_FRAC, SWING_FRAC
 from algo import state as st
 
 
@@ -44,7 +44,7 @@ def classify(p, s):
     every window, while a load step with the capacitor there leaves the detrended real part near
     the loop's, far below r_max; as a load step it would never count toward the forced zero.
     It reads the w_* record a window end leaves. A valid window also leaves its (detrended)
-    current swing for the load-step detector (swing_next, committed by the interrupt path).
+    current swing for the load-step detector (swing; window_work turns it into thr_next).
 
     Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
     within 2**33 in magnitude. The current pair is shifted right by ``sh`` so its larger
@@ -78,8 +78,29 @@ def classify(p, s):
         return st.STATUS_R_LOW, r_raw
     if abs(xnum) << p.r_frac > p.x_max_q * den:
         return st.STATUS_REACTIVE, r_raw
-    s.swing_next = sat_s32(m)
+    s.swing = sat_s32(m)
     return st.STATUS_VALID, r_raw
+
+
+def gain_kp(p, r_est):
+    """The correction's proportional gain for an estimate: R-hat * C / tau, kp = r_est * kc_q,
+    capped at kp_max_q.
+
+    Scaling and overflow: r_est (< 2**31) times kc_q (< 2**31) is below 2**62; the result is
+    clamped to kp_max_q <= 2**24.
+    """
+    return min(rshift_round(r_est * p.kc_q, p.r_frac), p.kp_max_q)
+
+
+def step_threshold(p, swing):
+    """The load-step detector's threshold for a current swing: a share 2**-step_rel_shift of
+    the swing in period-sum codes, at least step_min, saturated to int32 (a period-sum difference
+    is below 2**24, so the comparison is unchanged).
+
+    Scaling and overflow: swing (< 2**31) times swing_psum_q (int32, checked in
+    algo.params.derive) is below 2**62.
+    """
+    return sat_s32(max(p.step_min, rshift_round(swing * p.swing_psum_q, SWING_FRAC + p.step_rel_shift)))
 
 
 def drop_vq(r_q, isum, p):
@@ -161,7 +182,6 @@ def window_work(p, s):
     """
     if s.w_state != st.WIN_PENDING:
         return 0
-    s.swing_next = s.swing
     status, s.r_raw = classify(p, s)
     if status == st.STATUS_VALID:
         update_estimate(p, s, s.r_raw)
@@ -179,6 +199,8 @@ def window_work(p, s):
         s.r_est = 0
         s.valid_run = 0
         s.corr = s.corr_target = s.integ = s.du_prev = 0
+    s.kp = gain_kp(p, s.r_est)
+    s.thr_next = step_threshold(p, s.swing)
     drop_total = drop_vq(s.r_est, s.w_isum, p)
     s.pert_next = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
     s.status = status

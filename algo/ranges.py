@@ -24,7 +24,7 @@ STATE_TYPES = {
     "transient": (0, 0xFF), "status": (0, 0xFF), "clipped": (0, 0xFF), "valid_run": (0, 0xFF),
     "kp_off": (0, 0xFF), "i_zero": (0, 0xFF),
     "w_acc_vi": S32, "w_acc_vq": S32, "w_acc_ii": S32, "w_acc_iq": S32, "w_isum": S32,
-    "w_di": S32, "w_dv": S32, "pert_next": S32, "swing_next": S32, "w_clipped": (0, 0xFF),
+    "w_di": S32, "w_dv": S32, "pert_next": S32, "kp": S32, "step_thr": S32, "thr_next": S32, "w_clipped": (0, 0xFF),
     "w_transient": (0, 0xFF), "w_state": (0, 0xFF), "late_windows": (0, 0xFF),
 }
 
@@ -66,8 +66,9 @@ def state_bounds(p: Params):
     * ``pert_amp``: clamped to [pert_min, pert_max] at every window end; init sets pert_min.
     * ``w_*``: the window record, copies of the sums above at a window end; ``w_di``, ``w_dv``
       are a window sum less twice its half-window snapshot, within +-window * adc_max.
-      ``pert_next`` and ``swing_next`` are what window_work leaves for pert_amp and swing, with
-      their bounds (reset sets pert_next to pert_min too).
+      ``pert_next`` and ``thr_next`` are what window_work leaves for pert_amp and step_thr, with
+      their bounds (reset sets both too). ``kp``: estimator.gain_kp, clamped to [0, kp_max_q]
+      (r_est >= 0); ``step_thr``: estimator.step_threshold, at least step_min, int32-saturated.
     * ``cmd``: clamped to [cmd_min, cmd_max] in step._command; ``cmd_base`` is target_code
       plus the rounded correction (estimator.command_base), set at init, reset and every
       period end.
@@ -95,7 +96,8 @@ def state_bounds(p: Params):
         "w_acc_ii": (win * lo, win * hi), "w_acc_iq": (win * lo, win * hi),
         "w_isum": (0, win * p.adc_max),
         "w_di": (-win * p.adc_max, win * p.adc_max), "w_dv": (-win * p.adc_max, win * p.adc_max),
-        "pert_next": (p.pert_min, p.pert_max), "swing_next": (0, S32[1]),
+        "pert_next": (p.pert_min, p.pert_max), "kp": (0, p.kp_max_q),
+        "step_thr": (p.step_min, S32[1]), "thr_next": (p.step_min, S32[1]),
         "w_clipped": (0, 7), "w_transient": (0, 1), "w_state": (0, 2), "late_windows": (0, 0xFF),
     }
     return {name: bounds[name] for name in STATE_FIELDS}

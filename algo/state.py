@@ -40,7 +40,7 @@ class State:
     du_prev: int = 0      # int32: the last period's change of corr, same format
     pert_amp: int = 0     # int32: perturbation amplitude, DAC codes
     cmd_base: int = 0     # int32: target_code + rounded correction, DAC codes (set per period)
-    swing: int = 0        # int32: last window's current swing, demodulation units (step detector)
+    swing: int = 0        # int32: last valid window's current swing, demodulation units (sets step_thr)
     windows: int = 0      # uint32: windows finished (wraps)
     phase: int = 0        # uint16: sample index within the perturbation period
     count: int = 0        # uint16: sample index within the window
@@ -62,7 +62,9 @@ class State:
     w_di: int = 0         # int32: isum - 2 * isum_h, the current's half-window trend
     w_dv: int = 0         # int32: vsum - 2 * vsum_h
     pert_next: int = 0    # int32: perturbation amplitude the window work chose (committed to pert_amp)
-    swing_next: int = 0   # int32: current swing the window work left (committed to swing)
+    kp: int = 0           # int32: proportional gain from r_est, Q GAIN_FRAC in [0, kp_max_q] (window work)
+    step_thr: int = 0     # int32: load-step threshold in force, period-sum codes, saturated to int32
+    thr_next: int = 0     # int32: the threshold from the window work's swing (committed to step_thr)
     w_clipped: int = 0    # uint8: clipped at the window end
     w_transient: int = 0  # uint8: transient at the window end
     w_state: int = 0      # uint8: WIN_*, the hand-over to window_work

@@ -7,9 +7,9 @@ the window when it is full; return the next command code.
 Integer-only; no division.
 """
 from algo.fixed import sat, sat_s32, rshift_round
-from algo.estimator import command_base, window_work
+from algo.estimator import command_base, step_threshold, window_work
 from algo import state as st
-from algo.params import GAIN_FRAC, DROP_FRAC, SWING_FRAC, S32_MAX
+from algo.params import GAIN_FRAC, DROP_FRAC, S32_MAX
 from algo.state import State
 
 
@@ -41,23 +41,21 @@ def reset(p, s):
     s.__init__()
     s.r_est, s.windows = r_est, windows
     s.pert_amp = s.pert_next = p.pert_min
+    s.step_thr = s.thr_next = step_threshold(p, 0)
     s.bad_windows = p.fault_windows
     s.cmd_base = command_base(p, s)
     s.cmd = _command(p, s)
 
 
-def _period_end(p, s):
+def _period_end(s):
     """Flag a load step when consecutive whole-period current sums differ by more than a share
-    of the current swing.
+    of the current swing (step_thr, estimator.step_threshold of the last valid window's swing).
 
     Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit codes), so their
-    difference fits int32; swing (< 2**31) times swing_psum_q (int32, checked in
-    algo.params.derive) is below 2**62.
+    difference fits int32.
     """
-    if s.have_prev:
-        thr = max(p.step_min, rshift_round(s.swing * p.swing_psum_q, SWING_FRAC + p.step_rel_shift))
-        if abs(s.psum - s.psum_prev) > thr:
-            s.transient = 1
+    if s.have_prev and abs(s.psum - s.psum_prev) > s.step_thr:
+        s.transient = 1
     s.psum_prev = s.psum
     s.have_prev = 1
 
@@ -147,7 +145,7 @@ def correct(p, s):
     s.corr_target = 0 if s.i_zero else drop_period(p, s)
     e = -max(s.corr, s.integ) if s.i_zero else s.corr_target - s.corr
     integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
-    kp = 0 if s.kp_off >= 2 else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
+    kp = 0 if s.kp_off >= 2 else s.kp
     u = rshift_round(kp * e, GAIN_FRAC) + integ
     top = corr_ceiling(p, s)
     if u > top and e > 0:
@@ -244,26 +242,8 @@ def _window_late(p, s):
 def _commit(s):
     """Take over what the finished window work left for the interrupt path."""
     s.pert_amp = s.pert_next
-    s.swing = s.swing_next
+    s.step_thr = s.thr_next
     s.w_state = st.WIN_IDLE
-
-
-def step(p, s, adc_v, adc_i):
-    """Take one pair of ADC codes, return the command code for the next sample. A window end
-    does the window's work (``window_work``) in this call.
-
-    A window ends on a period end, so its checks sit inside the period's.
-    """
-    if _accumulate(p, s, adc_v, adc_i):
-        _period_end(p, s)
-        correct(p, s)
-        if _period_sums(p, s):
-            _window_handover(s)
-            window_work(p, s)
-            _commit(s)
-        s.cmd_base = command_base(p, s)
-    s.cmd = _command(p, s)
-    return s.cmd
 
 
 def step_isr(p, s, adc_v, adc_i):
@@ -271,7 +251,7 @@ def step_isr(p, s, adc_v, adc_i):
     main loop (c_ref/step.c ld_step_isr).
 
     A window end hands its sums over (WIN_PENDING); the first period end after window_work has
-    finished (WIN_DONE) commits its amplitude and swing, then takes that period's correction step
+    finished (WIN_DONE) commits its amplitude and load-step threshold, then takes that period's correction step
     with the new estimate. While a window waits, the interrupt path reads none of the fields the
     window work writes: the correction holds (no step, the command base unchanged) and only the
     load-step detector and the sums run. When the next window ends and the work has still not
@@ -281,7 +261,7 @@ def step_isr(p, s, adc_v, adc_i):
     if _accumulate(p, s, adc_v, adc_i):
         if s.w_state == st.WIN_DONE:
             _commit(s)
-        _period_end(p, s)
+        _period_end(s)
         if s.w_state == st.WIN_IDLE:
             correct(p, s)
             s.cmd_base = command_base(p, s)
@@ -292,3 +272,16 @@ def step_isr(p, s, adc_v, adc_i):
                 _window_late(p, s)
     s.cmd = _command(p, s)
     return s.cmd
+
+
+def step(p, s, adc_v, adc_i):
+    """Take one pair of ADC codes, return the command code for the next sample: ``step_isr``,
+    with a window end's work (``window_work``) done and committed in the same call, so its
+    amplitude and load-step threshold, and a forced zero of the correction, are in the command
+    at once (c_ref/step.c ld_step)."""
+    cmd = step_isr(p, s, adc_v, adc_i)
+    if s.w_state == st.WIN_PENDING and window_work(p, s):
+        _commit(s)
+        s.cmd_base = command_base(p, s)
+        s.cmd = cmd = _command(p, s)
+    return cmd

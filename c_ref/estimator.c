@@ -57,7 +57,7 @@ static inline unsigned ld_bit_length64(int64_t u)
  * every window, while a load step with the capacitor there leaves the detrended real part near
  * the loop's, far below r_max; as a load step it would never count toward the forced zero.
  * A valid window also leaves its (detrended) current swing for
- * the load-step detector (swing_next, committed by the interrupt path).
+ * the load-step detector (swing; ld_window_work turns it into thr_next).
  * Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
  * within 2**33 in magnitude. The current pair is shifted right by sh so its larger
  * magnitude has at most NORM_BITS+1 bits; the voltage pair takes the same shift, so it stays
@@ -114,8 +114,37 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     if (ld_abs64(xnum) * ((int64_t)1 << p->r_frac) > (int64_t)p->x_max_q * den) {
         return LD_STATUS_REACTIVE;
     }
-    s->swing_next = ld_sat_s32(m);
+    s->swing = ld_sat_s32(m);
     return LD_STATUS_VALID;
+}
+
+/*
+ * The correction's proportional gain for an estimate r_est: R-hat * C / tau, kp = r_est * kc_q,
+ * capped at kp_max_q.
+ * Scaling and overflow: r_est (< 2**31) times kc_q (< 2**31) is below 2**62; the result is
+ * clamped to kp_max_q <= 2**24, so it is held as int32.
+ */
+static int32_t ld_gain_kp(const ld_params_t *p, int32_t r_est)
+{
+    int64_t kp64 = ld_rshift_round64((int64_t)r_est * p->kc_q, p->r_frac);
+    return kp64 > p->kp_max_q ? p->kp_max_q : (int32_t)kp64;
+}
+
+/*
+ * The load-step detector's threshold for a current swing: a share 2**-step_rel_shift of the
+ * swing in period-sum codes, at least step_min.
+ * Scaling and overflow: swing (< 2**31) times swing_psum_q (int32, checked in
+ * algo.params.derive) is below 2**62; after the shift it can still exceed int32, and is
+ * saturated there: a period-sum difference is below 2**24, so the comparison is unchanged.
+ */
+int32_t ld_step_threshold(const ld_params_t *p, int32_t swing)
+{
+    int64_t thr = ld_rshift_round64((int64_t)swing * p->swing_psum_q,
+                                    LD_SWING_FRAC + (unsigned)p->step_rel_shift);
+    if (thr < p->step_min) {
+        thr = p->step_min;
+    }
+    return ld_sat_s32(thr);
 }
 
 /*
@@ -228,7 +257,6 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
         return 0u;
     }
     LD_COMPILER_BARRIER();
-    s->swing_next = s->swing;
     status = ld_classify(p, s, &r_raw);
     s->r_raw = r_raw;
     if (status == LD_STATUS_VALID) {
@@ -255,6 +283,8 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
         s->integ = 0;
         s->du_prev = 0;
     }
+    s->kp = ld_gain_kp(p, s->r_est);
+    s->thr_next = ld_step_threshold(p, s->swing);
     drop_total = ld_drop_vq(s->r_est, s->w_isum, p);
     s->pert_next = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
                                      p->pert_min, p->pert_max);

@@ -109,7 +109,7 @@ typedef struct {
     int32_t du_prev;       /* the last period's change of corr, same format */
     int32_t pert_amp;      /* perturbation amplitude, DAC codes */
     int32_t cmd_base;      /* target_code + rounded correction, DAC codes (set per period) */
-    int32_t swing;         /* last window's current swing, demodulation units (step detector) */
+    int32_t swing;         /* last valid window's current swing, demodulation units (sets step_thr) */
     uint32_t windows;      /* windows finished (wraps) */
     uint16_t phase;        /* sample index within the period */
     uint16_t count;        /* sample index within the window */
@@ -131,7 +131,9 @@ typedef struct {
     int32_t w_di;          /* isum - 2 * isum_h: the current's half-window trend */
     int32_t w_dv;          /* vsum - 2 * vsum_h */
     int32_t pert_next;     /* perturbation amplitude the window work chose, DAC codes (committed to pert_amp) */
-    int32_t swing_next;    /* current swing the window work left (committed to swing) */
+    int32_t kp;            /* proportional gain from r_est, Q LD_GAIN_FRAC in [0, kp_max_q] (window work) */
+    int32_t step_thr;      /* load-step threshold in force, period-sum codes, saturated to int32 */
+    int32_t thr_next;      /* the threshold from the window work's swing (committed to step_thr) */
     uint8_t w_clipped;     /* clipped at the window end */
     uint8_t w_transient;   /* transient at the window end */
     uint8_t w_state;       /* LD_WIN_*: the hand-over to ld_window_work */
@@ -149,6 +151,7 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s);
 /* One period of the correction (called at each period end, before a window end). */
 void ld_correct(const ld_params_t *p, ld_state_t *s);
 int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s);
+int32_t ld_step_threshold(const ld_params_t *p, int32_t swing);
 
 /* Step n_inst independent instances over n_samples each. Instance k uses
  * params[k] and states[k]; its inputs and outputs are at [k * n_samples + t]. */

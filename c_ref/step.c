@@ -45,6 +45,8 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
     s->windows = windows;
     s->pert_amp = p->pert_min;
     s->pert_next = p->pert_min;
+    s->step_thr = ld_step_threshold(p, 0);
+    s->thr_next = s->step_thr;
     s->bad_windows = p->fault_windows;
     s->cmd_base = ld_command_base(p, s);
     s->cmd = ld_command(p, s);
@@ -52,23 +54,14 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
 
 /*
  * Flag a load step when consecutive whole-period current sums differ by more than a share
- * of the current swing.
+ * of the current swing (step_thr, ld_step_threshold of the last valid window's swing).
  * Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit codes), so their
- * difference fits int32; swing (< 2**31) times swing_psum_q (int32, checked in
- * algo.params.derive) is below 2**62. The threshold is kept in int64: after the shift it can
- * still exceed int32.
+ * difference fits int32.
  */
-static void ld_period_end(const ld_params_t *p, ld_state_t *s)
+static void ld_period_end(ld_state_t *s)
 {
-    if (s->have_prev != 0u) {
-        int64_t thr = ld_rshift_round64((int64_t)s->swing * p->swing_psum_q,
-                                        LD_SWING_FRAC + (unsigned)p->step_rel_shift);
-        if (thr < p->step_min) {
-            thr = p->step_min;
-        }
-        if ((int64_t)ld_abs32(s->psum - s->psum_prev) > thr) {
-            s->transient = 1u;
-        }
+    if (s->have_prev != 0u && ld_abs32(s->psum - s->psum_prev) > s->step_thr) {
+        s->transient = 1u;
     }
     s->psum_prev = s->psum;
     s->have_prev = 1u;
@@ -151,8 +144,8 @@ static int32_t ld_corr_ceiling(const ld_params_t *p, const ld_state_t *s)
  * first kick can be one) only counts (kp_off 1). The integral part alone is stable without
  * the capacitor.
  * Scaling and overflow: corr and corr_target are in [0, 2**31), so |e| < 2**31, and du, du_prev
- * and |du| - |du_prev| fit int32. r_est (< 2**31) times kc_q (< 2**31) is below
- * 2**62 and kp is clamped to kp_max_q <= 2**24 (then held as int32), so kp * e is below 2**55; ki_q <= 2**16 keeps
+ * and |du| - |du_prev| fit int32. kp (the window work's ld_gain_kp of r_est) is at most
+ * kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
  * ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
  * before it is stored. (The doubling test is written |du| - |du_prev| > |du_prev|, the same
  * integers, so it never forms 2 |du_prev|.)
@@ -177,11 +170,7 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
         e = s->corr_target - s->corr;
     }
     integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
-    kp = 0;
-    if (s->kp_off < 2u) {
-        int64_t kp64 = ld_rshift_round64((int64_t)s->r_est * p->kc_q, p->r_frac);
-        kp = kp64 > p->kp_max_q ? p->kp_max_q : (int32_t)kp64;
-    }
+    kp = s->kp_off < 2u ? s->kp : 0;
     u = ld_rshift_round64((int64_t)kp * e, LD_GAIN_FRAC) + integ;
     top = ld_corr_ceiling(p, s);
     if (u > top && e > 0) {
@@ -321,35 +310,14 @@ static void ld_window_late(const ld_params_t *p, ld_state_t *s)
 static inline void ld_commit(ld_state_t *s)
 {
     s->pert_amp = s->pert_next;
-    s->swing = s->swing_next;
+    s->step_thr = s->thr_next;
     s->w_state = LD_WIN_IDLE;
-}
-
-/*
- * Take one pair of ADC codes, return the command code for the next sample. A window end does
- * the window's work (ld_window_work) in this call.
- * A window ends on a period end, so its checks sit inside the period's.
- */
-uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
-{
-    if (ld_accumulate(p, s, adc_v, adc_i) != 0u) {
-        ld_period_end(p, s);
-        ld_correct(p, s);
-        if (ld_period_sums(p, s) != 0u) {
-            ld_window_handover(s);
-            (void)ld_window_work(p, s);
-            ld_commit(s);
-        }
-        s->cmd_base = ld_command_base(p, s);
-    }
-    s->cmd = ld_command(p, s);
-    return s->cmd;
 }
 
 /*
  * The interrupt path: ld_step less the window work, which ld_window_work does from the main
  * loop. A window end hands its sums over (LD_WIN_PENDING); the first period end after
- * ld_window_work has finished (LD_WIN_DONE) commits its amplitude and swing, then takes that
+ * ld_window_work has finished (LD_WIN_DONE) commits its amplitude and load-step threshold, then takes that
  * period's correction step with the new estimate. While a window waits, the interrupt path
  * reads none of the fields the window work writes: the correction holds (no step, the command
  * base unchanged) and only the load-step detector and the sums run. When the next window ends
@@ -358,13 +326,22 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
  * correction, and writes it only to zero.
  * Scaling and overflow: as ld_step.
  */
-uint16_t ld_step_isr(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
+/* The interrupt path's body, inlined into both entry points in a build for speed (one call
+ * less per sample for ld_step), kept once in a build for size. */
+#if defined(__GNUC__) && !defined(__OPTIMIZE_SIZE__)
+#define LD_HOT_INLINE static inline __attribute__((always_inline))
+#else
+#define LD_HOT_INLINE static inline
+#endif
+
+LD_HOT_INLINE uint16_t ld_step_core(const ld_params_t *p, ld_state_t *s, uint16_t adc_v,
+                                    uint16_t adc_i)
 {
     if (ld_accumulate(p, s, adc_v, adc_i) != 0u) {
         if (s->w_state == LD_WIN_DONE) {
             ld_commit(s);
         }
-        ld_period_end(p, s);
+        ld_period_end(s);
         if (s->w_state == LD_WIN_IDLE) {
             ld_correct(p, s);
             s->cmd_base = ld_command_base(p, s);
@@ -379,6 +356,28 @@ uint16_t ld_step_isr(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16
     }
     s->cmd = ld_command(p, s);
     return s->cmd;
+}
+
+uint16_t ld_step_isr(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
+{
+    return ld_step_core(p, s, adc_v, adc_i);
+}
+
+/*
+ * Take one pair of ADC codes, return the command code for the next sample: ld_step_isr, with a
+ * window end's work (ld_window_work) done and committed in the same call, so its amplitude
+ * and load-step threshold, and a forced zero of the correction, are in the command at once.
+ */
+uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
+{
+    uint16_t cmd = ld_step_core(p, s, adc_v, adc_i);
+    if (s->w_state == LD_WIN_PENDING && ld_window_work(p, s) != 0u) {
+        ld_commit(s);
+        s->cmd_base = ld_command_base(p, s);
+        s->cmd = ld_command(p, s);
+        cmd = s->cmd;
+    }
+    return cmd;
 }
 
 uint32_t ld_version(void)

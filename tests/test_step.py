@@ -14,7 +14,7 @@ from dataclasses import replace
 
 import pytest
 
-from algo import step
+from algo import estimator, step
 from algo.config import AlgoConfig
 from algo.params import GAIN_FRAC, derive
 from algo.state import State
@@ -23,10 +23,12 @@ P = derive(AlgoConfig())
 P_LAW = replace(P, ki_q=0, kp_max_q=1 << GAIN_FRAC, corr_max_q=1 << 12, esr_q=0)
 CORR = 1000                   # correction in force, Q corr_frac codes (the integral the same)
 GUARD = P_LAW.corr_max_q >> 6  # a swing must exceed corr_max / 64 to count: 64
+KP_ONE = estimator.gain_kp(P_LAW, 1 << 16)   # the window work's gain for the estimate 2**16: 1.0
+assert KP_ONE == 1 << GAIN_FRAC
 
 
 def _period(drop, du_prev, kp_off, corr=CORR):
-    s = State(r_est=1 << 16, valid_run=2, corr=corr, integ=corr, du_prev=du_prev, kp_off=kp_off,
+    s = State(r_est=1 << 16, kp=KP_ONE, valid_run=2, corr=corr, integ=corr, du_prev=du_prev, kp_off=kp_off,
               psum=2 * drop)
     assert step.drop_period(P_LAW, s) == drop       # the module docstring's arithmetic
     step.correct(P_LAW, s)
@@ -62,7 +64,7 @@ def test_the_integral_holds_while_the_output_sits_above_the_ceiling_and_the_erro
     # ceiling (corr_max_q 2048; the command's room is larger), so the integral stays at 1000
     # instead of moving to 2000, and the output is the ceiling.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1), corr_max_q=2048)
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=CORR, psum=2 * 3000)
+    s = State(r_est=1 << 16, kp=KP_ONE, valid_run=2, corr=CORR, integ=CORR, psum=2 * 3000)
     step.correct(p, s)
     assert (s.corr, s.integ) == (2048, CORR)
 
@@ -71,7 +73,7 @@ def test_at_exactly_the_ceiling_the_integral_still_moves():
     # kp 1, ki 1/2, integral 848 under a correction of 1000: e = 1800 - 1000 = 800 gives
     # u = 800 + (848 + 400) = 2048, the ceiling itself, so the integral moves to 1248.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1), corr_max_q=2048)
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=848, psum=2 * 1800)
+    s = State(r_est=1 << 16, kp=KP_ONE, valid_run=2, corr=CORR, integ=848, psum=2 * 1800)
     step.correct(p, s)
     assert (s.corr, s.integ) == (2048, 1248)
 
@@ -89,15 +91,17 @@ def test_the_ceiling_is_the_command_room_less_the_perturbation_peak():
                          ids=["at_the_threshold", "one_above", "one_above_downward"])
 def test_a_load_step_is_a_period_sum_change_of_more_than_the_threshold(change, transient):
     # No swing yet: the threshold is step_min itself.
-    s = State(have_prev=1, psum_prev=5000, psum=5000 + change, swing=0)
-    step._period_end(replace(P, step_min=100), s)
+    thr = estimator.step_threshold(replace(P, step_min=100), 0)
+    assert thr == 100
+    s = State(have_prev=1, psum_prev=5000, psum=5000 + change, step_thr=thr)
+    step._period_end(s)
     assert (s.transient, s.psum_prev) == (transient, 5000 + change)
 
 
 def test_at_one_code_of_error_above_the_ceiling_the_integral_holds():
     # integral 2047 under a 2048 ceiling, e = 1: u = 1 + (2047 + 1) = 2049 > 2048, so it holds.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1), corr_max_q=2048)
-    s = State(r_est=1 << 16, valid_run=2, corr=2047, integ=2047, psum=2 * 2048)
+    s = State(r_est=1 << 16, kp=KP_ONE, valid_run=2, corr=2047, integ=2047, psum=2 * 2048)
     step.correct(p, s)
     assert (s.corr, s.integ) == (2048, 2047)
 
@@ -106,14 +110,14 @@ def test_at_one_code_of_error_above_the_ceiling_the_integral_holds():
 def test_a_load_dump_takes_the_output_and_the_integral_down_to_zero_never_below(integ, want_integ):
     # Drop 0 against a correction of 1000: e = -1000, u = -1000 + (integ - 500) < 0.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1))
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=integ, psum=0)
+    s = State(r_est=1 << 16, kp=KP_ONE, valid_run=2, corr=CORR, integ=integ, psum=0)
     step.correct(p, s)
     assert (s.corr, s.integ) == (0, want_integ)
 
 
 def test_a_period_with_a_current_code_at_zero_tracks_no_drop_and_takes_its_error_against_the_correction():
     # i_zero: the drop read is 0 and e = -max(corr, integ) = -1000, so u = -1000 + 1000 = 0.
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=CORR, psum=2 * 5000, i_zero=1)
+    s = State(r_est=1 << 16, kp=KP_ONE, valid_run=2, corr=CORR, integ=CORR, psum=2 * 5000, i_zero=1)
     step.correct(P_LAW, s)
     assert (s.corr_target, s.corr) == (0, 0)
 

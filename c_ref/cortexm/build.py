@@ -23,7 +23,8 @@ ALGO_SOURCES = ("step.c", "estimator.c", "fixed.c")
 WARNINGS = ("-std=c99", "-Wall", "-Wextra", "-Wconversion", "-Wsign-conversion", "-pedantic",
             "-Werror")
 # Entry points an application calls; everything else is reached from them.
-API = ("ld_init", "ld_reset", "ld_step", "ld_state_size", "ld_params_size", "ld_version")
+API = ("ld_init", "ld_reset", "ld_step", "ld_step_isr", "ld_window_work", "ld_state_size",
+       "ld_params_size", "ld_version")
 
 
 def arch_flags(cpu):

@@ -146,7 +146,7 @@ static void ld_tv_print(uint16_t cmd)
     const ld_state_t *s = &ld_tv_s;
     printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu "
            "%u %u %u %u %u %u %u %u %u %u %u "
-           "%ld %ld %ld %ld %ld %ld %ld %ld %ld %u %u %u %u\n",
+           "%ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %u %u %u %u\n",
            (unsigned)cmd, (long)s->acc_vi, (long)s->acc_vq, (long)s->acc_ii, (long)s->acc_iq,
            (long)s->isum, (long)s->vsum, (long)s->isum_h, (long)s->vsum_h,
            (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
@@ -157,7 +157,7 @@ static void ld_tv_print(uint16_t cmd)
            (unsigned)s->clipped, (unsigned)s->valid_run, (unsigned)s->kp_off,
            (unsigned)s->i_zero, (long)s->w_acc_vi, (long)s->w_acc_vq, (long)s->w_acc_ii,
            (long)s->w_acc_iq, (long)s->w_isum, (long)s->w_di, (long)s->w_dv, (long)s->pert_next,
-           (long)s->swing_next, (unsigned)s->w_clipped, (unsigned)s->w_transient,
+           (long)s->kp, (long)s->step_thr, (long)s->thr_next, (unsigned)s->w_clipped, (unsigned)s->w_transient,
            (unsigned)s->w_state, (unsigned)s->late_windows);
 }
 
