@@ -17,24 +17,24 @@
 #define LD_VERSION_MINOR 5
 #define LD_VERSION_PATCH 0
 
-#define LD_TAB_MAX 256   /* longest perturbation period, samples */
-#define LD_GAIN_FRAC 16  /* fraction bits of corr_gain_q, pert_gain_q, ki_q, kc_q, kp_max_q */
-#define LD_DROP_FRAC 8   /* fraction bits of the window drop in V-ADC codes */
-#define LD_NORM_BITS 14  /* current demodulation pair normalised to this many bits */
-#define LD_KT_FRAC 16    /* fraction bits of the trend-removal constants kt_s_q, kt_c_q */
-#define LD_ROT_FRAC 14   /* fraction bits of the voltage phase rotation rot_c_q, rot_s_q */
-#define LD_SWING_FRAC 24 /* fraction bits of swing_psum_q */
+#define LD_TAB_MAX 256    /* longest perturbation period, samples */
+#define LD_GAIN_FRAC 16u  /* fraction bits of corr_gain_q, pert_gain_q, ki_q, kc_q, kp_max_q */
+#define LD_DROP_FRAC 8u   /* fraction bits of the window drop in V-ADC codes */
+#define LD_NORM_BITS 14u  /* current demodulation pair normalised to this many bits */
+#define LD_KT_FRAC 16u    /* fraction bits of the trend-removal constants kt_s_q, kt_c_q */
+#define LD_ROT_FRAC 14u   /* fraction bits of the voltage phase rotation rot_c_q, rot_s_q */
+#define LD_SWING_FRAC 24u /* fraction bits of swing_psum_q */
 #define LD_KP_MAX_Q ((int32_t)1 << 24) /* ceiling of any proportional gain (256), Q LD_GAIN_FRAC */
 
 /* Window outcome codes (ld_state_t.status). */
-#define LD_STATUS_NONE 0
-#define LD_STATUS_VALID 1
-#define LD_STATUS_LOW_SWING 2
-#define LD_STATUS_TRANSIENT 3
-#define LD_STATUS_R_HIGH 4
-#define LD_STATUS_REACTIVE 5
-#define LD_STATUS_CLIPPED 6
-#define LD_STATUS_R_LOW 7
+#define LD_STATUS_NONE 0u
+#define LD_STATUS_VALID 1u
+#define LD_STATUS_LOW_SWING 2u
+#define LD_STATUS_TRANSIENT 3u
+#define LD_STATUS_R_HIGH 4u
+#define LD_STATUS_REACTIVE 5u
+#define LD_STATUS_CLIPPED 6u
+#define LD_STATUS_R_LOW 7u
 
 /* Window hand-over between ld_step_isr and ld_window_work (ld_state_t.w_state). */
 #define LD_WIN_IDLE 0    /* no finished window waits: the interrupt path owns every field */
