@@ -14,6 +14,7 @@ from c_ref.riscv import build
 from support.tools import require_module, skip_or_fail
 
 CORRUPTED_SAMPLE = 300
+BENCH_KEYS = {"rv32_instr_mean", "rv32_instr_max", "rv32_instr_max_adversarial", "rv32_text_bytes_os"}
 
 
 def _need_tools():
@@ -24,9 +25,15 @@ def _need_tools():
     return firmware_cost_riscv
 
 
+def _inputs():
+    """The Cortex-M cost run's inputs, as firmware_cost.measure() hands them over."""
+    from harness.port.firmware_cost import WINDOWS, adversarial_inputs, input_run
+    return input_run, adversarial_inputs, WINDOWS
+
+
 @pytest.fixture(scope="module")
 def runs():
-    return _need_tools().measure()
+    return _need_tools().measure(AlgoConfig(), *_inputs())
 
 
 def test_emulated_rv32imc_matches_the_model_on_every_step_at_os_and_o2(runs):
@@ -36,7 +43,7 @@ def test_emulated_rv32imc_matches_the_model_on_every_step_at_os_and_o2(runs):
 
 
 def test_figures_are_positive_and_the_same_on_a_second_run(runs):
-    again = _need_tools().measure()
+    again = _need_tools().measure(AlgoConfig(), *_inputs())
     assert again == runs
     for r in runs.values():
         for key in ("instr_mean", "instr_max", "instr_sample_max", "instr_max_adversarial",
@@ -89,16 +96,17 @@ def test_a_model_that_differs_at_one_sample_is_reported_there(monkeypatch, tmp_p
             return cmd
 
     monkeypatch.setattr(module, "model", Corrupted)
-    r = module.run_rv32("-O2", AlgoConfig(), str(tmp_path))
+    r = module.run_rv32("-O2", AlgoConfig(), str(tmp_path), *_inputs())
     assert r["mismatch"]["sample"] == CORRUPTED_SAMPLE
     assert list(r["mismatch"]["fields"]) == ["integ"]
 
 
 def test_bench_carries_the_rv32_keys_from_these_runs(runs, monkeypatch):
     module = _need_tools()
-    monkeypatch.setattr(module, "measure", lambda cfg=None: runs)
-    got = module.bench_figures()
-    assert set(got) == set(module.BENCH_KEYS)
+    monkeypatch.setattr(module, "measure", lambda *args: runs)
+    got = module.bench_figures(AlgoConfig(), *_inputs())
+    assert BENCH_KEYS <= set(got) and all(k.startswith("rv32_") for k in got)
+    assert got["rv32_instr_mean"] == round(runs["-O2"]["instr_mean"], 2)
     assert got["rv32_instr_max"] == runs["-O2"]["instr_max"]
     assert got["rv32_instr_max_adversarial"] == runs["-O2"]["instr_max_adversarial"]
     assert got["rv32_text_bytes_os"] == runs["-Os"]["text_bytes"]

@@ -1,19 +1,17 @@
 """Firmware cost of ld_step on RV32IMC: instructions per sample in unicorn, code bytes and stack.
 
-The RISC-V counterpart of :mod:`harness.port.firmware_cost`, on its inputs
-(the closed-loop cable + capacitor plant with a load step, then the open-loop
-adversarial codes, imported from there): builds the firmware sources with
-``riscv64-unknown-elf-gcc -march=rv32imc``, runs ld_step in unicorn, checks
-every command and every state field against the Python model, and counts
-executed instructions. Code bytes are those of the linked image (after linker
-relaxation shortens calls), which is what lands in flash.
-
-    python -m harness.port.firmware_cost_riscv [--json]
+The RISC-V counterpart of :mod:`harness.port.firmware_cost`, which calls it
+(``measure()`` there adds :func:`bench_figures`, so ``linedrop bench --firmware
+--json`` carries the ``rv32_*`` keys) and hands it its inputs: the closed-loop
+cable + capacitor plant with a load step (``input_run``), then the open-loop
+adversarial codes (``adversarial_inputs``). They are passed in, not imported, so
+the arrow between the two modules points one way. Builds the firmware sources
+with ``riscv64-unknown-elf-gcc -march=rv32imc``, runs ld_step in unicorn,
+checks every command and every state field against the Python model, and
+counts executed instructions. Code bytes are those of the linked image (after
+linker relaxation shortens calls), which is what lands in flash.
 """
-import argparse
-import json
 import subprocess
-import sys
 import tempfile
 
 from elftools.elf.elffile import ELFFile
@@ -24,12 +22,8 @@ from algo.params import PARAM_FIELDS, derive
 from algo.state import STATE_FIELDS
 from c_ref.cortexm.build import worst_stack
 from c_ref.riscv import build
-from harness.port.firmware_cost import WINDOWS, adversarial_inputs, input_run
 
 OPTS = ("-Os", "-O2")
-# The keys `linedrop bench --firmware --json` carries (harness.port.firmware_cost.measure).
-BENCH_KEYS = ("rv32_instr_mean", "rv32_instr_max", "rv32_instr_max_adversarial",
-              "rv32_text_bytes_os", "rv32_bit_exact")
 
 
 def _state_diff(emu, s):
@@ -53,9 +47,11 @@ def _linked_bytes(elf, objs):
         return own, image.get_section_by_name(".text")["sh_size"] - own
 
 
-def run_rv32(opt, cfg, out_dir):
+def run_rv32(opt, cfg, out_dir, input_run, adversarial_inputs, windows):
     """Build at ``opt``, run the closed loop then the adversarial input; return the figures.
 
+    ``input_run(cfg, n)`` is the plant coroutine (send a command, get ``(adc_v, adc_i)``),
+    run for ``windows`` windows; ``adversarial_inputs(p)`` the open-loop codes after it.
     ``mismatch`` is the first step (or the initial state) where the target's command or
     a state field differs from the model's, else ``None``.
     """
@@ -69,7 +65,7 @@ def run_rv32(opt, cfg, out_dir):
     s = model.init(p)
     diff = _state_diff(emu, s)
     mismatch = {"sample": "ld_init", "fields": diff} if diff else None
-    n = WINDOWS * p.window
+    n = windows * p.window
     plant = input_run(cfg, n)
     next(plant)
     cmd = s.cmd
@@ -101,57 +97,31 @@ def run_rv32(opt, cfg, out_dir):
             "samples": n, "adversarial_samples": len(adversarial), "mismatch": mismatch}
 
 
-def measure(cfg=None):
-    """Every RV32IMC figure: ``{opt: run_rv32(...)}`` for -Os and -O2."""
-    cfg = cfg or AlgoConfig()
+def measure(cfg, input_run, adversarial_inputs, windows):
+    """Every RV32IMC figure: ``{opt: run_rv32(...)}`` for -Os and -O2 (arguments as there)."""
     with tempfile.TemporaryDirectory() as tmp:
-        return {opt: run_rv32(opt, cfg, f"{tmp}/rv32{opt}") for opt in OPTS}
+        return {opt: run_rv32(opt, cfg, f"{tmp}/rv32{opt}", input_run, adversarial_inputs, windows)
+                for opt in OPTS}
 
 
-def bench_figures(cfg=None):
-    """The ``rv32_*`` keys of the firmware benchmark (-O2 counts, -Os code bytes).
+def bench_figures(cfg, input_run, adversarial_inputs, windows):
+    """The ``rv32_*`` keys of the firmware benchmark, named as the Cortex-M ones (``m4_*``).
 
+    Counts at -O2 unless the key ends in ``_os``; ``rv32_bit_exact`` covers both builds.
     Without the RISC-V toolchain only ``rv32_missing`` (why) is given.
     """
     reason = build.toolchain_missing()
     if reason:
         return {"rv32_missing": reason}
-    runs = measure(cfg)
-    o2 = runs["-O2"]
-    return dict(zip(BENCH_KEYS, (round(o2["instr_mean"], 2), o2["instr_max"],
-                                 o2["instr_max_adversarial"], runs["-Os"]["text_bytes"],
-                                 all(r["mismatch"] is None for r in runs.values()))))
-
-
-def main(argv=None):
-    """Print the RV32IMC cost figures (or ``--json``)."""
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--json", action="store_true", help="print every figure as JSON")
-    args = ap.parse_args(argv)
-    reason = build.toolchain_missing()
-    if reason:
-        print(f"firmware_cost_riscv: {reason}", file=sys.stderr)
-        return 2
-    runs = measure()
-    if args.json:
-        print(json.dumps(runs, indent=2))
-        return 0
-    rows = [("instructions per ld_step, mean", "instr_mean"),
-            ("instructions, worst = window end", "instr_max"),
-            ("instructions, worst non-window sample", "instr_sample_max"),
-            ("instructions, worst on adversarial input", "instr_max_adversarial"),
-            (".text bytes of the firmware sources, linked", "text_bytes"),
-            ("picolibc/libgcc code and tables, bytes", "lib_bytes"),
-            ("stack, static call graph, bytes", "stack_static"),
-            ("stack, measured incl. libgcc, bytes", "stack_measured")]
-    print(f"{'figure (RV32IMC)':44s} {'-O2':>8s} {'-Os':>8s}")
-    for label, key in rows:
-        print(f"{label:44s} {runs['-O2'][key]:>8.6g} {runs['-Os'][key]:>8.6g}")
-    for opt, r in runs.items():
-        print(f"{opt}: bit-exact with the Python model over {r['samples']} closed-loop and "
-              f"{r['adversarial_samples']} adversarial samples: {r['mismatch'] is None}")
-    return 0
-
-
-if __name__ == "__main__":
-    sys.exit(main())
+    runs = measure(cfg, input_run, adversarial_inputs, windows)
+    o2, os_ = runs["-O2"], runs["-Os"]
+    return {"rv32_instr_mean": round(o2["instr_mean"], 2), "rv32_instr_max": o2["instr_max"],
+            "rv32_instr_sample_max": o2["instr_sample_max"],
+            "rv32_instr_max_adversarial": o2["instr_max_adversarial"],
+            "rv32_instr_mean_os": round(os_["instr_mean"], 2), "rv32_instr_max_os": os_["instr_max"],
+            "rv32_text_bytes_os": os_["text_bytes"], "rv32_text_bytes_o2": o2["text_bytes"],
+            "rv32_lib_bytes_os": os_["lib_bytes"],
+            "rv32_stack_bytes": max(r["stack_static"] for r in runs.values()),
+            "rv32_stack_bytes_measured": max(r["stack_measured"] for r in runs.values()),
+            "rv32_bit_exact": all(r["mismatch"] is None for r in runs.values()),
+            "rv32_mismatches": {opt: r["mismatch"] for opt, r in runs.items() if r["mismatch"]}}
