@@ -95,7 +95,7 @@ class BatchModel:
         for name in STATE_FIELDS:
             if name not in ("r_est", "windows"):
                 getattr(s, name)[mask] = 0
-        s.pert_amp[mask] = p.pert_min[mask]
+        s.pert_amp[mask] = s.pert_next[mask] = p.pert_min[mask]
         s.bad_windows[mask] = p.fault_windows[mask]
         s.cmd_base[mask] = p.target_code[mask]
         s.cmd[mask] = self._command()[mask]
@@ -155,7 +155,8 @@ class BatchModel:
             s.isum_h[h], s.vsum_h[h] = s.isum[h], s.vsum[h]
         w = k[count == self.window[k]]
         if w.size:
-            self._window_end(w)
+            self._window_handover(w)
+            self._window_work(w)
         p = self.p
         top = np.maximum(p.target_code[k], p.cmd_max[k] - s.pert_amp[k])
         s.cmd_base[k] = np.minimum(p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k]), top)
@@ -207,18 +208,27 @@ class BatchModel:
         s.corr[k] = np.where(forced, 0, corr)
         s.du_prev[k] = np.where(forced, 0, du)
 
+    def _window_handover(self, k):
+        """algo.step._window_handover for instances ``k``: the w_* record, the next window's sums."""
+        s = self.s
+        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "clipped", "transient"):
+            getattr(s, "w_" + name)[k] = getattr(s, name)[k]
+        s.w_di[k] = s.isum[k] - 2 * s.isum_h[k]
+        s.w_dv[k] = s.vsum[k] - 2 * s.vsum_h[k]
+        for name in _CLEARED:
+            getattr(s, name)[k] = 0
+
     def _classify(self, k):
-        """algo.estimator.classify for instances ``k``; sets swing where valid, returns (status, r_raw)."""
+        """algo.estimator.classify for instances ``k``; sets swing_next where valid, returns (status, r_raw)."""
         s, p = self.s, self.p
         kt_s, kt_c = p.kt_s_q[k], p.kt_c_q[k]
-        di = s.isum[k] - 2 * s.isum_h[k]
-        dv = s.vsum[k] - 2 * s.vsum_h[k]
-        ii0 = s.acc_ii[k] - _rsr(di * kt_s, KT_FRAC)
-        iq0 = s.acc_iq[k] - _rsr(di * kt_c, KT_FRAC)
+        di, dv = s.w_di[k], s.w_dv[k]
+        ii0 = s.w_acc_ii[k] - _rsr(di * kt_s, KT_FRAC)
+        iq0 = s.w_acc_iq[k] - _rsr(di * kt_c, KT_FRAC)
         m = np.maximum(np.abs(ii0), np.abs(iq0))
         low = m < p.swing_min[k]
-        vd = s.acc_vi[k] - _rsr(dv * kt_s, KT_FRAC)
-        vqd = s.acc_vq[k] - _rsr(dv * kt_c, KT_FRAC)
+        vd = s.w_acc_vi[k] - _rsr(dv * kt_s, KT_FRAC)
+        vqd = s.w_acc_vq[k] - _rsr(dv * kt_c, KT_FRAC)
         rc, rs = p.rot_c_q[k], p.rot_s_q[k]
         vi0 = _rsr(vd * rc + vqd * rs, ROT_FRAC)
         vq0 = _rsr(vqd * rc - vd * rs, ROT_FRAC)
@@ -230,17 +240,18 @@ class BatchModel:
         xnum = vq * ii - vi * iq
         r_raw = np.where(low, 0, _sat32(_div_trunc(num << p.r_frac[k], den)))
         status = np.select(
-            [low, s.clipped[k] != 0, r_raw > p.r_max_q[k], s.transient[k] != 0, r_raw < 0,
+            [low, s.w_clipped[k] != 0, r_raw > p.r_max_q[k], s.w_transient[k] != 0, r_raw < 0,
              np.abs(xnum) << p.r_frac[k] > p.x_max_q[k] * den],
             [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_R_HIGH, st.STATUS_TRANSIENT,
              st.STATUS_R_LOW, st.STATUS_REACTIVE],
             st.STATUS_VALID)
         valid = status == st.STATUS_VALID
-        s.swing[k] = np.where(valid, _sat32(m), s.swing[k])
+        s.swing_next[k] = np.where(valid, _sat32(m), s.swing[k])
         return status, r_raw
 
-    def _window_end(self, k):
-        """algo.estimator.window_end for instances ``k``."""
+    def _window_work(self, k):
+        """algo.estimator.window_work for instances ``k``, then algo.step._commit (as ``step``
+        does it: in the call that ends the window)."""
         s, p = self.s, self.p
         status, r_raw = self._classify(k)
         s.r_raw[k] = r_raw
@@ -254,7 +265,7 @@ class BatchModel:
         folded = np.where(anew, r_raw, np.clip(r_est + d, 0, p.r_max_q[k]))
         r_est = np.where(valid, folded, r_est)
         run = np.where(valid, np.where(anew, 1, np.minimum(run + 1, 0xFF)), run)
-        held = (status == st.STATUS_TRANSIENT) | ((status == st.STATUS_CLIPPED) & ~st.rails_fault(s.clipped[k]))
+        held = (status == st.STATUS_TRANSIENT) | ((status == st.STATUS_CLIPPED) & ~st.rails_fault(s.w_clipped[k]))
         bad = np.where(valid, 0, np.where(held, s.bad_windows[k],
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]
@@ -262,19 +273,18 @@ class BatchModel:
         s.valid_run[k] = np.where(forced, 0, run)
         for name in ("corr", "corr_target", "integ", "du_prev"):
             getattr(s, name)[k[forced]] = 0
-        drop_total = _sat32(_rsr(r_est * s.isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))
+        drop_total = _sat32(_rsr(r_est * s.w_isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))
         amp0 = s.pert_amp[k]
         amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC), amp0 >> 1)
         amp = np.where(status == st.STATUS_CLIPPED, amp0 >> 1, amp)
         amp = np.where(status == st.STATUS_LOW_SWING, amp0 << 1, amp)
-        s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
+        s.pert_next[k] = s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
+        s.swing[k] = s.swing_next[k]
         s.kp_off[k[valid]] = 0
         s.r_est[k] = r_est
         s.bad_windows[k] = bad
         s.status[k] = status
         s.windows[k] = (s.windows[k] + 1) & 0xFFFFFFFF
-        for name in _CLEARED:
-            getattr(s, name)[k] = 0
 
     def field(self, name):
         """Live array of state field ``name`` across instances."""

@@ -42,8 +42,9 @@ def classify(p, s):
     the remaining real-part and quadrature limits. A real part above r_max outranks a load step:
     with the capacitor gone the correction's own steps move the current and read as load steps
     every window, while a load step with the capacitor there leaves the detrended real part near
-    the loop's, far below r_max; as a load step it would never count toward the forced zero. A valid window also leaves its (detrended) current swing for
-    the load-step detector.
+    the loop's, far below r_max; as a load step it would never count toward the forced zero.
+    It reads the w_* record a window end leaves. A valid window also leaves its (detrended)
+    current swing for the load-step detector (swing_next, committed by the interrupt path).
 
     Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
     within 2**33 in magnitude. The current pair is shifted right by ``sh`` so its larger
@@ -54,12 +55,12 @@ def classify(p, s):
     before saturating r_raw anyway), which keeps ``num << r_frac`` below 2**62 and
     ``x_max_q * den`` below 2**62: int64 suffices.
     """
-    di, dv = s.isum - 2 * s.isum_h, s.vsum - 2 * s.vsum_h
-    ii0, iq0 = detrend(s.acc_ii, di, p.kt_s_q), detrend(s.acc_iq, di, p.kt_c_q)
+    di, dv = s.w_di, s.w_dv
+    ii0, iq0 = detrend(s.w_acc_ii, di, p.kt_s_q), detrend(s.w_acc_iq, di, p.kt_c_q)
     m = max(abs(ii0), abs(iq0))
     if m < p.swing_min:
         return st.STATUS_LOW_SWING, 0
-    vi0, vq0 = rotate(detrend(s.acc_vi, dv, p.kt_s_q), detrend(s.acc_vq, dv, p.kt_c_q), p)
+    vi0, vq0 = rotate(detrend(s.w_acc_vi, dv, p.kt_s_q), detrend(s.w_acc_vq, dv, p.kt_c_q), p)
     sh = max(0, bit_length(m) - NORM_BITS)
     vi, vq = sat_s32(rshift_round(vi0, sh)), sat_s32(rshift_round(vq0, sh))
     ii, iq = rshift_round(ii0, sh), rshift_round(iq0, sh)
@@ -67,17 +68,17 @@ def classify(p, s):
     num = vi * ii + vq * iq
     xnum = vq * ii - vi * iq
     r_raw = sat_s32(div_trunc(num << p.r_frac, den))
-    if s.clipped:
+    if s.w_clipped:
         return st.STATUS_CLIPPED, r_raw
     if r_raw > p.r_max_q:
         return st.STATUS_R_HIGH, r_raw
-    if s.transient:
+    if s.w_transient:
         return st.STATUS_TRANSIENT, r_raw
     if r_raw < 0:
         return st.STATUS_R_LOW, r_raw
     if abs(xnum) << p.r_frac > p.x_max_q * den:
         return st.STATUS_REACTIVE, r_raw
-    s.swing = sat_s32(m)
+    s.swing_next = sat_s32(m)
     return st.STATUS_VALID, r_raw
 
 
@@ -147,18 +148,26 @@ def update_estimate(p, s, r_raw):
     s.valid_run = min(s.valid_run + 1, 0xFF)
 
 
-def window_end(p, s):
-    """Finish a window: classify, update estimate, gain, fault counter and amplitude, clear the sums.
+def window_work(p, s):
+    """The window's work: classify the w_* record, update the estimate, the fault counter and
+    the amplitude (pert_next); returns 1, or 0 when no window waits (w_state not WIN_PENDING).
+
+    Called by ``step`` at a window end, or by the firmware's main loop after ``step_isr``. It
+    writes only fields the interrupt path leaves alone while a window waits, and marks its end
+    (WIN_DONE) last.
 
     Scaling and overflow: drop (Q DROP_FRAC, int32) times pert_gain_q (Q GAIN_FRAC, int32) is
     below 2**62 before its shift (next_pert_amp).
     """
+    if s.w_state != st.WIN_PENDING:
+        return 0
+    s.swing_next = s.swing
     status, s.r_raw = classify(p, s)
     if status == st.STATUS_VALID:
         update_estimate(p, s, s.r_raw)
         s.bad_windows = 0
         s.kp_off = 0
-    elif status != st.STATUS_TRANSIENT and not (status == st.STATUS_CLIPPED and not st.rails_fault(s.clipped)):
+    elif status != st.STATUS_TRANSIENT and not (status == st.STATUS_CLIPPED and not st.rails_fault(s.w_clipped)):
         # A load step or a current code at one rail only holds the estimate; counting it as a
         # fault window would let a step spread over several windows by the load capacitor force
         # the correction to zero. The voltage at its rail, or the current at both rails in one
@@ -170,12 +179,9 @@ def window_end(p, s):
         s.r_est = 0
         s.valid_run = 0
         s.corr = s.corr_target = s.integ = s.du_prev = 0
-    drop_total = drop_vq(s.r_est, s.isum, p)
-    s.pert_amp = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
+    drop_total = drop_vq(s.r_est, s.w_isum, p)
+    s.pert_next = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
     s.status = status
     s.windows = (s.windows + 1) & 0xFFFFFFFF
-    s.acc_vi = s.acc_vq = s.acc_ii = s.acc_iq = 0
-    s.isum = s.vsum = s.isum_h = s.vsum_h = 0
-    s.count = 0
-    s.transient = 0
-    s.clipped = 0
+    s.w_state = st.WIN_DONE
+    return 1

@@ -10,6 +10,10 @@ STATUS_R_HIGH = 4      # real part above r_max: capacitor missing or no cable fi
 STATUS_REACTIVE = 5    # quadrature part above x_max: capacitor too small or missing
 STATUS_CLIPPED = 6     # a code at adc_max (either channel) or current at 0: estimate discarded, held
 STATUS_R_LOW = 7       # real part negative: no passive cable and capacitor fits
+# Window hand-over between step_isr and window_work (``w_state``), shared with C as LD_WIN_*.
+WIN_IDLE = 0      # no finished window waits: the interrupt path owns every field
+WIN_PENDING = 1   # a finished window's sums are in the w_* record for window_work
+WIN_DONE = 2      # window_work has finished; the next period end commits it
 STATUS_NAMES = {STATUS_NONE: "none", STATUS_VALID: "valid", STATUS_LOW_SWING: "low_swing",
                 STATUS_TRANSIENT: "transient", STATUS_R_HIGH: "r_high",
                 STATUS_REACTIVE: "reactive", STATUS_CLIPPED: "clipped", STATUS_R_LOW: "r_low"}
@@ -49,6 +53,20 @@ class State:
     valid_run: int = 0    # uint8: valid windows since init, reset or a forced zero (saturates)
     kp_off: int = 0       # uint8: ring guard: 1 after one growing reversal, 2 (P off) after two, to a valid window
     i_zero: int = 0       # uint8: a current code 0 in this period (the load draws less than the swing)
+    # The finished window, as the window work reads it (filled at every window end).
+    w_acc_vi: int = 0     # int32: acc_vi at the window end
+    w_acc_vq: int = 0     # int32: acc_vq
+    w_acc_ii: int = 0     # int32: acc_ii
+    w_acc_iq: int = 0     # int32: acc_iq
+    w_isum: int = 0       # int32: isum
+    w_di: int = 0         # int32: isum - 2 * isum_h, the current's half-window trend
+    w_dv: int = 0         # int32: vsum - 2 * vsum_h
+    pert_next: int = 0    # int32: perturbation amplitude the window work chose (committed to pert_amp)
+    swing_next: int = 0   # int32: current swing the window work left (committed to swing)
+    w_clipped: int = 0    # uint8: clipped at the window end
+    w_transient: int = 0  # uint8: transient at the window end
+    w_state: int = 0      # uint8: WIN_*, the hand-over to window_work
+    late_windows: int = 0  # uint8: windows dropped because the window work had not finished (saturates)
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

@@ -7,7 +7,8 @@ the window when it is full; return the next command code.
 Integer-only; no division.
 """
 from algo.fixed import sat, sat_s32, rshift_round
-from algo.estimator import command_base, window_end
+from algo.estimator import command_base, window_work
+from algo import state as st
 from algo.params import GAIN_FRAC, DROP_FRAC, SWING_FRAC, S32_MAX
 from algo.state import State
 
@@ -39,7 +40,7 @@ def reset(p, s):
     r_est, windows = s.r_est, s.windows
     s.__init__()
     s.r_est, s.windows = r_est, windows
-    s.pert_amp = p.pert_min
+    s.pert_amp = s.pert_next = p.pert_min
     s.bad_windows = p.fault_windows
     s.cmd_base = command_base(p, s)
     s.cmd = _command(p, s)
@@ -164,8 +165,9 @@ def correct(p, s):
     s.corr, s.du_prev = corr, du
 
 
-def step(p, s, adc_v, adc_i):
-    """Take one pair of ADC codes, return the command code for the next sample.
+def _accumulate(p, s, adc_v, adc_i):
+    """Clamp one pair of ADC codes and add them to the window's demodulation and code sums;
+    return True at a period end.
 
     Scaling and overflow: codes are clamped to [0, adc_max] (< 2**16) and a
     table entry is below 2**15 in magnitude, so each product fits int32; the
@@ -195,15 +197,98 @@ def step(p, s, adc_v, adc_i):
     s.psum += i
     s.phase = (s.phase + 1) & n
     s.count += 1
-    if s.phase == 0:
+    return s.phase == 0
+
+
+def _period_sums(p, s):
+    """The period end's bookkeeping after the correction: a new period sum, and the code sums
+    saved half-way through the window (trend removal). Returns True when the window is full."""
+    s.psum = 0
+    s.i_zero = 0
+    if s.count == p.window >> 1:
+        s.isum_h, s.vsum_h = s.isum, s.vsum
+    return s.count == p.window
+
+
+def _window_clear(s):
+    """Start the next window's sums."""
+    s.acc_vi = s.acc_vq = s.acc_ii = s.acc_iq = 0
+    s.isum = s.vsum = s.isum_h = s.vsum_h = 0
+    s.count = 0
+    s.transient = 0
+    s.clipped = 0
+
+
+def _window_handover(s):
+    """Hand the full window to the window work: copy what it reads into the w_* record, mark
+    it pending, and start the next window's sums. The half-window differences fit int32: isum,
+    vsum < 2**30 and isum_h, vsum_h < 2**29."""
+    s.w_acc_vi, s.w_acc_vq, s.w_acc_ii, s.w_acc_iq = s.acc_vi, s.acc_vq, s.acc_ii, s.acc_iq
+    s.w_isum = s.isum
+    s.w_di = s.isum - 2 * s.isum_h
+    s.w_dv = s.vsum - 2 * s.vsum_h
+    s.w_clipped, s.w_transient = s.clipped, s.transient
+    s.w_state = st.WIN_PENDING
+    _window_clear(s)
+
+
+def _window_late(p, s):
+    """A window ended while the last one's work had not finished: drop it and force the
+    correction to zero (the window work never reads the correction and writes it only to zero)."""
+    _window_clear(s)
+    s.late_windows = min(s.late_windows + 1, 0xFF)
+    s.corr = s.corr_target = s.integ = s.du_prev = 0
+    s.cmd_base = command_base(p, s)
+
+
+def _commit(s):
+    """Take over what the finished window work left for the interrupt path."""
+    s.pert_amp = s.pert_next
+    s.swing = s.swing_next
+    s.w_state = st.WIN_IDLE
+
+
+def step(p, s, adc_v, adc_i):
+    """Take one pair of ADC codes, return the command code for the next sample. A window end
+    does the window's work (``window_work``) in this call.
+
+    A window ends on a period end, so its checks sit inside the period's.
+    """
+    if _accumulate(p, s, adc_v, adc_i):
         _period_end(p, s)
         correct(p, s)
-        s.psum = 0
-        s.i_zero = 0
-        if s.count == p.window >> 1:
-            s.isum_h, s.vsum_h = s.isum, s.vsum
-        if s.count == p.window:
-            window_end(p, s)
+        if _period_sums(p, s):
+            _window_handover(s)
+            window_work(p, s)
+            _commit(s)
         s.cmd_base = command_base(p, s)
+    s.cmd = _command(p, s)
+    return s.cmd
+
+
+def step_isr(p, s, adc_v, adc_i):
+    """The interrupt path: ``step`` less the window work, which ``window_work`` does from the
+    main loop (c_ref/step.c ld_step_isr).
+
+    A window end hands its sums over (WIN_PENDING); the first period end after window_work has
+    finished (WIN_DONE) commits its amplitude and swing, then takes that period's correction step
+    with the new estimate. While a window waits, the interrupt path reads none of the fields the
+    window work writes: the correction holds (no step, the command base unchanged) and only the
+    load-step detector and the sums run. When the next window ends and the work has still not
+    finished, that window is dropped (late_windows counts it) and the correction is forced to
+    zero until the work catches up.
+    """
+    if _accumulate(p, s, adc_v, adc_i):
+        if s.w_state == st.WIN_DONE:
+            _commit(s)
+        _period_end(p, s)
+        if s.w_state == st.WIN_IDLE:
+            correct(p, s)
+            s.cmd_base = command_base(p, s)
+        if _period_sums(p, s):
+            if s.w_state == st.WIN_IDLE:
+                _window_handover(s)
+            else:
+                _window_late(p, s)
     s.cmd = _command(p, s)
     return s.cmd

@@ -1,7 +1,8 @@
 /*
  * Window-end estimate and perturbation update (mirrors algo/estimator.py).
  *
- * Runs once per measurement window: removes the DC and a linear trend from the
+ * Runs once per measurement window, on the w_* record a window end leaves (inside ld_step, or
+ * from the main loop after ld_step_isr): removes the DC and a linear trend from the
  * demodulation sums, turns them into the real and quadrature parts of V/I,
  * classifies the window, and updates the resistance estimate and the
  * perturbation amplitude. The correction itself moves every period
@@ -56,7 +57,7 @@ static inline unsigned ld_bit_length64(int64_t u)
  * every window, while a load step with the capacitor there leaves the detrended real part near
  * the loop's, far below r_max; as a load step it would never count toward the forced zero.
  * A valid window also leaves its (detrended) current swing for
- * the load-step detector.
+ * the load-step detector (swing_next, committed by the interrupt path).
  * Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
  * within 2**33 in magnitude. The current pair is shifted right by sh so its larger
  * magnitude has at most NORM_BITS+1 bits; the voltage pair takes the same shift, so it stays
@@ -69,14 +70,13 @@ static inline unsigned ld_bit_length64(int64_t u)
  * are held as int32 and their products are 32 x 32 -> 64-bit multiplies (one instruction on a
  * Cortex-M3/M4; a 64 x 64 multiply there is three).
  * den > 0 because the larger current magnitude is at least swing_min >= 1.
- * The half-window differences fit int32: isum, vsum < 2**30 and isum_h, vsum_h < 2**29.
  */
 static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
 {
-    int32_t di = s->isum - 2 * s->isum_h;
-    int32_t dv = s->vsum - 2 * s->vsum_h;
-    int64_t ii0 = ld_detrend(s->acc_ii, di, p->kt_s_q);
-    int64_t iq0 = ld_detrend(s->acc_iq, di, p->kt_c_q);
+    int32_t di = s->w_di;
+    int32_t dv = s->w_dv;
+    int64_t ii0 = ld_detrend(s->w_acc_ii, di, p->kt_s_q);
+    int64_t iq0 = ld_detrend(s->w_acc_iq, di, p->kt_c_q);
     int64_t m = ld_abs64(ii0) > ld_abs64(iq0) ? ld_abs64(ii0) : ld_abs64(iq0);
     int64_t vi0, vq0, den, num, xnum;
     int32_t vi, vq, ii, iq;
@@ -86,8 +86,8 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     if (m < p->swing_min) {
         return LD_STATUS_LOW_SWING;
     }
-    vi0 = ld_detrend(s->acc_vi, dv, p->kt_s_q);
-    vq0 = ld_detrend(s->acc_vq, dv, p->kt_c_q);
+    vi0 = ld_detrend(s->w_acc_vi, dv, p->kt_s_q);
+    vq0 = ld_detrend(s->w_acc_vq, dv, p->kt_c_q);
     ld_rotate(&vi0, &vq0, p);
     bl = ld_bit_length64(m);
     sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
@@ -99,13 +99,13 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     num = (int64_t)vi * ii + (int64_t)vq * iq;
     xnum = (int64_t)vq * ii - (int64_t)vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
-    if (s->clipped != 0u) {
+    if (s->w_clipped != 0u) {
         return LD_STATUS_CLIPPED;
     }
     if (*r_raw > p->r_max_q) {
         return LD_STATUS_R_HIGH;
     }
-    if (s->transient != 0u) {
+    if (s->w_transient != 0u) {
         return LD_STATUS_TRANSIENT;
     }
     if (*r_raw < 0) {
@@ -114,7 +114,7 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     if (ld_abs64(xnum) * ((int64_t)1 << p->r_frac) > (int64_t)p->x_max_q * den) {
         return LD_STATUS_REACTIVE;
     }
-    s->swing = ld_sat_s32(m);
+    s->swing_next = ld_sat_s32(m);
     return LD_STATUS_VALID;
 }
 
@@ -210,23 +210,34 @@ static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_ra
 }
 
 /*
- * Finish a window: classify, update estimate, gain, fault counter and amplitude, clear the sums.
+ * The window's work: classify the w_* record, update the estimate, the fault counter and the
+ * amplitude (pert_next); returns 1, or 0 when no window waits (w_state not LD_WIN_PENDING).
+ * Called by ld_step at a window end, or by the firmware's main loop after ld_step_isr. It
+ * writes only fields the interrupt path leaves alone while a window waits, and marks its end
+ * (LD_WIN_DONE) with the last store, behind a compiler barrier.
  * Scaling and overflow: drop (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is
  * below 2**62 before its shift (ld_next_pert_amp).
  */
-void ld_window_end(const ld_params_t *p, ld_state_t *s)
+uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
 {
     int32_t r_raw;
-    uint8_t status = ld_classify(p, s, &r_raw);
+    uint8_t status;
     int32_t drop_total;
 
+    if (*(volatile const uint8_t *)&s->w_state != (uint8_t)LD_WIN_PENDING) {
+        return 0u;
+    }
+    LD_COMPILER_BARRIER();
+    s->swing_next = s->swing;
+    status = ld_classify(p, s, &r_raw);
     s->r_raw = r_raw;
     if (status == LD_STATUS_VALID) {
         ld_update_estimate(p, s, s->r_raw);
         s->bad_windows = 0u;
         s->kp_off = 0u;
     } else if (status != LD_STATUS_TRANSIENT &&
-               !(status == LD_STATUS_CLIPPED && (s->clipped & 2u) == 0u && (s->clipped & 5u) != 5u) &&
+               !(status == LD_STATUS_CLIPPED && (s->w_clipped & 2u) == 0u &&
+                 (s->w_clipped & 5u) != 5u) &&
                s->bad_windows < UINT16_MAX) {
         /* A load step or a current code at one rail only holds the estimate; counting it as
          * a fault window would let a step spread over several windows by the load capacitor
@@ -244,20 +255,12 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
         s->integ = 0;
         s->du_prev = 0;
     }
-    drop_total = ld_drop_vq(s->r_est, s->isum, p);
-    s->pert_amp = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
-                                    p->pert_min, p->pert_max);
+    drop_total = ld_drop_vq(s->r_est, s->w_isum, p);
+    s->pert_next = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
+                                     p->pert_min, p->pert_max);
     s->status = status;
     s->windows++;
-    s->acc_vi = 0;
-    s->acc_vq = 0;
-    s->acc_ii = 0;
-    s->acc_iq = 0;
-    s->isum = 0;
-    s->vsum = 0;
-    s->isum_h = 0;
-    s->vsum_h = 0;
-    s->count = 0u;
-    s->transient = 0u;
-    s->clipped = 0u;
+    LD_COMPILER_BARRIER();
+    *(volatile uint8_t *)&s->w_state = (uint8_t)LD_WIN_DONE;
+    return 1u;
 }

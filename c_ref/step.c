@@ -44,6 +44,7 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
     s->r_est = r_est;
     s->windows = windows;
     s->pert_amp = p->pert_min;
+    s->pert_next = p->pert_min;
     s->bad_windows = p->fault_windows;
     s->cmd_base = ld_command_base(p, s);
     s->cmd = ld_command(p, s);
@@ -205,15 +206,16 @@ void ld_correct(const ld_params_t *p, ld_state_t *s)
 }
 
 /*
- * Take one pair of ADC codes, return the command code for the next sample.
+ * Clamp one pair of ADC codes and add them to the window's demodulation and code sums; return
+ * 1 at a period end.
  * Scaling and overflow: codes are clamped to [0, adc_max] (< 2**16) and a
  * table entry is below 2**15 in magnitude, so each product fits int32; the
  * demodulation shift was chosen offline (algo.params.demod_shift_for) so a
  * window of shifted products fits acc_bits <= 32. isum and vsum are below
  * 2**14 * 2**16 = 2**30. The rail test compares clamped codes only.
- * A window ends on a period end, so its checks sit inside the period's.
  */
-uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
+static inline uint8_t ld_accumulate(const ld_params_t *p, ld_state_t *s, uint16_t adc_v,
+                                uint16_t adc_i)
 {
     int32_t v = adc_v > p->adc_max ? p->adc_max : adc_v;
     int32_t i = adc_i > p->adc_max ? p->adc_max : adc_i;
@@ -244,19 +246,136 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
     s->psum += i;
     s->phase = (uint16_t)((s->phase + 1u) & n);
     s->count++;
-    if (s->phase == 0u) {
+    return s->phase == 0u ? 1u : 0u;
+}
+
+/*
+ * The period end's bookkeeping after the correction: a new period sum, and the code sums saved
+ * half-way through the window (trend removal). Returns 1 when the window is full.
+ */
+static inline uint8_t ld_period_sums(const ld_params_t *p, ld_state_t *s)
+{
+    s->psum = 0;
+    s->i_zero = 0u;
+    if (s->count == (uint16_t)(1u << p->window_log2 >> 1)) {
+        s->isum_h = s->isum;
+        s->vsum_h = s->vsum;
+    }
+    return s->count == (uint16_t)(1u << p->window_log2) ? 1u : 0u;
+}
+
+/* Start the next window's sums. */
+static void ld_window_clear(ld_state_t *s)
+{
+    s->acc_vi = 0;
+    s->acc_vq = 0;
+    s->acc_ii = 0;
+    s->acc_iq = 0;
+    s->isum = 0;
+    s->vsum = 0;
+    s->isum_h = 0;
+    s->vsum_h = 0;
+    s->count = 0u;
+    s->transient = 0u;
+    s->clipped = 0u;
+}
+
+/*
+ * Hand the full window to the window work: copy what it reads into the w_* record, mark it
+ * pending, and start the next window's sums. The half-window differences fit int32: isum,
+ * vsum < 2**30 and isum_h, vsum_h < 2**29.
+ */
+static void ld_window_handover(ld_state_t *s)
+{
+    s->w_acc_vi = s->acc_vi;
+    s->w_acc_vq = s->acc_vq;
+    s->w_acc_ii = s->acc_ii;
+    s->w_acc_iq = s->acc_iq;
+    s->w_isum = s->isum;
+    s->w_di = s->isum - 2 * s->isum_h;
+    s->w_dv = s->vsum - 2 * s->vsum_h;
+    s->w_clipped = s->clipped;
+    s->w_transient = s->transient;
+    s->w_state = LD_WIN_PENDING;
+    ld_window_clear(s);
+}
+
+/*
+ * A window ended while the last one's work had not finished: drop it and force the correction
+ * to zero (the window work never reads the correction and writes it only to zero).
+ */
+static void ld_window_late(const ld_params_t *p, ld_state_t *s)
+{
+    ld_window_clear(s);
+    if (s->late_windows < UINT8_MAX) {
+        s->late_windows++;
+    }
+    s->corr = 0;
+    s->corr_target = 0;
+    s->integ = 0;
+    s->du_prev = 0;
+    s->cmd_base = ld_command_base(p, s);
+}
+
+/* Take over what the finished window work left for the interrupt path. */
+static inline void ld_commit(ld_state_t *s)
+{
+    s->pert_amp = s->pert_next;
+    s->swing = s->swing_next;
+    s->w_state = LD_WIN_IDLE;
+}
+
+/*
+ * Take one pair of ADC codes, return the command code for the next sample. A window end does
+ * the window's work (ld_window_work) in this call.
+ * A window ends on a period end, so its checks sit inside the period's.
+ */
+uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
+{
+    if (ld_accumulate(p, s, adc_v, adc_i) != 0u) {
         ld_period_end(p, s);
         ld_correct(p, s);
-        s->psum = 0;
-        s->i_zero = 0u;
-        if (s->count == (uint16_t)(1u << p->window_log2 >> 1)) {
-            s->isum_h = s->isum;
-            s->vsum_h = s->vsum;
-        }
-        if (s->count == (uint16_t)(1u << p->window_log2)) {
-            ld_window_end(p, s);
+        if (ld_period_sums(p, s) != 0u) {
+            ld_window_handover(s);
+            (void)ld_window_work(p, s);
+            ld_commit(s);
         }
         s->cmd_base = ld_command_base(p, s);
+    }
+    s->cmd = ld_command(p, s);
+    return s->cmd;
+}
+
+/*
+ * The interrupt path: ld_step less the window work, which ld_window_work does from the main
+ * loop. A window end hands its sums over (LD_WIN_PENDING); the first period end after
+ * ld_window_work has finished (LD_WIN_DONE) commits its amplitude and swing, then takes that
+ * period's correction step with the new estimate. While a window waits, the interrupt path
+ * reads none of the fields the window work writes: the correction holds (no step, the command
+ * base unchanged) and only the load-step detector and the sums run. When the next window ends
+ * and the work has still not finished, that window is dropped (late_windows counts it) and the
+ * correction is forced to zero until the work catches up: the window work never reads the
+ * correction, and writes it only to zero.
+ * Scaling and overflow: as ld_step.
+ */
+uint16_t ld_step_isr(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
+{
+    if (ld_accumulate(p, s, adc_v, adc_i) != 0u) {
+        if (s->w_state == LD_WIN_DONE) {
+            ld_commit(s);
+        }
+        ld_period_end(p, s);
+        if (s->w_state == LD_WIN_IDLE) {
+            ld_correct(p, s);
+            s->cmd_base = ld_command_base(p, s);
+        }
+        if (ld_period_sums(p, s) != 0u) {
+            if (s->w_state == LD_WIN_IDLE) {
+                ld_window_handover(s);
+            } else {
+                ld_window_late(p, s);
+            }
+        }
     }
     s->cmd = ld_command(p, s);
     return s->cmd;

@@ -81,6 +81,13 @@ def golden_cases():
     cases = [("defaults_closed_loop_load_step_reset", p,
               [("s", v, i) for v, i in loop] + [("r",)] + [("s", v, i) for v, i in loop[:3000]]
               + [("i",)] + [("s", v, i) for v, i in loop[:300]])]
+    # The interrupt path on the same codes, the window work at once, as late as the next period
+    # end allows, two periods late, and not at all (the next window is dropped as late).
+    delays = (0, p.period - 1, 2 * p.period + 3, None)
+    work = [end + delays[k % 4] for k, end in enumerate(range(p.window - 1, len(loop), p.window))
+            if delays[k % 4] is not None]
+    cases.append(("defaults_interrupt_path_window_work_timing", p,
+                  textvec.isr_samples([v for v, _ in loop], [i for _, i in loop], work)))
     # Capacitor missing: the voltage swing leads the current swing by a quarter period.
     ph = [2 * math.pi * n / p.period for n in range(4 * p.window)]
     cases.append(("defaults_quadrature_response", p,
