@@ -125,12 +125,21 @@ def golden():
 @pytest.mark.parametrize("opt", OPTS)
 def test_cortex_m4_in_qemu_matches_the_model_bit_for_bit_on_every_state_field(golden, opt,
                                                                               tmp_path):
-    skip_or_fail(build.toolchain_missing())
-    skip_or_fail(build.qemu_missing())
-    skip_or_fail(qemu_run.driver_missing())
-    text, names, want = golden
-    got = textvec.parse_output(qemu_run.run_text(qemu_run.build_image(opt, str(tmp_path)), text,
-                                                 str(tmp_path)))
+    replay_golden_on_target(golden, build, qemu_run, opt, str(tmp_path))
+
+
+def replay_golden_on_target(golden, port_build, port_run, opt, work_dir):
+    """Replay the golden vectors on a port's QEMU target at ``opt``; every row must equal the model's.
+
+    ``port_build``/``port_run`` are a port's build and QEMU runner modules (c_ref/cortexm,
+    c_ref/riscv). Skips (or fails under LINEDROP_REQUIRE_TOOLS=1) when a tool is missing.
+    """
+    for reason in (port_build.toolchain_missing(), port_build.qemu_missing(),
+                   port_run.driver_missing()):
+        skip_or_fail(reason)
+    _, names, want = golden
+    got = textvec.parse_output(port_run.run_text(port_run.build_image(opt, work_dir), golden[0],
+                                                 work_dir))
     assert len(got) == len(want)
     for k, ((cmd_c, st_c), (cmd_m, st_m), name) in enumerate(zip(got, want, names)):
         diff = {f: (st_c[f], st_m[f]) for f in st_m if st_c[f] != st_m[f]}

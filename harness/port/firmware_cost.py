@@ -294,6 +294,8 @@ def measure(cfg=None):
     out["samples"] = runs[("m4", "-O2")]["samples"]
     out["last_status"] = runs[("m4", "-O2")]["status_last"]
     out["targets_met"] = {k: out[k] <= v for k, v in TARGETS.items()}
+    from harness.port import firmware_cost_riscv   # RV32IMC: the rv32_* keys, from its own module
+    out.update(firmware_cost_riscv.bench_figures(cfg, input_run, adversarial_inputs, WINDOWS))
     return out
 
 
