@@ -148,8 +148,6 @@ class BatchModel:
         s = self.s
         self._period_end(k)
         self._correct(k)
-        s.psum[k] = 0
-        s.i_zero[k] = 0
         count = s.count[k]
         h = k[count == self._half_window[k]]
         if h.size:
@@ -175,20 +173,22 @@ class BatchModel:
         jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > s.step_thr[k])
         s.transient[k[jump]] = 1
         s.psum_prev[k] = psum
+        s.iz_last[k] = s.i_zero[k]
         s.have_prev[k] = 1
+        s.psum[k] = 0
+        s.i_zero[k] = 0
 
     def _correct(self, k):
         """algo.step.correct (with drop_period): one period of the PI correction law and its
-        ring guard."""
+        ring guard, its three stages at once as ``step`` runs them."""
         s, p = self.s, self.p
-        r_est, corr0, integ0, du_prev = s.r_est[k], s.corr[k], s.integ[k], s.du_prev[k]
+        corr0, integ0, du_prev = s.corr[k], s.integ[k], s.du_prev[k]
         room = p.cmd_max[k] - p.target_code[k]     # algo.step.corr_ceiling
         cmax = np.minimum(p.corr_max_q[k], np.maximum(room - s.pert_amp[k], 0) << p.corr_frac[k])
-        r_c = np.maximum(r_est - p.esr_q[k], 0)
-        drop = _sat32(_rsr(r_c * s.psum[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
+        drop = _sat32(_rsr(s.r_c[k] * s.psum_prev[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
         tgt = np.clip(_rsr(drop * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k]),
                       0, S32_MAX)
-        clip = s.i_zero[k] != 0
+        clip = s.iz_last[k] != 0
         tgt = np.where(clip, 0, tgt)
         e = np.where(clip, -np.maximum(corr0, integ0), tgt - corr0)
         integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
@@ -199,10 +199,10 @@ class BatchModel:
         hold = (u > cmax) & (e > 0)
         integ = np.where(hold, integ0, integ)
         corr = np.clip(u, 0, cmax)
-        du = corr - corr0
+        du = du_step = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) - np.abs(du_prev) > np.abs(du_prev)) & (np.abs(du) > (p.corr_max_q[k] >> 6)))
-        forced = (s.bad_windows[k] >= p.fault_windows[k]) | (s.valid_run[k] < 2)
+        forced = s.corr_on[k] == 0
         upd = on & ~forced
         s.kp_off[k] = np.where(upd, np.where(rang, s.kp_off[k] + 1, 0), s.kp_off[k])
         trip = upd & (s.kp_off[k] >= 2)
@@ -212,6 +212,7 @@ class BatchModel:
         s.integ[k] = np.where(forced, 0, np.clip(integ, 0, cmax))
         s.corr[k] = np.where(forced, 0, corr)
         s.du_prev[k] = np.where(forced, 0, du)
+        s.du[k] = np.where(forced, 0, du_step)
 
     def _window_handover(self, k):
         """algo.step._window_handover for instances ``k``: the w_* record, the next window's sums."""
@@ -275,16 +276,21 @@ class BatchModel:
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]
         r_est = np.where(forced, 0, r_est)
-        s.valid_run[k] = np.where(forced, 0, run)
-        for name in ("corr", "corr_target", "integ", "du_prev"):
-            getattr(s, name)[k[forced]] = 0
+        run = np.where(forced, 0, run)
+        s.valid_run[k] = run
+        # algo.step._commit, in the same call: the correction's inputs, the ring guard back on
+        # after a valid window, a correction held off at zero.
+        s.on_next[k] = s.corr_on[k] = (~forced & (run >= 2)).astype(np.int64)
+        for name in ("corr", "corr_target", "integ", "du_prev", "du"):
+            getattr(s, name)[k[s.corr_on[k] == 0]] = 0
+        s.rc_next[k] = s.r_c[k] = np.maximum(r_est - p.esr_q[k], 0)
         drop_total = _sat32(_rsr(r_est * s.w_isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))
         amp0 = s.pert_amp[k]
         amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC), amp0 >> 1)
         amp = np.where(status == st.STATUS_CLIPPED, amp0 >> 1, amp)
         amp = np.where(status == st.STATUS_LOW_SWING, amp0 << 1, amp)
         s.pert_next[k] = s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
-        s.kp[k] = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
+        s.kp_next[k] = s.kp[k] = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
         s.thr_next[k] = s.step_thr[k] = self._threshold(s.swing[k], k)
         s.kp_off[k[valid]] = 0
         s.r_est[k] = r_est

@@ -170,8 +170,10 @@ def update_estimate(p, s, r_raw):
 
 
 def window_work(p, s):
-    """The window's work: classify the w_* record, update the estimate, the fault counter and
-    the amplitude (pert_next); returns 1, or 0 when no window waits (w_state not WIN_PENDING).
+    """The window's work: classify the w_* record, update the estimate and the fault counter,
+    and leave for the interrupt path the amplitude, the load-step threshold and the correction's
+    inputs (the *_next fields, committed at a period end); returns 1, or 0 when no window waits
+    (w_state not WIN_PENDING).
 
     Called by ``step`` at a window end, or by the firmware's main loop after ``step_isr``. It
     writes only fields the interrupt path leaves alone while a window waits, and marks its end
@@ -186,7 +188,6 @@ def window_work(p, s):
     if status == st.STATUS_VALID:
         update_estimate(p, s, s.r_raw)
         s.bad_windows = 0
-        s.kp_off = 0
     elif status != st.STATUS_TRANSIENT and not (status == st.STATUS_CLIPPED and not st.rails_fault(s.w_clipped)):
         # A load step or a current code at one rail only holds the estimate; counting it as a
         # fault window would let a step spread over several windows by the load capacitor force
@@ -198,8 +199,9 @@ def window_work(p, s):
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0
         s.valid_run = 0
-        s.corr = s.corr_target = s.integ = s.du_prev = 0
-    s.kp = gain_kp(p, s.r_est)
+    s.on_next = int(s.bad_windows < p.fault_windows and s.valid_run >= 2)
+    s.rc_next = max(s.r_est - p.esr_q, 0)
+    s.kp_next = gain_kp(p, s.r_est)
     s.thr_next = step_threshold(p, s.swing)
     drop_total = drop_vq(s.r_est, s.w_isum, p)
     s.pert_next = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)

@@ -62,13 +62,20 @@ class State:
     w_di: int = 0         # int32: isum - 2 * isum_h, the current's half-window trend
     w_dv: int = 0         # int32: vsum - 2 * vsum_h
     pert_next: int = 0    # int32: perturbation amplitude the window work chose (committed to pert_amp)
-    kp: int = 0           # int32: proportional gain from r_est, Q GAIN_FRAC in [0, kp_max_q] (window work)
     step_thr: int = 0     # int32: load-step threshold in force, period-sum codes, saturated to int32
     thr_next: int = 0     # int32: the threshold from the window work's swing (committed to step_thr)
+    r_c: int = 0          # int32: R-hat - ESR in force for the correction, Q r_frac, >= 0
+    rc_next: int = 0      # int32: the window work's r_est - esr_q, floored at 0 (committed to r_c)
+    kp: int = 0           # int32: proportional gain in force, Q GAIN_FRAC in [0, kp_max_q]
+    kp_next: int = 0      # int32: the window work's gain from r_est (committed to kp)
+    du: int = 0           # int32: this period's step of corr, between the law's stages 2 and 3
     w_clipped: int = 0    # uint8: clipped at the window end
     w_transient: int = 0  # uint8: transient at the window end
     w_state: int = 0      # uint8: WIN_*, the hand-over to window_work
     late_windows: int = 0  # uint8: windows dropped because the window work had not finished (saturates)
+    corr_on: int = 0      # uint8: 1: the correction runs (a confirmed estimate, no forced zero)
+    on_next: int = 0      # uint8: the window work's corr_on (committed)
+    iz_last: int = 0      # uint8: i_zero of the last whole period, for the law's stages
 
 
 STATE_FIELDS = [f.name for f in fields(State)]

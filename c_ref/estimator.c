@@ -239,8 +239,10 @@ static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_ra
 }
 
 /*
- * The window's work: classify the w_* record, update the estimate, the fault counter and the
- * amplitude (pert_next); returns 1, or 0 when no window waits (w_state not LD_WIN_PENDING).
+ * The window's work: classify the w_* record, update the estimate and the fault counter, and
+ * leave for the interrupt path the amplitude, the load-step threshold and the correction's
+ * inputs (the *_next fields, committed at a period end); returns 1, or 0 when no window waits
+ * (w_state not LD_WIN_PENDING).
  * Called by ld_step at a window end, or by the firmware's main loop after ld_step_isr. It
  * writes only fields the interrupt path leaves alone while a window waits, and marks its end
  * (LD_WIN_DONE) with the last store, behind a compiler barrier.
@@ -262,7 +264,6 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
     if (status == LD_STATUS_VALID) {
         ld_update_estimate(p, s, s->r_raw);
         s->bad_windows = 0u;
-        s->kp_off = 0u;
     } else if (status != LD_STATUS_TRANSIENT &&
                !(status == LD_STATUS_CLIPPED && (s->w_clipped & 2u) == 0u &&
                  (s->w_clipped & 5u) != 5u) &&
@@ -278,12 +279,10 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
     if (s->bad_windows >= p->fault_windows) {
         s->r_est = 0;
         s->valid_run = 0u;
-        s->corr = 0;
-        s->corr_target = 0;
-        s->integ = 0;
-        s->du_prev = 0;
     }
-    s->kp = ld_gain_kp(p, s->r_est);
+    s->on_next = (s->bad_windows < p->fault_windows && s->valid_run >= 2u) ? 1u : 0u;
+    s->rc_next = s->r_est > p->esr_q ? s->r_est - p->esr_q : 0;
+    s->kp_next = ld_gain_kp(p, s->r_est);
     s->thr_next = ld_step_threshold(p, s->swing);
     drop_total = ld_drop_vq(s->r_est, s->w_isum, p);
     s->pert_next = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),

@@ -131,13 +131,20 @@ typedef struct {
     int32_t w_di;          /* isum - 2 * isum_h: the current's half-window trend */
     int32_t w_dv;          /* vsum - 2 * vsum_h */
     int32_t pert_next;     /* perturbation amplitude the window work chose, DAC codes (committed to pert_amp) */
-    int32_t kp;            /* proportional gain from r_est, Q LD_GAIN_FRAC in [0, kp_max_q] (window work) */
     int32_t step_thr;      /* load-step threshold in force, period-sum codes, saturated to int32 */
     int32_t thr_next;      /* the threshold from the window work's swing (committed to step_thr) */
+    int32_t r_c;           /* R-hat - ESR in force for the correction, Q r_frac, >= 0 */
+    int32_t rc_next;       /* the window work's r_est - esr_q, floored at 0 (committed to r_c) */
+    int32_t kp;            /* proportional gain in force, Q LD_GAIN_FRAC in [0, kp_max_q] */
+    int32_t kp_next;       /* the window work's gain from r_est (committed to kp) */
+    int32_t du;            /* this period's step of corr, between the law's stages 2 and 3 */
     uint8_t w_clipped;     /* clipped at the window end */
     uint8_t w_transient;   /* transient at the window end */
     uint8_t w_state;       /* LD_WIN_*: the hand-over to ld_window_work */
     uint8_t late_windows;  /* windows dropped because the window work had not finished (saturates) */
+    uint8_t corr_on;       /* 1: the correction runs (a confirmed estimate, no forced zero) */
+    uint8_t on_next;       /* the window work's corr_on (committed) */
+    uint8_t iz_last;       /* i_zero of the last whole period, for the law's stages */
 } ld_state_t;
 
 void ld_init(const ld_params_t *p, ld_state_t *s);
@@ -148,8 +155,6 @@ uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t a
 uint16_t ld_step_isr(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i);
 /* The window's work (estimate, outcome, amplitude), from the main loop; 1 if it did one. */
 uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s);
-/* One period of the correction (called at each period end, before a window end). */
-void ld_correct(const ld_params_t *p, ld_state_t *s);
 int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s);
 int32_t ld_step_threshold(const ld_params_t *p, int32_t swing);
 

@@ -95,42 +95,57 @@ V, I = _sine_plant(P, N, steps=((5 * P.window + 70, 1.3),))
 
 
 def test_the_interrupt_path_with_the_work_done_in_time_estimates_and_corrects_as_ld_step_does():
-    """From the period end after each window end on, the estimate, the outcome, the fault count,
-    the correction and its integral equal ld_step's; the perturbation amplitude is committed
-    there, one period later than ld_step sets it; so the command differs only in the samples
-    between a window end and that period end (open-loop codes: the plant does not feed back)."""
+    """The estimate, the outcome, the fault count and the window count equal ld_step's outside
+    the samples between a window end and the period end that commits its work; the correction
+    and its integral that the law's last stage leaves, three samples after each period end,
+    equal what ld_step leaves at that period end (open-loop codes: the plant does not feed back,
+    so both see the same sums)."""
     whole = _run(P, V, I, isr=False)
     for delay in (0, P.period - 1):          # at once, and as late as the deadline allows
         split = _run(P, V, I, delay=delay)
-        seen_corr = False
         for t, (a, b) in enumerate(zip(whole, split)):
             lag = (t + 1) % P.window
-            in_lag = 0 < lag <= P.period - 1 or lag == 0
-            for name in ("r_est", "status", "bad_windows", "valid_run", "windows", "corr", "integ"):
-                if not in_lag:
+            if not (0 < lag <= P.period - 1 or lag == 0):
+                for name in ("r_est", "status", "bad_windows", "valid_run", "windows", "r_c", "kp"):
                     assert a[name] == b[name], (delay, t, name, a[name], b[name])
-            if not in_lag:
-                assert a["pert_amp"] == b["pert_amp"], (delay, t)
-                assert a["cmd"] == b["cmd"], (delay, t)
-            seen_corr |= b["corr"] > 0
-        assert seen_corr and split[-1]["status"] == ws.STATUS_VALID
+        ends = range(P.period - 1, N - 3, P.period)
+        for t in ends:
+            for name in ("corr", "integ", "corr_target", "du_prev", "kp_off"):
+                assert split[t + 3][name] == whole[t][name], (delay, t, name)
+        assert any(whole[t]["corr"] > 0 for t in ends) and split[-1]["status"] == ws.STATUS_VALID
         assert split[-1]["late_windows"] == 0
 
 
-def test_work_finished_after_its_deadline_holds_the_correction_until_the_period_end_after_it():
+def test_the_correction_law_takes_one_stage_per_sample_after_a_period_end():
+    split = _run(P, V, I, delay=0)
+    whole = _run(P, V, I, isr=False)
+    moving = [t for t in range(2 * P.window + P.period - 1, N - 3, P.period)
+              if whole[t]["corr"] != whole[t - P.period]["corr"] and t % P.window != P.window - 1]
+    assert len(moving) > 10
+    for t in moving:
+        assert split[t + 1]["corr_target"] == whole[t]["corr_target"]             # stage 1
+        assert split[t + 1]["corr"] == split[t]["corr"] != whole[t]["corr"]
+        assert split[t + 2]["corr"] == whole[t]["corr"]                            # stage 2
+        assert split[t + 2]["cmd_base"] == split[t]["cmd_base"]
+        assert split[t + 3]["cmd_base"] == whole[t]["cmd_base"]                    # stage 3
+
+
+def test_work_finished_after_its_deadline_commits_at_the_period_end_after_it():
     late = 3 * P.period + 5                      # finishes 3 periods and 5 samples after the end
     split = _run(P, V, I, delay=late)
     timely = _run(P, V, I, delay=0)
     w = 6 * P.window - 1                         # a window end with the correction under way
     assert split[w]["corr"] > 0
-    for t in range(w, w + late + 1):             # held through every period end while it waits
-        assert split[t]["corr"] == split[w]["corr"] and split[t]["cmd_base"] == split[w]["cmd_base"]
     commit = w + 4 * P.period                    # the first period end after the work finished
+    for t in range(w, commit):                   # the correction runs on the last committed inputs
+        assert (split[t]["r_c"], split[t]["kp"]) == (split[w]["r_c"], split[w]["kp"])
+        assert split[t]["w_state"] in (ws.WIN_PENDING, ws.WIN_DONE)
     assert split[commit - 1]["w_state"] == ws.WIN_DONE
     assert split[commit]["w_state"] == ws.WIN_IDLE
     assert split[commit]["r_est"] == timely[commit]["r_est"]      # same window, same estimate
+    assert split[commit]["r_c"] == timely[commit]["r_c"]
     assert split[commit]["pert_amp"] == timely[commit]["pert_amp"]
-    assert split[commit]["corr"] != split[w]["corr"]              # the correction moves again
+    assert split[commit]["late_windows"] == 0
 
 
 def test_work_that_never_runs_drops_the_next_window_and_forces_the_correction_to_zero():
