@@ -240,7 +240,9 @@ class BatchModel:
         vq0 = _rsr(vqd * rc - vd * rs, ROT_FRAC)
         sh = np.maximum(0, _bit_length(m) - NORM_BITS)
         vi, vq = _sat32(_rsr(vi0, sh)), _sat32(_rsr(vq0, sh))
-        ii, iq = _rsr(ii0, sh), _rsr(iq0, sh)
+        lim = 1 << NORM_BITS                    # algo.estimator.classify's two checks
+        ii, iq = np.clip(_rsr(ii0, sh), -lim, lim), np.clip(_rsr(iq0, sh), -lim, lim)
+        low |= ii * ii + iq * iq == 0
         den = np.where(low, 1, ii * ii + iq * iq)
         num = vi * ii + vq * iq
         xnum = vq * ii - vi * iq

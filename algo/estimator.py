@@ -34,6 +34,9 @@ def rotate(vi, vq, p):
             rshift_round(vq * p.rot_c_q - vi * p.rot_s_q, ROT_FRAC))
 
 
+NORM_LIM = 1 << NORM_BITS   # the normalised current pair's bound (classify)
+
+
 def classify(p, s):
     """Return ``(status, r_raw)`` for the finished window.
 
@@ -53,7 +56,9 @@ def classify(p, s):
     (r_frac <= 16) is below 2**65 only in theory: the voltage pair is then clamped to +-2**31
     after the shift (its ratio to the current pair is at most 2**31 / 2**14 V-codes per I-code
     before saturating r_raw anyway), which keeps ``num << r_frac`` below 2**62 and
-    ``x_max_q * den`` below 2**62: int64 suffices.
+    ``x_max_q * den`` below 2**62: int64 suffices. Two checks state what this shows and a value
+    analysis cannot see through the shared shift (c_ref/estimator.c ld_classify): the shifted
+    current pair is saturated to +-2**NORM_BITS and ``den`` = 0 reads low swing; neither ever acts.
     """
     di, dv = s.w_di, s.w_dv
     ii0, iq0 = detrend(s.w_acc_ii, di, p.kt_s_q), detrend(s.w_acc_iq, di, p.kt_c_q)
@@ -63,8 +68,11 @@ def classify(p, s):
     vi0, vq0 = rotate(detrend(s.w_acc_vi, dv, p.kt_s_q), detrend(s.w_acc_vq, dv, p.kt_c_q), p)
     sh = max(0, bit_length(m) - NORM_BITS)
     vi, vq = sat_s32(rshift_round(vi0, sh)), sat_s32(rshift_round(vq0, sh))
-    ii, iq = rshift_round(ii0, sh), rshift_round(iq0, sh)
+    ii = sat(rshift_round(ii0, sh), -NORM_LIM, NORM_LIM)
+    iq = sat(rshift_round(iq0, sh), -NORM_LIM, NORM_LIM)
     den = ii * ii + iq * iq
+    if den == 0:
+        return st.STATUS_LOW_SWING, 0
     num = vi * ii + vq * iq
     xnum = vq * ii - vi * iq
     r_raw = sat_s32(div_trunc(num << p.r_frac, den))

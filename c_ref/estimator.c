@@ -69,8 +69,15 @@ static inline unsigned ld_bit_length64(int64_t u)
  * So the shifted current pair is within 2**14 and the clamped voltage pair within int32: both
  * are held as int32 and their products are 32 x 32 -> 64-bit multiplies (one instruction on a
  * Cortex-M3/M4; a 64 x 64 multiply there is three).
- * den > 0 because the larger current magnitude is at least swing_min >= 1.
+ * den > 0 because the larger current magnitude is at least swing_min >= 1. Two checks state
+ * what the range analysis shows and a value analysis cannot see through the shared shift (one
+ * interval per variable): the shifted current pair is saturated to +-2**NORM_BITS (rounding
+ * 2**b - 1 right by b - NORM_BITS never exceeds 2**NORM_BITS) and den = 0 reads low swing.
+ * Neither ever acts; both are mirrored in the model.
  */
+/* The normalised current pair's bound (see ld_classify). */
+#define LD_NORM_LIM ((int64_t)1 << LD_NORM_BITS)
+
 static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
 {
     int32_t di = s->w_di;
@@ -93,9 +100,12 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
     vi = ld_sat_s32(ld_rshift_round64(vi0, sh));
     vq = ld_sat_s32(ld_rshift_round64(vq0, sh));
-    ii = (int32_t)ld_rshift_round64(ii0, sh);
-    iq = (int32_t)ld_rshift_round64(iq0, sh);
+    ii = (int32_t)ld_sat64(ld_rshift_round64(ii0, sh), -LD_NORM_LIM, LD_NORM_LIM);
+    iq = (int32_t)ld_sat64(ld_rshift_round64(iq0, sh), -LD_NORM_LIM, LD_NORM_LIM);
     den = (int64_t)ii * ii + (int64_t)iq * iq;
+    if (den == 0) {
+        return LD_STATUS_LOW_SWING;
+    }
     num = (int64_t)vi * ii + (int64_t)vq * iq;
     xnum = (int64_t)vq * ii - (int64_t)vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
