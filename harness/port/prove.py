@@ -11,6 +11,7 @@ reached.
 """
 import csv
 import os
+import re
 import shutil
 import subprocess
 import tempfile
@@ -32,6 +33,8 @@ EVA_OPTIONS = ("-eva-precision", "1", "-eva-interprocedural-splits", "-eva-split
 
 #: Statuses that mean a property holds (the libc specifications are taken as given).
 _HOLDS = ("Valid", "Considered valid")
+
+_LABEL = re.compile(r"assert (\w+):")
 
 Alarm = namedtuple("Alarm", "kind where expression status")
 Proof = namedtuple("Proof", "alarms seconds harness_asserts")
@@ -66,26 +69,36 @@ def command(p, workdir, c_dir=C_REF, machdep=MACHDEPS[0]):
 
 def _where(row, workdir):
     directory, name, line = row["directory"], row["file"], row["line"]
-    path = name if directory in (".", workdir) else os.path.join(directory, name)
-    if os.path.isabs(path) and not os.path.relpath(path).startswith(".."):
+    if os.path.realpath(os.path.join(directory, name)) == os.path.realpath(
+            os.path.join(workdir, ph.HARNESS_NAME)):
+        return f"{ph.HARNESS_NAME}:{line}"          # the harness is gone when the run ends
+    path = os.path.join(directory, name)
+    if not os.path.relpath(path).startswith(".."):
         path = os.path.relpath(path)
     return f"{path}:{line}"
+
+
+def _labels(workdir):
+    """``{line: label}`` of the harness's named assertions, so an alarm says which bound failed."""
+    with open(os.path.join(workdir, ph.HARNESS_NAME)) as f:
+        return {n: m.group(1) for n, text in enumerate(f, 1) for m in [_LABEL.search(text)] if m}
 
 
 def parse_report(path, workdir, expected_asserts):
     """(alarms, harness assertions proved) from Eva's property CSV: every property not valid is an
     alarm, and so is a shortfall of valid harness assertions (some were never reached)."""
-    alarms, proved = [], 0
+    alarms, proved, labels = [], 0, _labels(workdir)
     with open(path, newline="") as f:
         for row in csv.DictReader(f, delimiter="\t"):
             if row["directory"].startswith("FRAMAC_SHARE") and row["status"] in _HOLDS:
                 continue
-            harness_assert = row["file"] == ph.HARNESS_NAME and row["property kind"] == "user assertion"
+            where = _where(row, workdir)
+            label = labels.get(int(row["line"])) if where.startswith(ph.HARNESS_NAME + ":") else None
             if row["status"] == "Valid":
-                proved += harness_assert
+                proved += label is not None and row["property kind"] == "user assertion"
             elif row["status"] != "Considered valid":
-                alarms.append(Alarm(row["property kind"], _where(row, workdir), row["property"],
-                                    row["status"].lower()))
+                expression = f"{label}: {row['property']}" if label else row["property"]
+                alarms.append(Alarm(row["property kind"], where, expression, row["status"].lower()))
     if proved < expected_asserts and not any(a.where.startswith(ph.HARNESS_NAME) for a in alarms):
         alarms.append(Alarm("unreached", ph.HARNESS_NAME, f"{expected_asserts - proved} of "
                             f"{expected_asserts} harness assertions never reached (a call does not return)",
@@ -118,3 +131,16 @@ def prove(p, c_dir=C_REF, machdep=MACHDEPS[0], timeout_s=1800):
                              + " / ".join(tail))
         alarms, proved = parse_report(report, work, expected)
     return Proof(alarms, seconds, proved)
+
+
+def scenario_params(path):
+    """The params block a run of scenario ``path`` uses (its [algorithm] table, the rest from
+    design's recommendation, as ``linedrop simulate`` runs it); ``None`` for the default config."""
+    from algo.config import AlgoConfig
+    from algo.params import derive
+    if path is None:
+        return derive(AlgoConfig())
+    from harness.design.settings import with_settings
+    from harness.scenario.algo_setup import algo_config
+    from harness.scenario.read import load_scenario
+    return derive(algo_config(with_settings(load_scenario(path))[0]))
