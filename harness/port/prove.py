@@ -36,7 +36,7 @@ _HOLDS = ("Valid", "Considered valid")
 
 _LABEL = re.compile(r"assert (\w+):")
 
-Alarm = namedtuple("Alarm", "kind where expression status")
+Alarm = namedtuple("Alarm", "kind where expression status function")
 Proof = namedtuple("Proof", "alarms seconds harness_asserts")
 
 
@@ -98,11 +98,12 @@ def parse_report(path, workdir, expected_asserts):
                 proved += label is not None and row["property kind"] == "user assertion"
             elif row["status"] != "Considered valid":
                 expression = f"{label}: {row['property']}" if label else row["property"]
-                alarms.append(Alarm(row["property kind"], where, expression, row["status"].lower()))
+                alarms.append(Alarm(row["property kind"], where, expression, row["status"].lower(),
+                                    row["function"]))
     if proved < expected_asserts and not any(a.where.startswith(ph.HARNESS_NAME) for a in alarms):
         alarms.append(Alarm("unreached", ph.HARNESS_NAME, f"{expected_asserts - proved} of "
                             f"{expected_asserts} harness assertions never reached (a call does not return)",
-                            "dead"))
+                            "dead", "ld_prove_main"))
     return alarms, proved
 
 
@@ -112,8 +113,8 @@ def prove(p, c_dir=C_REF, machdep=MACHDEPS[0], timeout_s=1800):
     Returns
     -------
     Proof
-        ``alarms`` (list of Alarm: kind, "file:line", the expression, Eva's status; empty when
-        proved), ``seconds`` (wall time of the analysis) and ``harness_asserts`` (assertions proved).
+        ``alarms`` (list of Alarm: kind, "file:line", the expression, Eva's status, the function
+        it is in; empty when proved), ``seconds`` (wall time of the analysis) and ``harness_asserts`` (assertions proved).
     """
     expected = len(ph.ENTRIES) * len(ph.assertion_names(p))
     with tempfile.TemporaryDirectory(prefix="linedrop-prove-") as work:
