@@ -5,7 +5,8 @@ The harness (harness.port.prove_harness) draws the state inside the invariant an
 anywhere in uint16, calls each entry once and asserts the invariant after the call. Eva runs
 with the precision the harness needs (a split on every window count, kept through the calls;
 return values split so a status and the value it guards stay together; the equality domain).
-None of them drops a check: every alarm Eva can raise stays on, and the result is "proved"
+None of them drops a check: Eva's default alarms all stay on, an out-of-range conversion to a
+signed type is added (EVA_OPTIONS), and the result is "proved"
 only if every property of the sources and the harness is valid and every harness assertion was
 reached.
 """
@@ -27,9 +28,11 @@ C_REF = os.path.normpath(os.path.join(os.path.dirname(__file__), "..", "..", "c_
 #: host's (long 64 bits).
 MACHDEPS = ("x86_32", "x86_64")
 
-#: Eva's precision settings; the split limit is raised to the window's sample count per run.
+#: Eva's precision settings (the split limit is raised to the window's sample count per run),
+#: and one check added to its defaults: a conversion to a signed type that does not hold the value
+#: (implementation-defined in C99 6.3.1.3p3, wrapped by gcc) is an alarm too.
 EVA_OPTIONS = ("-eva-precision", "1", "-eva-interprocedural-splits", "-eva-split-return", "auto",
-               "-eva-domains", "equality")
+               "-eva-domains", "equality", "-warn-signed-downcast")
 
 #: Statuses that mean a property holds (the libc specifications are taken as given).
 _HOLDS = ("Valid", "Considered valid")
