@@ -146,7 +146,8 @@ static void ld_tv_print(uint16_t cmd)
     const ld_state_t *s = &ld_tv_s;
     printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu "
            "%u %u %u %u %u %u %u %u %u %u %u "
-           "%ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %u %u %u %u\n",
+           "%ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld"
+           " %u %u %u %u %u %u %u\n",
            (unsigned)cmd, (long)s->acc_vi, (long)s->acc_vq, (long)s->acc_ii, (long)s->acc_iq,
            (long)s->isum, (long)s->vsum, (long)s->isum_h, (long)s->vsum_h,
            (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
@@ -155,10 +156,13 @@ static void ld_tv_print(uint16_t cmd)
            (unsigned)s->phase, (unsigned)s->count, (unsigned)s->bad_windows, (unsigned)s->cmd,
            (unsigned)s->have_prev, (unsigned)s->transient, (unsigned)s->status,
            (unsigned)s->clipped, (unsigned)s->valid_run, (unsigned)s->kp_off,
-           (unsigned)s->i_zero, (long)s->w_acc_vi, (long)s->w_acc_vq, (long)s->w_acc_ii,
-           (long)s->w_acc_iq, (long)s->w_isum, (long)s->w_di, (long)s->w_dv, (long)s->pert_next,
-           (long)s->kp, (long)s->step_thr, (long)s->thr_next, (unsigned)s->w_clipped, (unsigned)s->w_transient,
-           (unsigned)s->w_state, (unsigned)s->late_windows);
+           (unsigned)s->i_zero,
+           (long)s->w_acc_vi, (long)s->w_acc_vq, (long)s->w_acc_ii, (long)s->w_acc_iq,
+           (long)s->w_isum, (long)s->w_di, (long)s->w_dv, (long)s->pert_next, (long)s->step_thr,
+           (long)s->thr_next, (long)s->r_c, (long)s->rc_next, (long)s->kp, (long)s->kp_next,
+           (long)s->du, (unsigned)s->w_clipped, (unsigned)s->w_transient, (unsigned)s->w_state,
+           (unsigned)s->late_windows, (unsigned)s->corr_on, (unsigned)s->on_next,
+           (unsigned)s->iz_last);
 }
 
 int main(int argc, char **argv)

@@ -27,6 +27,8 @@ ENTRIES = (
     ("ld_init", "any", "ld_init(&ld_params, &s);"),
     ("ld_reset", "invariant", "ld_reset(&ld_params, &s);"),
     ("ld_step", "invariant", "(void)ld_step(&ld_params, &s, v, i);"),
+    ("ld_step_isr", "invariant", "(void)ld_step_isr(&ld_params, &s, v, i);"),
+    ("ld_window_work", "invariant", "(void)ld_window_work(&ld_params, &s);"),
 )
 
 #: The C sources the entries need, relative to c_ref/.
