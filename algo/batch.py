@@ -199,7 +199,7 @@ class BatchModel:
         hold = (u > cmax) & (e > 0)
         integ = np.where(hold, integ0, integ)
         corr = np.clip(u, 0, cmax)
-        du = du_step = corr - corr0
+        du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) - np.abs(du_prev) > np.abs(du_prev)) & (np.abs(du) > (p.corr_max_q[k] >> 6)))
         forced = s.corr_on[k] == 0
@@ -212,7 +212,7 @@ class BatchModel:
         s.integ[k] = np.where(forced, 0, np.clip(integ, 0, cmax))
         s.corr[k] = np.where(forced, 0, corr)
         s.du_prev[k] = np.where(forced, 0, du)
-        s.du[k] = np.where(forced, 0, du_step)
+        s.corr_prev[k] = np.where(forced, 0, corr0)
 
     def _window_handover(self, k):
         """algo.step._window_handover for instances ``k``: the w_* record, the next window's sums."""
@@ -283,7 +283,7 @@ class BatchModel:
         # algo.step._commit, in the same call: the correction's inputs, the ring guard back on
         # after a valid window, a correction held off at zero.
         s.on_next[k] = s.corr_on[k] = (~forced & (run >= 2)).astype(np.int64)
-        for name in ("corr", "corr_target", "integ", "du_prev", "du"):
+        for name in ("corr", "corr_target", "integ", "du_prev", "corr_prev"):
             getattr(s, name)[k[s.corr_on[k] == 0]] = 0
         s.rc_next[k] = s.r_c[k] = np.maximum(r_est - p.esr_q[k], 0)
         drop_total = _sat32(_rsr(r_est * s.w_isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))

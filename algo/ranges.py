@@ -25,7 +25,7 @@ STATE_TYPES = {
     "kp_off": (0, 0xFF), "i_zero": (0, 0xFF),
     "w_acc_vi": S32, "w_acc_vq": S32, "w_acc_ii": S32, "w_acc_iq": S32, "w_isum": S32,
     "w_di": S32, "w_dv": S32, "pert_next": S32, "step_thr": S32, "thr_next": S32, "r_c": S32, "rc_next": S32, "kp": S32,
-    "kp_next": S32, "du": S32, "corr_on": (0, 0xFF), "on_next": (0, 0xFF), "iz_last": (0, 0xFF), "w_clipped": (0, 0xFF),
+    "kp_next": S32, "corr_prev": S32, "corr_on": (0, 0xFF), "on_next": (0, 0xFF), "iz_last": (0, 0xFF), "w_clipped": (0, 0xFF),
     "w_transient": (0, 0xFF), "w_state": (0, 0xFF), "late_windows": (0, 0xFF),
 }
 
@@ -71,7 +71,7 @@ def state_bounds(p: Params):
       their bounds (reset sets both too). ``kp``: estimator.gain_kp, clamped to [0, kp_max_q]
       (r_est >= 0), and ``kp_next`` the same; ``step_thr``: estimator.step_threshold, at least
       step_min, int32-saturated. ``r_c``, ``rc_next``: r_est - esr_q floored at 0, so within
-      [0, r_max_q]; ``du``: a difference of two corrections in [0, corr_max_q].
+      [0, r_max_q]; ``corr_prev``: a correction, in [0, corr_max_q].
     * ``cmd``: clamped to [cmd_min, cmd_max] in step._command; ``cmd_base`` is target_code
       plus the rounded correction (estimator.command_base), set at init, reset and every
       period end.
@@ -102,7 +102,7 @@ def state_bounds(p: Params):
         "pert_next": (p.pert_min, p.pert_max), "kp": (0, p.kp_max_q), "kp_next": (0, p.kp_max_q),
         "step_thr": (p.step_min, S32[1]), "thr_next": (p.step_min, S32[1]),
         "r_c": (0, p.r_max_q), "rc_next": (0, p.r_max_q),
-        "du": (-p.corr_max_q, p.corr_max_q), "corr_on": (0, 1), "on_next": (0, 1), "iz_last": (0, 1),
+        "corr_prev": (0, p.corr_max_q), "corr_on": (0, 1), "on_next": (0, 1), "iz_last": (0, 1),
         "w_clipped": (0, 7), "w_transient": (0, 1), "w_state": (0, 2), "late_windows": (0, 0xFF),
     }
     return {name: bounds[name] for name in STATE_FIELDS}

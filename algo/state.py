@@ -68,7 +68,7 @@ class State:
     rc_next: int = 0      # int32: the window work's r_est - esr_q, floored at 0 (committed to r_c)
     kp: int = 0           # int32: proportional gain in force, Q GAIN_FRAC in [0, kp_max_q]
     kp_next: int = 0      # int32: the window work's gain from r_est (committed to kp)
-    du: int = 0           # int32: this period's step of corr, between the law's stages 2 and 3
+    corr_prev: int = 0    # int32: corr before this period's step, between the law's stages 2 and 3
     w_clipped: int = 0    # uint8: clipped at the window end
     w_transient: int = 0  # uint8: transient at the window end
     w_state: int = 0      # uint8: WIN_*, the hand-over to window_work

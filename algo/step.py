@@ -81,7 +81,7 @@ def drop_period(p, s):
 
 def _correction_zero(s):
     """The correction and its state at zero (a forced zero, or no confirmed estimate)."""
-    s.corr = s.corr_target = s.integ = s.du_prev = s.du = 0
+    s.corr = s.corr_target = s.integ = s.du_prev = s.corr_prev = 0
 
 
 def corr_ceiling(p, s):
@@ -181,22 +181,22 @@ def law_step(p, s):
         integ = s.integ
     s.integ = sat(integ, 0, top)
     corr = sat(u, 0, top)
-    s.du = corr - s.corr
+    s.corr_prev = s.corr
     s.corr = corr
 
 
 def law_guard(p, s):
-    """Stage 3: the ring guard on the step just taken (du against du_prev), then the command base."""
+    """Stage 3: the ring guard on the step just taken (du = corr - corr_prev against du_prev),
+    then the command base."""
     if s.corr_on:
-        du = s.du
+        du = s.corr - s.corr_prev
         rang = ((du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) - abs(s.du_prev) > abs(s.du_prev)
                 and abs(du) > p.corr_max_q >> 6)
         if s.kp_off < 2:
             s.kp_off = s.kp_off + 1 if rang else 0
             if s.kp_off == 2:
-                s.corr -= du                 # the correction before this period's step
-                du = s.integ - s.corr
                 s.corr = s.integ
+                du = s.corr - s.corr_prev
         s.du_prev = du
     s.cmd_base = command_base(p, s)
 

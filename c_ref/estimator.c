@@ -255,7 +255,9 @@ static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_ra
  * (w_state not LD_WIN_PENDING).
  * Called by ld_step at a window end, or by the firmware's main loop after ld_step_isr. It
  * writes only fields the interrupt path leaves alone while a window waits, and marks its end
- * (LD_WIN_DONE) with the last store, behind a compiler barrier.
+ * (LD_WIN_DONE) with the last store. Compiler barriers around the flag's read and before its
+ * store keep the compiler from caching the flag across calls or moving a result's store past
+ * it (a single core needs no hardware barrier; the flag is one byte, written whole).
  * Scaling and overflow: drop (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is
  * below 2**62 before its shift (ld_next_pert_amp).
  */
@@ -265,7 +267,8 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
     uint8_t status;
     int32_t drop_total;
 
-    if (*(volatile const uint8_t *)&s->w_state != (uint8_t)LD_WIN_PENDING) {
+    LD_COMPILER_BARRIER();
+    if (s->w_state != (uint8_t)LD_WIN_PENDING) {
         return 0u;
     }
     LD_COMPILER_BARRIER();
@@ -300,6 +303,6 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
     s->status = status;
     s->windows++;
     LD_COMPILER_BARRIER();
-    *(volatile uint8_t *)&s->w_state = (uint8_t)LD_WIN_DONE;
+    s->w_state = (uint8_t)LD_WIN_DONE;
     return 1u;
 }

@@ -137,7 +137,7 @@ typedef struct {
     int32_t rc_next;       /* the window work's r_est - esr_q, floored at 0 (committed to r_c) */
     int32_t kp;            /* proportional gain in force, Q LD_GAIN_FRAC in [0, kp_max_q] */
     int32_t kp_next;       /* the window work's gain from r_est (committed to kp) */
-    int32_t du;            /* this period's step of corr, between the law's stages 2 and 3 */
+    int32_t corr_prev;     /* corr before this period's step, between the law's stages 2 and 3 */
     uint8_t w_clipped;     /* clipped at the window end */
     uint8_t w_transient;   /* transient at the window end */
     uint8_t w_state;       /* LD_WIN_*: the hand-over to ld_window_work */

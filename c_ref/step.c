@@ -96,7 +96,7 @@ static void ld_correction_zero(ld_state_t *s)
     s->corr_target = 0;
     s->integ = 0;
     s->du_prev = 0;
-    s->du = 0;
+    s->corr_prev = 0;
 }
 
 /*
@@ -204,14 +204,17 @@ static void ld_law_step(const ld_params_t *p, ld_state_t *s)
     }
     s->integ = (int32_t)ld_sat64(integ, 0, top);
     corr = (int32_t)ld_sat64(u, 0, top);
-    s->du = corr - s->corr;
+    s->corr_prev = s->corr;
     s->corr = corr;
 }
 
-/* Stage 3: the ring guard on the step just taken (du against du_prev), then the command base. */
+/*
+ * Stage 3: the ring guard on the step just taken (du = corr - corr_prev against du_prev), then
+ * the command base.
+ */
 static void ld_law_guard(const ld_params_t *p, ld_state_t *s)
 {
-    int32_t du = s->du;
+    int32_t du = s->corr - s->corr_prev;
     int32_t adu = ld_abs32(du);
     int32_t adu_prev = ld_abs32(s->du_prev);
     int rang;
@@ -222,9 +225,8 @@ static void ld_law_guard(const ld_params_t *p, ld_state_t *s)
         if (s->kp_off < 2u) {
             s->kp_off = rang ? (uint8_t)(s->kp_off + 1u) : 0u;
             if (s->kp_off == 2u) {
-                s->corr -= du;          /* the correction before this period's step */
-                du = s->integ - s->corr;
                 s->corr = s->integ;
+                du = s->corr - s->corr_prev;
             }
         }
         s->du_prev = du;

@@ -160,7 +160,7 @@ static void ld_tv_print(uint16_t cmd)
            (long)s->w_acc_vi, (long)s->w_acc_vq, (long)s->w_acc_ii, (long)s->w_acc_iq,
            (long)s->w_isum, (long)s->w_di, (long)s->w_dv, (long)s->pert_next, (long)s->step_thr,
            (long)s->thr_next, (long)s->r_c, (long)s->rc_next, (long)s->kp, (long)s->kp_next,
-           (long)s->du, (unsigned)s->w_clipped, (unsigned)s->w_transient, (unsigned)s->w_state,
+           (long)s->corr_prev, (unsigned)s->w_clipped, (unsigned)s->w_transient, (unsigned)s->w_state,
            (unsigned)s->late_windows, (unsigned)s->corr_on, (unsigned)s->on_next,
            (unsigned)s->iz_last);
 }
