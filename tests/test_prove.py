@@ -22,25 +22,6 @@ SCENARIO_DIR = os.path.join(os.path.dirname(__file__), "..", "harness", "scenari
 SCENARIOS = ["demo_mast", "garden_lamps", "parking_camera", "mast_faults"]
 C_FILES = ("step.c", "estimator.c", "fixed.c", "fixed.h", "linedrop.h")
 
-class PendingNormalisation(Exception):
-    """Every alarm left is in ld_classify's normalisation (see PENDING_NORMALISATION)."""
-
-
-#: ld_classify's normalised current pair: Eva keeps an interval per variable, so it cannot see
-#: that the shift taken from the larger magnitude's bit length leaves both within 2**14 and the
-#: larger one non-zero; it raises overflow alarms at the products and a division-by-zero alarm at
-#: the quotient (false alarms: the worked bound is in estimator.c's ld_classify comment). The
-#: proof holds once estimator.c saturates the shifted pair to +-2**LD_NORM_BITS and guards den
-#: (both never active); remove this mark when that lands. Any other alarm fails the test.
-PENDING_NORMALISATION = pytest.mark.xfail(
-    strict=True, raises=PendingNormalisation,
-    reason="estimator.c ld_classify: the normalised current pair is not bounded for Eva")
-
-
-def _in_normalisation(alarm):
-    return alarm.function == "ld_classify" or alarm.function.startswith("ld_div_trunc")
-
-
 @pytest.fixture(scope="module")
 def default_params():
     return derive(AlgoConfig())
@@ -57,14 +38,11 @@ def _copy_sources(tmp_path, file, old, new):
     return str(tmp_path), text[:text.index(old)].count("\n") + 1
 
 
-@PENDING_NORMALISATION
 @pytest.mark.parametrize("scenario", SCENARIOS + [None])
 def test_the_shipped_scenarios_and_the_default_config_prove(scenario):
     require_tool("frama-c")
     path = None if scenario is None else os.path.join(SCENARIO_DIR, scenario + ".toml")
     proof = pv.prove(pv.scenario_params(path))
-    if proof.alarms and all(_in_normalisation(a) for a in proof.alarms):
-        raise PendingNormalisation(proof.alarms)
     assert proof.alarms == []
     assert proof.harness_asserts == len(ph.ENTRIES) * len(ph.assertion_names(pv.scenario_params(path)))
 

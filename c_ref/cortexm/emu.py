@@ -4,7 +4,9 @@
 
 Instructions are counted per translated block (a block hook plus capstone),
 so instructions skipped inside an IT block still count, as they take an
-issue slot on the core. Struct layouts come from the ELF's DWARF, so the
+issue slot on the core. On a Cortex-M the cycles are counted beside them, from the cores'
+published timings (c_ref/cortexm/cycles.py: a bound, each range at its upper end), a taken
+branch's refill added when the next block does not start right after it. Struct layouts come from the ELF's DWARF, so the
 params and state blocks are packed exactly as the target compiler laid them out.
 """
 from capstone import CS_ARCH_ARM, CS_MODE_MCLASS, CS_MODE_THUMB, Cs
@@ -12,6 +14,7 @@ from elftools.elf.elffile import ELFFile
 from unicorn import UC_ARCH_ARM, UC_HOOK_BLOCK, UC_MODE_MCLASS, UC_MODE_THUMB, Uc
 from unicorn import arm_const as A
 
+from c_ref.cortexm.cycles import timing
 from c_ref.cortexm.elf_layout import pack, struct_layout, unpack
 
 FLASH_BASE, FLASH_SIZE = 0x00000000, 0x00400000
@@ -62,8 +65,11 @@ class Target:
             self.state_layout = struct_layout(elf, "ld_state_t")
         self.uc.mem_write(self.RETURN_ADDR, self.RETURN_CODE)
         self.uc.mem_write(self._stack_window(), bytes([STACK_PAINT]) * STACK_WINDOW)
-        self._block_addrs = {}
+        self._blocks = {}
         self.count = 0
+        self.cycles = 0                 # stays 0 on a target without timings (block_timing)
+        self.last_cycles = None         # cycles of the last call, or None without timings
+        self._taken, self._fallthrough = 0, None
         self.by_function = {}
         self.by_address = None  # a dict while profile() is on: instruction address -> executions
         # Hand-written library routines (libgcc's __aeabi_ldivmod) carry no size: let
@@ -77,15 +83,23 @@ class Target:
         """Addresses of the instructions in the block of bytes ``code`` at ``address``."""
         raise NotImplementedError
 
+    def block_timing(self, code, address):
+        """``(instruction addresses, cycles if no branch is taken, extra cycles if the block's last
+        instruction branches)``; cycles ``None`` on a target without published timings."""
+        return self.instruction_addrs(code, address), None, 0
+
     def _stack_window(self):
         return self.RAM_BASE + self.RAM_SIZE - STACK_WINDOW
 
     def _on_block(self, uc, address, size, _user):
         key = (address, size)
-        addrs = self._block_addrs.get(key)
-        if addrs is None:
-            addrs = self.instruction_addrs(bytes(uc.mem_read(address, size)), address)
-            self._block_addrs[key] = addrs
+        block = self._blocks.get(key)
+        if block is None:
+            block = self._blocks[key] = self.block_timing(bytes(uc.mem_read(address, size)), address)
+        addrs, cycles, taken = block
+        if cycles is not None:
+            self.cycles += cycles + (self._taken if address != self._fallthrough else 0)
+            self._taken, self._fallthrough = taken, address + size
         n = len(addrs)
         self.count += n
         if self.by_address is not None:
@@ -107,10 +121,16 @@ class Target:
             self.uc.reg_write(reg, val & 0xFFFFFFFF)
         self.uc.reg_write(self.SP_REG, self.RAM_BASE + self.RAM_SIZE)
         self.uc.reg_write(self.LINK_REG, self.RETURN_ADDR | self.CODE_BIT)
-        before = self.count
+        before, before_cycles = self.count, self.cycles
+        self._taken, self._fallthrough = 0, None
         self.uc.emu_start(self.symbols[name][0] | self.CODE_BIT, self.RETURN_ADDR, count=1_000_000)
         if self.uc.reg_read(self.PC_REG) & ~self.CODE_BIT != self.RETURN_ADDR:
             raise RuntimeError(f"{name} did not return within the instruction budget")
+        if self._fallthrough is not None:           # the return itself, a taken branch
+            self.cycles += self._taken if self.RETURN_ADDR != self._fallthrough else 0
+            self.last_cycles = self.cycles - before_cycles
+        else:
+            self.last_cycles = None
         return self.uc.reg_read(self.ARG_REGS[0]), self.count - before
 
     def stack_high_water(self):
@@ -152,9 +172,16 @@ class CortexM(Target):
     def __init__(self, elf_path, cpu):
         uc = Uc(UC_ARCH_ARM, UC_MODE_THUMB | UC_MODE_MCLASS)
         uc.ctl_set_cpu_model(_CPU_MODELS[cpu])
+        self.cpu = cpu
         self._cs = Cs(CS_ARCH_ARM, CS_MODE_THUMB | CS_MODE_MCLASS)
         super().__init__(elf_path, uc)
 
     def instruction_addrs(self, code, address):
         """Thumb instructions of a block, via capstone (16- and 32-bit encodings)."""
         return [ins[0] for ins in self._cs.disasm_lite(code, address)]
+
+    def block_timing(self, code, address):
+        """Addresses and cycle bounds of a block's Thumb instructions (c_ref/cortexm/cycles.py)."""
+        ins = list(self._cs.disasm_lite(code, address))
+        times = [timing(self.cpu, mnemonic, op_str) for _, _, mnemonic, op_str in ins]
+        return ([a for a, *_ in ins], sum(c for c, _ in times), times[-1][1] if times else 0)

@@ -1,18 +1,19 @@
-"""Firmware cost of ld_step on Cortex-M4 and M0+: instructions per sample, code bytes, state and stack.
+"""Firmware cost on Cortex-M4 and M0+: instructions per sample, code bytes, state and stack.
 
 Cross-builds c_ref (step.c, estimator.c, fixed.c) with arm-none-eabi-gcc, runs ld_step
 in the unicorn emulator in closed loop with a small cable + capacitor plant
 (default settings, 1 A to 1.5 A load step), checks every command and state
 field against the Python model, and counts executed instructions. Open-loop
 adversarial input (random and full-scale codes) then bounds the data-dependent
-window end. All figures are deterministic; none is a wall-clock time.
+window end. The interrupt path is measured the same way apart: ld_step_isr per sample and
+ld_window_work per window (harness.port.cost_inputs.isr_run). All figures are
+deterministic; none is a wall-clock time.
 
     python -m harness.port.firmware_cost [--json | --profile m4]
 """
 import argparse
 import collections
 import json
-import random
 import subprocess
 import sys
 import tempfile
@@ -20,75 +21,16 @@ import tempfile
 from elftools.elf.elffile import ELFFile
 
 from algo import step as model
-from algo.estimator import window_work
 from algo.config import AlgoConfig
 from algo.params import PARAM_FIELDS, derive
-from algo.state import STATE_FIELDS
 from c_ref.cortexm import build
 from c_ref.cortexm.emu import STATE_ADDR, CortexM
+from harness.port.cost_inputs import (ADVERSARIAL_WINDOWS, WINDOWS, adversarial_inputs, input_run,
+                                      isr_run, mismatch_at)
 
 # Targets of the firmware work: the interrupt path's mean and worst sample, code and state size.
 TARGETS = {"m4_isr_instr_mean": 40, "m4_isr_instr_max": 80, "m0plus_isr_instr_max": 200,
            "text_bytes_os": 2048, "state_bytes": 128}
-
-# Closed-loop plant for a realistic input sequence: ideal supply, loop resistance
-# R_OHM, load capacitor C_F at the far end, constant-current load stepping once.
-R_OHM, C_F = 1.0, 1e-3
-I_LOAD_A, I_STEP_A = 1.0, 1.5
-WINDOWS = 24
-ADVERSARIAL_WINDOWS = 32
-SEED = 20240601
-
-
-def input_run(cfg, n_samples, seed=SEED):
-    """A closed-loop plant as a coroutine: send a command code, get ``(adc_v, adc_i)``.
-
-    Forward Euler at the sample rate (RC = 32 samples at the defaults), with
-    +-1 LSB of seeded noise on each ADC channel; the load steps at mid-run.
-    """
-    rng = random.Random(seed)
-    v_lsb = cfg.v_full_scale_v / (1 << cfg.adc_bits)
-    i_lsb = cfg.i_full_scale_a / (1 << cfg.adc_bits)
-    dac_lsb = cfg.dac_full_scale_v / (1 << cfg.dac_bits)
-    dt = 1.0 / cfg.sample_rate_hz
-    adc_max = (1 << cfg.adc_bits) - 1
-    v_cap = cfg.target_v - R_OHM * I_LOAD_A
-    cmd = yield
-    for n in range(n_samples):
-        v_s = cmd * dac_lsb
-        i = (v_s - v_cap) / R_OHM
-        i_load = I_LOAD_A if n < n_samples // 2 else I_STEP_A
-        v_cap += dt * (i - i_load) / C_F
-        codes = [min(adc_max, max(0, round(x / lsb) + rng.randint(-1, 1)))
-                 for x, lsb in ((v_s, v_lsb), (i, i_lsb))]
-        cmd = yield tuple(codes)
-
-
-def adversarial_inputs(p, windows=ADVERSARIAL_WINDOWS, seed=SEED):
-    """Open-loop ADC codes meant to lengthen the data-dependent parts of a window end.
-
-    Cycles through random 16-bit codes, full-scale extremes and full-scale square
-    waves (in phase and inverted), so the accumulators, the bit-length loop and the
-    64-bit division see large and odd magnitudes. Returns a list of ``(v, i)``.
-    """
-    rng = random.Random(seed)
-    top, half = p.adc_max, (p.adc_max + 1) // 2
-    out = []
-    for w in range(windows):
-        mode = w % 4
-        a_v, a_i = rng.choice([0, 10, top]), rng.choice([1, 10, top])
-        for k in range(p.window):
-            sgn = 1 if k % p.period < p.period // 2 else -1
-            if mode == 0:
-                out.append((rng.randrange(65536), rng.randrange(65536)))
-            elif mode == 1:
-                out.append((rng.choice([0, top]), rng.choice([0, top])))
-            else:
-                d_i = sgn if mode == 2 else -sgn
-                out.append((min(top, max(0, half + sgn * a_v // 2)),
-                            min(top, max(0, half + d_i * a_i // 2))))
-    return out
-
 
 def _section_bytes(objs):
     """Sum of ``.text*`` and ``.rodata*`` section sizes over object files."""
@@ -126,13 +68,7 @@ def run_cpu(cpu, opt, cfg, out_dir):
         nonlocal mismatch
         before_windows = s.windows
         cmd_c, instr = emu.call("ld_step", pa, STATE_ADDR, v, i)
-        cmd_m = model.step(p, s, v, i)
-        got = emu.read_state()
-        if mismatch is None and (cmd_c != cmd_m or any(got[f] != getattr(s, f)
-                                                       for f in STATE_FIELDS)):
-            mismatch = {"sample": k, "cmd": (cmd_c, cmd_m),
-                        "fields": {f: (got[f], getattr(s, f)) for f in STATE_FIELDS
-                                   if got[f] != getattr(s, f)}}
+        mismatch = mismatch or mismatch_at(emu, s, k, "ld_step", cmd_c, model.step(p, s, v, i))
         return cmd_c, instr, s.windows != before_windows
 
     emu.by_function.clear()
@@ -145,7 +81,7 @@ def run_cpu(cpu, opt, cfg, out_dir):
     by_function = dict(emu.by_function)
     adversarial_max = max(one_step(n + k, v, i)[1]
                           for k, (v, i) in enumerate(adversarial_inputs(p)))
-    isr = _isr_run(emu, pa, cfg, p)
+    isr = isr_run(emu, STATE_ADDR, pa, cfg, p)
     text, rodata = _section_bytes(objs)
     stack_static, chain, unknown = build.worst_stack(objs)
     per_sample = [c for c, w in zip(counts, window_end) if not w]
@@ -161,50 +97,6 @@ def run_cpu(cpu, opt, cfg, out_dir):
             "stack_measured": (emu.stack_high_water() + 3) & ~3,
             "status_last": s.status, "r_est_last": s.r_est,
             "mismatch": mismatch or isr.pop("mismatch"), "samples": n, **isr}
-
-
-def _isr_run(emu, pa, cfg, p):
-    """The interrupt path in the same closed loop: ``ld_step_isr`` every sample and
-    ``ld_window_work`` right after each window end (the main loop's first chance), then the
-    adversarial input; every call checked against the model. Returns the ISR and window-work
-    instruction figures and the first mismatch (or ``None``)."""
-    emu.call("ld_init", pa, STATE_ADDR)
-    s = model.init(p)
-    n = WINDOWS * p.window
-    plant = input_run(cfg, n)
-    next(plant)
-    v, i = plant.send(s.cmd)
-    isr, work, mismatch = [], [], None
-
-    def check(k, what, got_c, got_m):
-        nonlocal mismatch
-        got = emu.read_state()
-        if mismatch is None and (got_c != got_m or any(got[f] != getattr(s, f) for f in STATE_FIELDS)):
-            mismatch = {"sample": k, "call": what, "result": (got_c, got_m),
-                        "fields": {f: (got[f], getattr(s, f)) for f in STATE_FIELDS
-                                   if got[f] != getattr(s, f)}}
-
-    def one(k, v, i):
-        cmd_c, instr = emu.call("ld_step_isr", pa, STATE_ADDR, v, i)
-        check(k, "ld_step_isr", cmd_c, model.step_isr(p, s, v, i))
-        if s.w_state == 1:                      # WIN_PENDING: the main loop runs the work
-            did_c, w_instr = emu.call("ld_window_work", pa, STATE_ADDR)
-            check(k, "ld_window_work", did_c, window_work(p, s))
-            work.append(w_instr)
-        return cmd_c, instr
-
-    for k in range(n):
-        cmd_c, instr = one(k, v, i)
-        isr.append(instr)
-        if k + 1 < n:
-            v, i = plant.send(cmd_c)
-    adversarial = max(one(n + k, v, i)[1] for k, (v, i) in enumerate(adversarial_inputs(p)))
-    idle_c, idle = emu.call("ld_window_work", pa, STATE_ADDR)
-    check(n, "ld_window_work (idle)", idle_c, window_work(p, s))
-    return {"isr_instr_mean": sum(isr) / len(isr), "isr_instr_max": max(isr),
-            "isr_instr_max_adversarial": adversarial, "window_instr_max": max(work),
-            "window_instr_mean": sum(work) / len(work), "window_instr_idle": idle,
-            "mismatch": mismatch}
 
 
 def profile_lines(cpu="m4", opt="-O2", cfg=None, windows=8):
@@ -281,6 +173,9 @@ def measure(cfg=None):
         out[f"{cpu}_isr_instr_max_adversarial"] = r["isr_instr_max_adversarial"]
         out[f"{cpu}_window_instr_max"] = r["window_instr_max"]
         out[f"{cpu}_window_instr_mean"] = round(r["window_instr_mean"], 2)
+        out[f"{cpu}_isr_cycles_mean"] = round(r["isr_cycles_mean"], 2)
+        out[f"{cpu}_isr_cycles_max"] = r["isr_cycles_max"]
+        out[f"{cpu}_window_cycles_max"] = r["window_cycles_max"]
     out["window_instr_max"] = max(out[f"{c}_window_instr_max"] for c in build.CPUS)
     out["text_bytes_os"] = max(out[f"{c}_text_bytes_os"] for c in build.CPUS)
     out["rodata_bytes_os"] = max(runs[(c, "-Os")]["rodata_bytes"] for c in build.CPUS)
@@ -320,7 +215,19 @@ def main(argv=None):
     if args.json:
         print(json.dumps(m, indent=2))
         return 0
-    rows = [("instructions per ld_step, mean (-O2)", "m4_instr_mean", "m0plus_instr_mean"),
+    rows = [("ld_step_isr (interrupt path), instructions, mean", "m4_isr_instr_mean",
+             "m0plus_isr_instr_mean"),
+            ("ld_step_isr, instructions, worst sample", "m4_isr_instr_max", "m0plus_isr_instr_max"),
+            ("ld_step_isr, worst on adversarial input", "m4_isr_instr_max_adversarial",
+             "m0plus_isr_instr_max_adversarial"),
+            ("ld_step_isr, cycles, mean (bound)", "m4_isr_cycles_mean", "m0plus_isr_cycles_mean"),
+            ("ld_step_isr, cycles, worst sample (bound)", "m4_isr_cycles_max",
+             "m0plus_isr_cycles_max"),
+            ("ld_window_work (main loop), instructions, worst", "m4_window_instr_max",
+             "m0plus_window_instr_max"),
+            ("ld_window_work, cycles, worst (bound)", "m4_window_cycles_max",
+             "m0plus_window_cycles_max"),
+            ("instructions per ld_step, mean (-O2)", "m4_instr_mean", "m0plus_instr_mean"),
             ("instructions, worst = window end (-O2)", "m4_instr_max", "m0plus_instr_max"),
             ("instructions, worst non-window sample", "m4_instr_sample_max",
              "m0plus_instr_sample_max"),
@@ -331,9 +238,9 @@ def main(argv=None):
             (".text bytes, step.c + estimator.c + fixed.c, -Os", "m4_text_bytes_os", "m0plus_text_bytes_os"),
             (".text bytes, -O2", "m4_text_bytes_o2", "m0plus_text_bytes_o2"),
             ("libc/libgcc routines pulled in, bytes", "m4_lib_bytes_os", "m0plus_lib_bytes_os")]
-    print(f"{'figure':44s} {'Cortex-M4':>10s} {'Cortex-M0+':>10s}")
+    print(f"{'figure (-O2 unless marked)':50s} {'Cortex-M4':>10s} {'Cortex-M0+':>10s}")
     for label, a, b in rows:
-        print(f"{label:44s} {m[a]:>10} {m[b]:>10}")
+        print(f"{label:50s} {m[a]:>10} {m[b]:>10}")
     print(f"sizeof(ld_state_t) {m['state_bytes']} B; .rodata {m['rodata_bytes_os']} B; "
           f"stack {m['stack_bytes']} B static ({' -> '.join(m['stack_chain'])}), "
           f"{m['stack_bytes_measured']} B measured incl. {', '.join(m['stack_unknown']) or '-'}")

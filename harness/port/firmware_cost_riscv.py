@@ -1,4 +1,5 @@
-"""Firmware cost of ld_step on RV32IMC: instructions per sample in unicorn, code bytes and stack.
+"""Firmware cost on RV32IMC: instructions per sample in unicorn (ld_step, and the interrupt path
+ld_step_isr with ld_window_work apart), code bytes and stack.
 
 The RISC-V counterpart of :mod:`harness.port.firmware_cost`, which calls it
 (``measure()`` there adds :func:`bench_figures`, so ``linedrop bench --firmware
@@ -23,6 +24,7 @@ from algo.params import PARAM_FIELDS, derive
 from algo.state import STATE_FIELDS
 from c_ref.cortexm.build import worst_stack
 from c_ref.riscv import build
+from harness.port.cost_inputs import isr_run
 
 OPTS = ("-Os", "-O2")
 
@@ -95,6 +97,8 @@ def run_rv32(opt, cfg, out_dir, input_run, adversarial_inputs, windows):
         counts.append(instr)
         window_end.append(s.windows != windows)
     adversarial = [checked_step(n + k, v, i)[1] for k, (v, i) in enumerate(adversarial_inputs(p))]
+    isr = isr_run(emu, STATE_ADDR, pa, cfg, p, windows)
+    mismatch = mismatch or isr.pop("mismatch")
     objects, linked, lib = _code_bytes(elf, objs)
     ordinary = [c for c, end in zip(counts, window_end) if not end]
     stack, chain, unknown = worst_stack(objs)
@@ -102,7 +106,7 @@ def run_rv32(opt, cfg, out_dir, input_run, adversarial_inputs, windows):
             "instr_sample_max": max(ordinary), "instr_max_adversarial": max(adversarial),
             "text_bytes": objects, "text_bytes_linked": linked, "lib_bytes": lib, "stack_static": stack, "stack_chain": chain,
             "stack_unknown": unknown, "stack_measured": (emu.stack_high_water() + 3) & ~3,
-            "samples": n, "adversarial_samples": len(adversarial), "mismatch": mismatch}
+            "samples": n, "adversarial_samples": len(adversarial), "mismatch": mismatch, **isr}
 
 
 def measure(cfg, input_run, adversarial_inputs, windows):
@@ -127,6 +131,11 @@ def bench_figures(cfg, input_run, adversarial_inputs, windows):
             "rv32_instr_sample_max": o2["instr_sample_max"],
             "rv32_instr_max_adversarial": o2["instr_max_adversarial"],
             "rv32_instr_mean_os": round(os_["instr_mean"], 2), "rv32_instr_max_os": os_["instr_max"],
+            "rv32_isr_instr_mean": round(o2["isr_instr_mean"], 2),
+            "rv32_isr_instr_max": o2["isr_instr_max"],
+            "rv32_isr_instr_max_adversarial": o2["isr_instr_max_adversarial"],
+            "rv32_window_instr_max": o2["window_instr_max"],
+            "rv32_window_instr_mean": round(o2["window_instr_mean"], 2),
             "rv32_text_bytes_os": os_["text_bytes"], "rv32_text_bytes_o2": o2["text_bytes"],
             "rv32_text_bytes_os_linked": os_["text_bytes_linked"],
             "rv32_lib_bytes_os": os_["lib_bytes"],
