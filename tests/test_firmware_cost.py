@@ -1,9 +1,10 @@
-"""Firmware cost figures: deterministic instruction counts, code, state and stack bytes on Cortex-M4/M0+.
+"""Firmware cost figures: deterministic instruction counts, cycle bounds, code, state and stack
+bytes on Cortex-M4/M0+, for ld_step and for the interrupt path (ld_step_isr, ld_window_work).
 
-The code-size and state-size targets of the port kit are asserted. The M4
-instruction targets (mean <= 60, window end <= 400) are not met by this
-design; `linedrop bench --firmware` prints the figures and says so, and
-c_ref/cortexm/README.md explains where the instructions go. Nothing here is timed.
+The code-size and state-size targets are strict xfails (not met at 0.5.0). The interrupt path's
+instruction targets (M4 mean <= 40 and worst <= 80, M0+ worst <= 200) are not met either;
+`linedrop bench --firmware` prints the figures and says so, and c_ref/cortexm/README.md explains
+where the instructions go. Nothing here is timed.
 """
 import importlib.util
 
@@ -84,3 +85,20 @@ def test_benchmark_carries_the_rv32imc_figures_bit_exact(cost):
     skip_or_fail(rv32_build.toolchain_missing())
     assert cost["rv32_bit_exact"], cost["rv32_mismatches"]
     assert cost["rv32_instr_max"] > cost["rv32_instr_sample_max"] > cost["rv32_instr_mean"] > 0
+
+
+def test_the_interrupt_path_moves_the_window_work_out_of_the_interrupts_worst_sample(cost):
+    # The split's point: the interrupt's worst is a period end's stage or a window end's hand-over,
+    # far below ld_step's window-end sample, and the window's work is measured apart.
+    for cpu in ("m4", "m0plus"):
+        assert cost[f"{cpu}_isr_instr_max"] * 4 < cost[f"{cpu}_instr_max"]
+        assert cost[f"{cpu}_window_instr_max"] > cost[f"{cpu}_isr_instr_max"]
+        assert cost[f"{cpu}_isr_instr_mean"] <= cost[f"{cpu}_instr_mean"]
+
+
+def test_cycle_bounds_sit_above_the_instruction_counts(cost):
+    # Every instruction takes at least one cycle on these cores, loads and taken branches more.
+    for cpu in ("m4", "m0plus"):
+        assert cost[f"{cpu}_isr_cycles_max"] > cost[f"{cpu}_isr_instr_max"]
+        assert cost[f"{cpu}_isr_cycles_mean"] > cost[f"{cpu}_isr_instr_mean"]
+        assert cost[f"{cpu}_window_cycles_max"] > cost[f"{cpu}_window_instr_max"]

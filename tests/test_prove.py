@@ -79,7 +79,8 @@ def test_a_planted_overflow_is_an_alarm_at_its_line(tmp_path, default_params, fi
 def test_a_bound_too_narrow_for_one_field_is_an_assertion_alarm(monkeypatch, default_params):
     """cmd is clamped to [cmd_min, cmd_max] (step.c ld_command) and reaches cmd_max whenever
     cmd_base plus the perturbation exceeds it (cmd_base up to cmd_max by the range analysis):
-    a bound one code lower cannot hold after ld_step."""
+    a bound one code lower cannot hold after ld_step or ld_step_isr (the two calls that write
+    the command; ld_window_work leaves it alone, ld_init and ld_reset set it below the bound)."""
     require_tool("frama-c")
     real = ph.state_bounds
 
@@ -91,9 +92,11 @@ def test_a_bound_too_narrow_for_one_field_is_an_assertion_alarm(monkeypatch, def
     monkeypatch.setattr(ph, "state_bounds", narrow)
     proof = pv.prove(default_params)
     asserts = [a for a in proof.alarms if a.kind == "user assertion"]
-    assert [a.expression.split(":")[0] for a in asserts] == ["ld_step_cmd"], proof.alarms
-    assert asserts[0].expression.endswith(f"s.cmd ≤ {default_params.cmd_max - 1}")
-    assert asserts[0].where.startswith(ph.HARNESS_NAME + ":")
+    assert [a.expression.split(":")[0] for a in asserts] == ["ld_step_cmd", "ld_step_isr_cmd"], \
+        proof.alarms
+    for a in asserts:
+        assert a.expression.endswith(f"s.cmd ≤ {default_params.cmd_max - 1}")
+        assert a.where.startswith(ph.HARNESS_NAME + ":")
 
 
 def test_a_missing_scenario_file_is_one_line_naming_it_exit_2(capsys, tmp_path):
