@@ -6,7 +6,7 @@
  * demodulation sums, turns them into the real and quadrature parts of V/I,
  * classifies the window, and updates the resistance estimate and the
  * perturbation amplitude. The correction itself moves every period
- * (ld_correct in step.c). The only divisions of the algorithm are here.
+ * (the correction law in step.c). The only divisions of the algorithm are here.
  */
 #include "linedrop.h"
 #include "fixed.h"
@@ -31,21 +31,29 @@ static inline int64_t ld_detrend(int32_t acc, int32_t diff, int32_t kt_q)
  */
 static inline void ld_rotate(int64_t *vi, int64_t *vq, const ld_params_t *p)
 {
-    int64_t a = *vi, b = *vq;
-    *vi = ld_rshift_round64(a * p->rot_c_q + b * p->rot_s_q, LD_ROT_FRAC);
-    *vq = ld_rshift_round64(b * p->rot_c_q - a * p->rot_s_q, LD_ROT_FRAC);
+    int64_t a = *vi;
+    int64_t b = *vq;
+    *vi = ld_rshift_round64((a * p->rot_c_q) + (b * p->rot_s_q), LD_ROT_FRAC);
+    *vq = ld_rshift_round64((b * p->rot_c_q) - (a * p->rot_s_q), LD_ROT_FRAC);
 }
 
 static inline int64_t ld_abs64(int64_t x)
 {
-    return x < 0 ? -x : x;
+    return (x < 0) ? -x : x;
+}
+
+/* 1 in Q frac, 2**frac for frac < 63, formed as an unsigned shift (no shift of a signed value). */
+static inline int64_t ld_one_q(unsigned frac)
+{
+    uint64_t one = (uint64_t)1u << frac;
+    return (int64_t)one;
 }
 
 /* Bit length of 0 <= u < 2**63, from the 32-bit ld_bit_length. */
 static inline unsigned ld_bit_length64(int64_t u)
 {
     uint32_t hi = (uint32_t)((uint64_t)u >> 32);
-    return hi != 0u ? 32u + ld_bit_length(hi) : ld_bit_length((uint32_t)u);
+    return (hi != 0u) ? (32u + ld_bit_length(hi)) : ld_bit_length((uint32_t)u);
 }
 
 /*
@@ -75,19 +83,25 @@ static inline unsigned ld_bit_length64(int64_t u)
  * 2**b - 1 right by b - NORM_BITS never exceeds 2**NORM_BITS) and den = 0 reads low swing.
  * Neither ever acts; both are mirrored in the model.
  */
-/* The normalised current pair's bound (see ld_classify). */
-#define LD_NORM_LIM ((int64_t)1 << LD_NORM_BITS)
-
 static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
 {
     int32_t di = s->w_di;
     int32_t dv = s->w_dv;
     int64_t ii0 = ld_detrend(s->w_acc_ii, di, p->kt_s_q);
     int64_t iq0 = ld_detrend(s->w_acc_iq, di, p->kt_c_q);
-    int64_t m = ld_abs64(ii0) > ld_abs64(iq0) ? ld_abs64(ii0) : ld_abs64(iq0);
-    int64_t vi0, vq0, den, num, xnum;
-    int32_t vi, vq, ii, iq;
-    unsigned bl, sh;
+    int64_t m = (ld_abs64(ii0) > ld_abs64(iq0)) ? ld_abs64(ii0) : ld_abs64(iq0);
+    int64_t norm_lim = ld_one_q(LD_NORM_BITS);  /* the normalised current pair's bound */
+    int64_t vi0;
+    int64_t vq0;
+    int64_t den;
+    int64_t num;
+    int64_t xnum;
+    int32_t vi;
+    int32_t vq;
+    int32_t ii;
+    int32_t iq;
+    unsigned bl;
+    unsigned sh;
 
     *r_raw = 0;
     if (m < p->swing_min) {
@@ -97,18 +111,18 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     vq0 = ld_detrend(s->w_acc_vq, dv, p->kt_c_q);
     ld_rotate(&vi0, &vq0, p);
     bl = ld_bit_length64(m);
-    sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
+    sh = (bl <= LD_NORM_BITS) ? 0u : (bl - LD_NORM_BITS);
     vi = ld_sat_s32(ld_rshift_round64(vi0, sh));
     vq = ld_sat_s32(ld_rshift_round64(vq0, sh));
-    ii = (int32_t)ld_sat64(ld_rshift_round64(ii0, sh), -LD_NORM_LIM, LD_NORM_LIM);
-    iq = (int32_t)ld_sat64(ld_rshift_round64(iq0, sh), -LD_NORM_LIM, LD_NORM_LIM);
-    den = (int64_t)ii * ii + (int64_t)iq * iq;
+    ii = (int32_t)ld_sat64(ld_rshift_round64(ii0, sh), -norm_lim, norm_lim);
+    iq = (int32_t)ld_sat64(ld_rshift_round64(iq0, sh), -norm_lim, norm_lim);
+    den = ((int64_t)ii * ii) + ((int64_t)iq * iq);
     if (den == 0) {
         return LD_STATUS_LOW_SWING;
     }
-    num = (int64_t)vi * ii + (int64_t)vq * iq;
-    xnum = (int64_t)vq * ii - (int64_t)vi * iq;
-    *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
+    num = ((int64_t)vi * ii) + ((int64_t)vq * iq);
+    xnum = ((int64_t)vq * ii) - ((int64_t)vi * iq);
+    *r_raw = ld_sat_s32(ld_div_trunc(num * ld_one_q(p->r_frac), den));
     if (s->w_clipped != 0u) {
         return LD_STATUS_CLIPPED;
     }
@@ -121,7 +135,7 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     if (*r_raw < 0) {
         return LD_STATUS_R_LOW;
     }
-    if (ld_abs64(xnum) * ((int64_t)1 << p->r_frac) > (int64_t)p->x_max_q * den) {
+    if ((ld_abs64(xnum) * ld_one_q(p->r_frac)) > ((int64_t)p->x_max_q * den)) {
         return LD_STATUS_REACTIVE;
     }
     s->swing = ld_sat_s32(m);
@@ -137,7 +151,7 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
 static int32_t ld_gain_kp(const ld_params_t *p, int32_t r_est)
 {
     int64_t kp64 = ld_rshift_round64((int64_t)r_est * p->kc_q, p->r_frac);
-    return kp64 > p->kp_max_q ? p->kp_max_q : (int32_t)kp64;
+    return (kp64 > p->kp_max_q) ? p->kp_max_q : (int32_t)kp64;
 }
 
 /*
@@ -182,7 +196,9 @@ static int32_t ld_drop_vq(int32_t r_q, int32_t isum, const ld_params_t *p)
 static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8_t status,
                                 int32_t drop_total)
 {
-    int64_t a, half;
+    int64_t a;
+    int64_t half;
+
     if (status == LD_STATUS_LOW_SWING) {
         return (int64_t)s->pert_amp * 2;
     }
@@ -191,7 +207,7 @@ static int64_t ld_next_pert_amp(const ld_params_t *p, const ld_state_t *s, uint8
     }
     a = ld_rshift_round64((int64_t)drop_total * p->pert_gain_q, LD_GAIN_FRAC + LD_DROP_FRAC);
     half = s->pert_amp >> 1;
-    return a > half ? a : half;
+    return (a > half) ? a : half;
 }
 
 /*
@@ -213,7 +229,7 @@ int32_t ld_command_base(const ld_params_t *p, const ld_state_t *s)
     if (top < (int32_t)p->target_code) {
         top = (int32_t)p->target_code;
     }
-    return base < top ? base : top;
+    return (base < top) ? base : top;
 }
 
 /*
@@ -232,8 +248,8 @@ static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_ra
     if (shift > p->r_shift) {
         shift = p->r_shift;
     }
-    if (s->valid_run == 0u ||
-        (s->valid_run == 1u && ld_abs32(r_raw - s->r_est) > p->r_step_max_q)) {
+    if ((s->valid_run == 0u) ||
+        ((s->valid_run == 1u) && (ld_abs32(r_raw - s->r_est) > p->r_step_max_q))) {
         s->r_est = r_raw;
         s->valid_run = 1u;
         return;
@@ -277,10 +293,10 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
     if (status == LD_STATUS_VALID) {
         ld_update_estimate(p, s, s->r_raw);
         s->bad_windows = 0u;
-    } else if (status != LD_STATUS_TRANSIENT &&
-               !(status == LD_STATUS_CLIPPED && (s->w_clipped & 2u) == 0u &&
-                 (s->w_clipped & 5u) != 5u) &&
-               s->bad_windows < UINT16_MAX) {
+    } else if ((status != LD_STATUS_TRANSIENT) &&
+               !((status == LD_STATUS_CLIPPED) && ((s->w_clipped & 2u) == 0u) &&
+                 ((s->w_clipped & 5u) != 5u)) &&
+               (s->bad_windows < UINT16_MAX)) {
         /* A load step or a current code at one rail only holds the estimate; counting it as
          * a fault window would let a step spread over several windows by the load capacitor
          * force the correction to zero. The voltage at its rail, or the current at both rails
@@ -288,13 +304,16 @@ uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
          * (design warns where v_full_scale_v is below max_v), or the current swings over the
          * ADC's whole range, as when a plant without its capacitor runs away. */
         s->bad_windows++;
+    } else {
+        /* A load step, a current code at one rail only, or the counter at its ceiling: the
+         * fault count holds. */
     }
     if (s->bad_windows >= p->fault_windows) {
         s->r_est = 0;
         s->valid_run = 0u;
     }
-    s->on_next = (s->bad_windows < p->fault_windows && s->valid_run >= 2u) ? 1u : 0u;
-    s->rc_next = s->r_est > p->esr_q ? s->r_est - p->esr_q : 0;
+    s->on_next = ((s->bad_windows < p->fault_windows) && (s->valid_run >= 2u)) ? 1u : 0u;
+    s->rc_next = (s->r_est > p->esr_q) ? (s->r_est - p->esr_q) : 0;
     s->kp_next = ld_gain_kp(p, s->r_est);
     s->thr_next = ld_step_threshold(p, s->swing);
     drop_total = ld_drop_vq(s->r_est, s->w_isum, p);

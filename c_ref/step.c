@@ -7,6 +7,7 @@
  * window over to its work when it is full; return the next command code.
  * Integer-only, no division, no globals.
  */
+#include <stdbool.h>
 #include <string.h>
 #include "linedrop.h"
 #include "fixed.h"
@@ -20,14 +21,15 @@
 static inline uint16_t ld_command(const ld_params_t *p, const ld_state_t *s)
 {
     unsigned tb = (unsigned)p->tab_bits - 1u;
-    int32_t pert = (s->pert_amp * p->ref_tab[s->phase] + (int32_t)(1L << (tb - 1u))) >> tb;
+    uint32_t half = (uint32_t)1u << (tb - 1u);  /* 2**(tb-1), formed without a signed shift */
+    int32_t pert = ((s->pert_amp * p->ref_tab[s->phase]) + (int32_t)half) >> tb;
     return (uint16_t)ld_sat(s->cmd_base + pert, p->cmd_min, p->cmd_max);
 }
 
 /* A fresh state: no estimate, no correction, perturbation at its floor. */
 void ld_init(const ld_params_t *p, ld_state_t *s)
 {
-    memset(s, 0, sizeof *s);
+    (void)memset(s, 0, sizeof *s);
     ld_reset(p, s);
 }
 
@@ -40,7 +42,7 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
 {
     int32_t r_est = s->r_est;
     uint32_t windows = s->windows;
-    memset(s, 0, sizeof *s);
+    (void)memset(s, 0, sizeof *s);
     s->r_est = r_est;
     s->windows = windows;
     s->pert_amp = p->pert_min;
@@ -61,7 +63,7 @@ void ld_reset(const ld_params_t *p, ld_state_t *s)
  */
 static void ld_period_end(ld_state_t *s)
 {
-    if (s->have_prev != 0u && ld_abs32(s->psum - s->psum_prev) > s->step_thr) {
+    if ((s->have_prev != 0u) && (ld_abs32(s->psum - s->psum_prev) > s->step_thr)) {
         s->transient = 1u;
     }
     s->psum_prev = s->psum;
@@ -112,12 +114,15 @@ static void ld_correction_zero(ld_state_t *s)
 static int32_t ld_corr_ceiling(const ld_params_t *p, const ld_state_t *s)
 {
     int32_t room = (int32_t)p->cmd_max - (int32_t)p->target_code;
+    uint32_t room_q;
+
     room -= s->pert_amp;
     if (room < 0) {
         room = 0;
     }
-    room = (int32_t)((uint32_t)room << p->corr_frac);
-    return room < p->corr_max_q ? room : p->corr_max_q;
+    room_q = (uint32_t)room << p->corr_frac;
+    room = (int32_t)room_q;
+    return (room < p->corr_max_q) ? room : p->corr_max_q;
 }
 
 /*
@@ -178,28 +183,32 @@ static void ld_law_target(const ld_params_t *p, ld_state_t *s)
         ld_correction_zero(s);
         return;
     }
-    s->corr_target = s->iz_last != 0u ? 0 : ld_drop_period(p, s);
+    s->corr_target = (s->iz_last != 0u) ? 0 : ld_drop_period(p, s);
 }
 
 /* Stage 2: one step of the law, the output clamped and the integral held while it winds up. */
 static void ld_law_step(const ld_params_t *p, ld_state_t *s)
 {
-    int32_t e, corr, top, kp;
-    int64_t integ, u;
+    int32_t e;
+    int32_t corr;
+    int32_t top;
+    int32_t kp;
+    int64_t integ;
+    int64_t u;
 
     if (s->corr_on == 0u) {
         return;
     }
     if (s->iz_last != 0u) {
-        e = -(s->corr > s->integ ? s->corr : s->integ);
+        e = -((s->corr > s->integ) ? s->corr : s->integ);
     } else {
         e = s->corr_target - s->corr;
     }
     integ = (int64_t)s->integ + ld_rshift_round64((int64_t)p->ki_q * e, LD_GAIN_FRAC);
-    kp = s->kp_off < 2u ? s->kp : 0;
+    kp = (s->kp_off < 2u) ? s->kp : 0;
     u = ld_rshift_round64((int64_t)kp * e, LD_GAIN_FRAC) + integ;
     top = ld_corr_ceiling(p, s);
-    if (u > top && e > 0) {
+    if ((u > top) && (e > 0)) {
         integ = s->integ;
     }
     s->integ = (int32_t)ld_sat64(integ, 0, top);
@@ -217,11 +226,11 @@ static void ld_law_guard(const ld_params_t *p, ld_state_t *s)
     int32_t du = s->corr - s->corr_prev;
     int32_t adu = ld_abs32(du);
     int32_t adu_prev = ld_abs32(s->du_prev);
-    int rang;
+    bool rang;
 
     if (s->corr_on != 0u) {
-        rang = ((du > 0 && s->du_prev < 0) || (du < 0 && s->du_prev > 0)) &&
-               adu - adu_prev > adu_prev && adu > (p->corr_max_q >> 6);
+        rang = (((du > 0) && (s->du_prev < 0)) || ((du < 0) && (s->du_prev > 0))) &&
+               ((adu - adu_prev) > adu_prev) && (adu > (p->corr_max_q >> 6));
         if (s->kp_off < 2u) {
             s->kp_off = rang ? (uint8_t)(s->kp_off + 1u) : 0u;
             if (s->kp_off == 2u) {
@@ -246,8 +255,8 @@ static void ld_law_guard(const ld_params_t *p, ld_state_t *s)
 static inline uint8_t ld_accumulate(const ld_params_t *p, ld_state_t *s, uint16_t adc_v,
                                 uint16_t adc_i)
 {
-    int32_t v = adc_v > p->adc_max ? p->adc_max : adc_v;
-    int32_t i = adc_i > p->adc_max ? p->adc_max : adc_i;
+    int32_t v = (adc_v > p->adc_max) ? p->adc_max : adc_v;
+    int32_t i = (adc_i > p->adc_max) ? p->adc_max : adc_i;
     unsigned ds = p->demod_shift;
     int32_t half = (int32_t)((1UL << ds) >> 1);
     uint16_t n = (uint16_t)((1u << p->period_log2) - 1u);
@@ -257,25 +266,25 @@ static inline uint8_t ld_accumulate(const ld_params_t *p, ld_state_t *s, uint16_
     if (i == 0) {
         s->clipped |= 1u;
     }
-    if (v == p->adc_max) {
+    if (v == (int32_t)p->adc_max) {
         s->clipped |= 2u;
     }
-    if (i == p->adc_max) {
+    if (i == (int32_t)p->adc_max) {
         s->clipped |= 4u;
     }
     if (i == 0) {
         s->i_zero = 1u;
     }
-    s->acc_vi += (v * sn + half) >> ds;
-    s->acc_vq += (v * cs + half) >> ds;
-    s->acc_ii += (i * sn + half) >> ds;
-    s->acc_iq += (i * cs + half) >> ds;
+    s->acc_vi += ((v * sn) + half) >> ds;
+    s->acc_vq += ((v * cs) + half) >> ds;
+    s->acc_ii += ((i * sn) + half) >> ds;
+    s->acc_iq += ((i * cs) + half) >> ds;
     s->isum += i;
     s->vsum += v;
     s->psum += i;
     s->phase = (uint16_t)((s->phase + 1u) & n);
     s->count++;
-    return s->phase == 0u ? 1u : 0u;
+    return (s->phase == 0u) ? 1u : 0u;
 }
 
 /*
@@ -319,8 +328,8 @@ static void ld_window_handover(ld_state_t *s)
     s->w_acc_ii = s->acc_ii;
     s->w_acc_iq = s->acc_iq;
     s->w_isum = s->isum;
-    s->w_di = s->isum - 2 * s->isum_h;
-    s->w_dv = s->vsum - 2 * s->vsum_h;
+    s->w_di = s->isum - (2 * s->isum_h);
+    s->w_dv = s->vsum - (2 * s->vsum_h);
     s->w_clipped = s->clipped;
     s->w_transient = s->transient;
     s->w_state = LD_WIN_PENDING;
@@ -386,7 +395,7 @@ LD_HOT_INLINE uint16_t ld_step_core(const ld_params_t *p, ld_state_t *s, uint16_
                                     uint16_t adc_i, uint8_t staged)
 {
     if (ld_accumulate(p, s, adc_v, adc_i) != 0u) {
-        if (s->w_state == LD_WIN_DONE) {
+        if (s->w_state == (uint8_t)LD_WIN_DONE) {
             ld_commit(s);
         }
         ld_period_end(s);
@@ -396,13 +405,13 @@ LD_HOT_INLINE uint16_t ld_step_core(const ld_params_t *p, ld_state_t *s, uint16_
             ld_law_guard(p, s);
         }
         if (ld_period_sums(p, s) != 0u) {
-            if (s->w_state == LD_WIN_IDLE) {
+            if (s->w_state == (uint8_t)LD_WIN_IDLE) {
                 ld_window_handover(s);
             } else {
                 ld_window_late(p, s);
             }
         }
-    } else if (staged != 0u && s->phase <= 3u && s->have_prev != 0u) {
+    } else if ((staged != 0u) && (s->phase <= 3u) && (s->have_prev != 0u)) {
         if (s->phase == 1u) {
             ld_law_target(p, s);
         } else if (s->phase == 2u) {
@@ -410,6 +419,8 @@ LD_HOT_INLINE uint16_t ld_step_core(const ld_params_t *p, ld_state_t *s, uint16_
         } else {
             ld_law_guard(p, s);
         }
+    } else {
+        /* Neither a period end nor a stage of the law due: the sums alone this sample. */
     }
     s->cmd = ld_command(p, s);
     return s->cmd;
@@ -433,7 +444,7 @@ uint16_t ld_step_isr(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16
 uint16_t ld_step(const ld_params_t *p, ld_state_t *s, uint16_t adc_v, uint16_t adc_i)
 {
     uint16_t cmd = ld_step_core(p, s, adc_v, adc_i, 0u);
-    if (s->w_state == LD_WIN_PENDING && ld_window_work(p, s) != 0u) {
+    if ((s->w_state == (uint8_t)LD_WIN_PENDING) && (ld_window_work(p, s) != 0u)) {
         ld_commit(s);
         s->cmd_base = ld_command_base(p, s);
         s->cmd = ld_command(p, s);

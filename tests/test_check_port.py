@@ -25,7 +25,7 @@ OUTPUT_FIELDS = textvec.OUTPUT_FIELDS   # command and the model's state fields
 
 # One-line changes a port could plausibly get wrong: (file, original text, broken text).
 ROUNDING = {
-    "demod_half_dropped": ("step.c", "s->acc_vq += (v * cs + half) >> ds;", "s->acc_vq += (v * cs) >> ds;"),
+    "demod_half_dropped": ("step.c", "s->acc_vq += ((v * cs) + half) >> ds;", "s->acc_vq += (v * cs) >> ds;"),
     "safe_round_truncates": ("fixed.h", "(x >> s) + ((x >> (s - 1u)) & 1)", "(x >> s) + ((x >> (s - 1u)) & 0)"),
 }
 CONSTANT = {

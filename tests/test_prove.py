@@ -51,7 +51,7 @@ def test_the_shipped_scenarios_and_the_default_config_prove(scenario):
 PLANTED = [
     # Demodulation shift quartered: 4095 * 32767 >> 1 (default ds 4 -> 1) is 67 092 832, and 256 of
     # them (one window) reach 1.7e10 > 2**31 - 1: the accumulator's int32 sum overflows.
-    ("step.c", "s->acc_vi += (v * sn + half) >> ds;", "s->acc_vi += (v * sn + half) >> (ds >> 2);"),
+    ("step.c", "s->acc_vi += ((v * sn) + half) >> ds;", "s->acc_vi += ((v * sn) + half) >> (ds >> 2);"),
     # The proportional product left in int32: kp = r_max_q * kc_q >> r_frac = 99 297 * 108 134 >> 16
     # = 163 838, the error up to the period's drop at r_max_q and a full period of code 4095:
     # (99 297 * 32 * 4095 >> 13) * corr_gain_q 65 536 >> 20 = 99 273; 163 838 * 99 273 = 1.6e10.
