@@ -96,7 +96,7 @@ def run_cpu(cpu, opt, cfg, out_dir):
             "stack_static": stack_static, "stack_chain": chain, "stack_unknown": unknown,
             "stack_measured": (emu.stack_high_water() + 3) & ~3,
             "status_last": s.status, "r_est_last": s.r_est,
-            "mismatch": mismatch or isr.pop("mismatch"), "samples": n, **isr}
+            "samples": n, **isr, "mismatch": mismatch or isr["mismatch"]}
 
 
 def profile_lines(cpu="m4", opt="-O2", cfg=None, windows=8):

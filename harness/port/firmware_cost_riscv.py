@@ -98,7 +98,8 @@ def run_rv32(opt, cfg, out_dir, input_run, adversarial_inputs, windows):
         window_end.append(s.windows != windows)
     adversarial = [checked_step(n + k, v, i)[1] for k, (v, i) in enumerate(adversarial_inputs(p))]
     isr = isr_run(emu, STATE_ADDR, pa, cfg, p, windows)
-    mismatch = mismatch or isr.pop("mismatch")
+    isr_mismatch = isr.pop("mismatch")
+    mismatch = mismatch or isr_mismatch
     objects, linked, lib = _code_bytes(elf, objs)
     ordinary = [c for c, end in zip(counts, window_end) if not end]
     stack, chain, unknown = worst_stack(objs)
