@@ -38,8 +38,8 @@ MUTANTS = {
         KILLERS + "::test_an_open_cable_reads_low_swing_from_its_first_whole_window"),
     "step_detector_4x_less_sensitive": (
         "algo/batch.py",
-        "        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > thr)",
-        "        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > 4 * thr)",
+        "        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > s.step_thr[k])",
+        "        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > 4 * s.step_thr[k])",
         KILLERS + "::test_a_load_step_twice_the_detector_threshold_reads_transient"),
     "esr_allowance_zero": (
         "algo/params.py",
