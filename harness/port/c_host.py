@@ -41,16 +41,17 @@ def vector_text(params, vectors):
     return textvec.dumps([(params, textvec.samples(v, i)) for v, i in vectors])
 
 
-def compile_object(src, obj, flags, include):
-    """Compile one C file; return ``None`` on success, else the compiler's message."""
-    res = subprocess.run(["gcc", *flags, "-I", include, "-c", src, "-o", obj],
+def compile_object(src, obj, flags, include, prefix=()):
+    """Compile one C file (``prefix``: e.g. a nice command); return ``None`` on success, else the
+    compiler's message."""
+    res = subprocess.run([*prefix, "gcc", *flags, "-I", include, "-c", src, "-o", obj],
                          capture_output=True, text=True)
     return None if res.returncode == 0 else (res.stderr or res.stdout)
 
 
-def link(objs, exe, flags):
+def link(objs, exe, flags, prefix=()):
     """Link objects into ``exe``; return ``None`` on success, else the linker's message."""
-    res = subprocess.run(["gcc", *flags, *objs, "-o", exe], capture_output=True, text=True)
+    res = subprocess.run([*prefix, "gcc", *flags, *objs, "-o", exe], capture_output=True, text=True)
     return None if res.returncode == 0 else (res.stderr or res.stdout)
 
 
@@ -64,8 +65,7 @@ def build_driver(out_dir, flags, src_dir=None):
     objs = []
     for name in (DRIVER, *algo_sources()):
         obj = os.path.join(out_dir, os.path.basename(name)[:-2] + ".o")
-        err = compile_object(os.path.join(src_dir, name) if name != DRIVER else
-                             os.path.join(c_ref_dir(), DRIVER), obj, flags, src_dir)
+        err = compile_object(os.path.join(src_dir, name), obj, flags, src_dir)
         if err:
             raise RuntimeError(f"{name}: does not compile: {err.strip()[:400]}")
         objs.append(obj)
@@ -76,13 +76,13 @@ def build_driver(out_dir, flags, src_dir=None):
     return exe
 
 
-def replay(exe, text_path, cwd=None):
+def replay(exe, text_path, cwd=None, prefix=()):
     """Run the driver on a vector text file; return ``(exit status, stdout bytes)``.
 
     A run over RUN_TIMEOUT_S returns status None.
     """
     try:
-        res = subprocess.run([exe, text_path], capture_output=True, timeout=RUN_TIMEOUT_S, cwd=cwd)
+        res = subprocess.run([*prefix, exe, text_path], capture_output=True, timeout=RUN_TIMEOUT_S, cwd=cwd)
     except subprocess.TimeoutExpired:
         return None, b""
     return res.returncode, res.stdout
