@@ -26,11 +26,14 @@ UNREACHABLE_LIST = os.path.join("tools", "unreachable_branches.tsv")
 class Coverage:
     """Branch counts ``{(file, line, branch): times taken}``, the source lines, the reviewed list.
 
-    ``unreachable`` maps a key to its reason; ``lines`` holds each firmware file's lines.
+    ``unreachable`` maps a key to its reason; ``lines`` holds each firmware file's lines;
+    ``listed_taken`` the listed branches these vectors take all the same (other params can
+    reach what the shipped ones cannot): counted as taken, shown for review.
     """
     counts: dict
     lines: dict
     unreachable: dict
+    listed_taken: list = dataclasses.field(default_factory=list)
 
     def untaken(self, reachable_only=True):
         """Keys of branches never taken, sorted (by default without the listed unreachable ones)."""
@@ -57,10 +60,13 @@ class Coverage:
 
     def summary(self):
         """The figures a provenance note records."""
+        kinds = [why.split(":", 1)[0] for why in self.unreachable.values()]
         return {"branches": len(self.counts), "taken": sum(n > 0 for n in self.counts.values()),
-                "unreachable": len(self.unreachable), "all_percent": self.all_percent(),
+                "unreachable": len(self.unreachable), "unreachable_dead": kinds.count("dead"),
+                "unreachable_size": kinds.count("size"), "all_percent": self.all_percent(),
                 "reachable_percent": self.reachable_percent(),
-                "untaken_reachable": [f"{f}:{line}" for f, line, _ in self.untaken()]}
+                "untaken_reachable": [f"{f}:{line}" for f, line, _ in self.untaken()],
+                "listed_but_taken": [f"{f}:{line}" for f, line, _ in self.listed_taken]}
 
 
 def firmware_files(src_dir):
@@ -145,13 +151,14 @@ def measure(params, vectors, src_dir=None, unreachable_path=None):
             raise RuntimeError(f"the coverage build's replay exited with {status}")
         counts = _gcov_counts(tmp, src_dir)
     lines = read_lines(src_dir)
-    dead = read_unreachable(src_dir, lines, unreachable_path)
-    stale = [k for k in dead if counts.get(k, 0) > 0 or k not in counts]
-    if stale:
-        f, line, b = stale[0]
-        raise InputError(f"{UNREACHABLE_LIST}: {f}:{line} branch {b} is listed unreachable but is "
-                         f"{'taken' if counts.get(stale[0]) else 'not a branch'}; fix the list")
-    return Coverage(counts, lines, dead)
+    listed = read_unreachable(src_dir, lines, unreachable_path)
+    missing = [k for k in listed if k not in counts]
+    if missing:
+        f, line, b = missing[0]
+        raise InputError(f"{UNREACHABLE_LIST}: {f}:{line} has no branch {b}; regenerate the list "
+                         f"(python -m harness.port.c_coverage)")
+    dead = {k: why for k, why in listed.items() if counts[k] == 0}
+    return Coverage(counts, lines, dead, sorted(k for k in listed if counts[k] > 0))
 
 
 def report(cov):
@@ -165,6 +172,8 @@ def report(cov):
         out.append("untaken\t" + tsv_line(cov, key, "REASON?"))
     for key, reason in sorted(cov.unreachable.items()):
         out.append("listed\t" + tsv_line(cov, key, reason))
+    for key in cov.listed_taken:
+        out.append("listed but taken (review)\t" + tsv_line(cov, key, ""))
     return "\n".join(out)
 
 

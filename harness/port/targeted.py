@@ -12,6 +12,11 @@ import numpy as np
 
 #: Current level of the targeted windows, as a fraction of adc_max.
 I_LEVEL = 0.5
+#: In-phase ratio (share of r_max) and current level (share of adc_max) of the ringing
+#: correction, and the ratio of the settled one under the ceiling.
+RING_R, CEILING_R = 0.3, 0.275
+#: Current levels (shares of adc_max) the ring-guard vector tries, in order.
+RING_LEVELS = tuple(0.2 + 0.01 * k for k in range(20))
 #: Current sine amplitude, as a multiple of the smallest swing the classifier accepts.
 SWING_MARGIN = 4.0
 
@@ -63,3 +68,115 @@ class Builder:
             self.v[-1][-offset_from_end] = v
         if i is not None:
             self.i[-1][-offset_from_end] = i
+
+
+def _top(p, pert):
+    """The correction's ceiling (Q corr_frac) with the perturbation at ``pert`` (ld_corr_ceiling)."""
+    return min(max(p.cmd_max - p.target_code - pert, 0) << p.corr_frac, p.corr_max_q)
+
+
+def _level_for(p, target_q, r):
+    """Current level (codes) whose period drop at in-phase ratio ``r`` is ``target_q`` (Q corr_frac)."""
+    return target_q * (1 << (24 - p.corr_frac)) / (r * 256 * p.corr_gain_q)
+
+
+def estimate_jump(p):
+    """A valid window at a tenth of r_max, then valid windows near r_max: the second is further
+    than r_step_max from the first and replaces it (valid_run stays 1), the third confirms it."""
+    b = Builder(p)
+    r_max = p.r_max_q / (1 << p.r_frac)
+    b.windows(1, 0.1 * r_max)
+    b.windows(3, 0.9 * r_max)
+    return b
+
+
+def zero_resistance(p):
+    """A flat voltage under a current sine: r_raw 0, a valid estimate of 0, the correction
+    running with the estimate at (not above) the ESR allowance."""
+    b = Builder(p)
+    b.windows(4, 0.0)
+    return b
+
+
+def valid_run_saturates(p):
+    """Valid windows at a steady quarter of r_max until valid_run saturates at 255 and beyond."""
+    b = Builder(p)
+    b.windows(258, 0.25 * p.r_max_q / (1 << p.r_frac), i0=p.adc_max / 4)
+    return b
+
+
+def ring_guard(p):
+    """Three valid windows at about a third of r_max, whose correction rings (kp + ki above 1),
+    then a period slightly low, one at current 0 and one at three times the level: two growing
+    reversals in a row trip the ring guard (kp_off 2) and the proportional part stays off for
+    the rest of that (clipped) window; a valid window after it turns it back on. Where the
+    ringing stands after three windows depends on the params, so the first of RING_LEVELS that
+    trips the guard in the model is kept (the last one if none does)."""
+    from algo import step as model
+    r = RING_R * p.r_max_q / (1 << p.r_frac)
+    for share in RING_LEVELS:
+        b, level = Builder(p), share * p.adc_max
+        b.windows(3, r, i0=level)
+        b.windows(1, r, periods=[0.8 * level, 0.0, 3.0 * level] + [level] * 5)
+        b.windows(2, r, i0=level)
+        s = model.init(p)
+        if any(model.step(p, s, int(v), int(i)) is not None and s.kp_off == 2 for v, i in zip(*b.codes())):
+            break
+    return b
+
+
+def ceiling_drops(p):
+    """The correction settled between the ceiling with the perturbation at pert_min and at
+    pert_max: four windows with one current code at adc_max halve the perturbation to its floor
+    (raising the ceiling), a valid window sets it back to pert_max (the ceiling falls below the
+    integral), then the current falls a little: the output is above the ceiling with the error
+    negative, and the integral moves."""
+    b = Builder(p)
+    r = CEILING_R * p.r_max_q / (1 << p.r_frac)
+    level = _level_for(p, (_top(p, p.pert_min) + _top(p, p.pert_max)) / 2, r)
+    b.windows(3, r, i0=level)
+    for _ in range(4):
+        b.windows(1, r, i0=level)
+        b.poke(b.window // 2, i=p.adc_max)
+    b.windows(1, r, i0=level)
+    b.windows(1, r, i0=0.99 * level)
+    return b
+
+
+def rail_combinations(p):
+    """Valid windows, then one window per rail combination of the current: at 0 only, at adc_max
+    only (both hold the estimate), at both (a fault window), and the voltage at adc_max with
+    each (fault windows); a valid window between each."""
+    b = Builder(p)
+    b.windows(2, 0.25 * p.r_max_q / (1 << p.r_frac))
+    for v, i in ((None, [0]), (None, [p.adc_max]), (None, [0, p.adc_max]), (p.adc_max, [0]),
+                 (p.adc_max, [p.adc_max])):
+        b.windows(1, 0.25 * p.r_max_q / (1 << p.r_frac))
+        for k, code in enumerate(i):
+            b.poke(b.window // 2 - 3 * k, v=v, i=code)
+        b.windows(1, 0.25 * p.r_max_q / (1 << p.r_frac))
+    return b
+
+
+#: ``(vector name, builder, one-line description)`` of every targeted vector, in order.
+TARGETED = [
+    ("estimate_jump", estimate_jump, "open loop: a valid window, then ones further than r_step_max "
+                                     "from it (replaced, then confirmed)"),
+    ("zero_resistance", zero_resistance, "open loop: flat voltage under a current sine (estimate 0)"),
+    ("valid_run_saturates", valid_run_saturates, "open loop: 258 valid windows (valid_run saturates)"),
+    ("ring_guard", ring_guard, "open loop: a ringing correction, two growing reversals (P off), "
+                               "then valid windows"),
+    ("ceiling_drops", ceiling_drops, "open loop: the correction's ceiling falls below its integral "
+                                     "with the error negative"),
+    ("rail_combinations", rail_combinations, "open loop: each rail combination of one window, "
+                                             "between valid windows"),
+]
+
+
+def targeted(p):
+    """``(name, description, adc_v, adc_i)`` of every targeted vector for params ``p``."""
+    out = []
+    for name, build, text in TARGETED:
+        v, i = build(p).codes()
+        out.append((name, text, v, i))
+    return out
