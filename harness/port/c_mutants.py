@@ -25,6 +25,8 @@ FLAGS = ("-std=c99", "-O1", "-w")
 NICE = ("nice", "-n", "10")
 #: The reviewed list of equivalent mutants (tab-separated: file, line, mutation, source text, reason).
 EQUIVALENT_LIST = os.path.join("tools", "equivalent_mutants.tsv")
+#: A reason in that list starting with this marks a mutant reachable only by a vector too long to
+#: ship: not equivalent, counted apart ("size: ...").
 #: Functions and macros left alone: API metadata the replay never calls (ld_version, sizes).
 SKIP_FUNCTIONS = ("ld_version", "ld_state_size", "ld_params_size")
 #: What the replay driver calls (everything else is reached from these).
@@ -284,8 +286,9 @@ def run(params, vectors, src_dir=None, jobs=2, chosen=None, equivalent_path=None
     """Run the mutants of ``src_dir`` (default c_ref) over ``vectors`` (code-array pairs).
 
     ``chosen`` (a list of Mutant) limits the run. Returns a dict: ``results`` maps each mutant to
-    ``("caught", vector index, sample index)``, ``("survived",)``, ``("equivalent", reason)`` or
-    ``("stillborn",)``, with the counts and the wall time.
+    ``("caught", vector index, sample index)``, ``("survived",)``, ``("equivalent", reason)``,
+    ``("size", reason)`` (listed as reachable only by a vector too long to ship: not equivalent,
+    counted apart) or ``("stillborn",)``, with the counts and the wall time.
     """
     src_dir = src_dir or c_host.c_ref_dir()
     equivalent = read_equivalent(src_dir, equivalent_path)
@@ -325,20 +328,22 @@ def run(params, vectors, src_dir=None, jobs=2, chosen=None, equivalent_path=None
                 elif m.function in dead:
                     results[m] = ("equivalent", f"in {m.function}, which no firmware code uses")
                 elif m.key() in equivalent:
-                    results[m] = ("equivalent", equivalent[m.key()])
+                    why = equivalent[m.key()]
+                    results[m] = ("size" if why.startswith("size:") else "equivalent", why)
                 else:
                     results[m] = ("survived",)
     kinds = [r[0] for r in results.values()]
     stale = [k for k in equivalent if any(m.key() == k and results[m][0] == "caught" for m in results)]
     return {"results": results, "mutants": len(results) - kinds.count("stillborn"),
             "caught": kinds.count("caught"), "equivalent": kinds.count("equivalent"),
-            "survived": kinds.count("survived"), "stillborn": kinds.count("stillborn"),
+            "survived": kinds.count("survived"), "size": kinds.count("size"),
+            "stillborn": kinds.count("stillborn"),
             "listed_but_caught": stale, "wall_s": round(time.monotonic() - started, 1)}
 
 
 def summary(outcome):
-    """The figures a provenance note records."""
-    return {k: outcome[k] for k in ("mutants", "caught", "equivalent", "survived", "stillborn", "wall_s")}
+    """The figures a provenance note records (not the wall time: a rerun writes the same note)."""
+    return {k: outcome[k] for k in ("mutants", "caught", "equivalent", "size", "survived", "stillborn")}
 
 
 def main(argv=None):
@@ -361,7 +366,7 @@ def main(argv=None):
                 with open(os.path.join(src, m.file)) as f:
                     lines[m.file] = f.read().splitlines()
             print(f"survived\t{m.file}\t{m.line}\t{m.what}\t{lines[m.file][m.line - 1].strip()}\tREASON?")
-    print(summary(out))
+    print({**summary(out), "wall_s": out["wall_s"]})
     return 0
 
 

@@ -15,6 +15,8 @@ I_LEVEL = 0.5
 #: In-phase ratio (share of r_max) and current level (share of adc_max) of the ringing
 #: correction, and the ratio of the settled one under the ceiling.
 RING_R, CEILING_R = 0.3, 0.275
+#: Period current levels of the ring-guard trip, as multiples of the steady level.
+RING_PATTERN = (0.7, 0.2, 2.5)
 #: Current levels (shares of adc_max) the ring-guard vector tries, in order.
 RING_LEVELS = tuple(0.2 + 0.01 * k for k in range(20))
 #: Current sine amplitude, as a multiple of the smallest swing the classifier accepts.
@@ -41,11 +43,12 @@ class Builder:
         self.v.append(np.clip(np.rint(v), 0, top).astype(np.int64))
         self.i.append(np.clip(np.rint(i), 0, top).astype(np.int64))
 
-    def windows(self, count, r, i0=None, amp=None, v0=None, periods=None):
-        """``count`` windows of current ``i0 + amp sin`` and voltage ``v0 + r amp sin``.
+    def windows(self, count, r, i0=None, amp=None, v0=None, periods=None, x=0.0, lead=0):
+        """``count`` windows of current ``i0 + amp sin`` and voltage ``v0 + amp (r sin + x cos)``.
 
-        ``r`` is the in-phase ratio, V-codes per I-code (r_raw = r 2**r_frac); ``periods``
-        optionally gives each period's current level instead of ``i0`` (a list, cycled).
+        ``r`` and ``x`` are the in-phase and quadrature ratios, V-codes per I-code (r_raw =
+        r 2**r_frac); ``periods`` optionally gives each period's current level instead of ``i0``
+        (a list, cycled); ``lead`` shifts both sines by that many samples against the table.
         """
         top = self.p.adc_max
         i0 = I_LEVEL * top if i0 is None else i0
@@ -53,11 +56,12 @@ class Builder:
         v0 = 0.5 * top if v0 is None else v0
         n = count * self.window
         t = np.arange(n)
-        s = self.sin[t % self.period]
+        s = self.sin[(t + lead) % self.period]
+        c = self.sin[(t + lead + self.period // 4) % self.period]
         level = np.full(n, float(i0))
         if periods is not None:
             level = np.asarray(periods, dtype=float)[(t // self.period) % len(periods)]
-        self.add(v0 + r * amp * s, level + amp * s)
+        self.add(v0 + amp * (r * s + x * c), level + amp * s)
 
     def codes(self):
         return np.concatenate(self.v), np.concatenate(self.i)
@@ -107,9 +111,9 @@ def valid_run_saturates(p):
 
 def ring_guard(p):
     """Three valid windows at about a third of r_max, whose correction rings (kp + ki above 1),
-    then a period slightly low, one at current 0 and one at three times the level: two growing
-    reversals in a row trip the ring guard (kp_off 2) and the proportional part stays off for
-    the rest of that (clipped) window; a valid window after it turns it back on. Where the
+    then periods at RING_PATTERN times the level (a little low, far low, far high): two growing
+    reversals in a row trip the ring guard (kp_off 2) from a correction above 0, and the
+    proportional part stays off for the rest of that window; a valid window turns it back on. Where the
     ringing stands after three windows depends on the params, so the first of RING_LEVELS that
     trips the guard in the model is kept (the last one if none does)."""
     from algo import step as model
@@ -117,7 +121,7 @@ def ring_guard(p):
     for share in RING_LEVELS:
         b, level = Builder(p), share * p.adc_max
         b.windows(3, r, i0=level)
-        b.windows(1, r, periods=[0.8 * level, 0.0, 3.0 * level] + [level] * 5)
+        b.windows(1, r, periods=[k * level for k in RING_PATTERN] + [level] * 5)
         b.windows(2, r, i0=level)
         s = model.init(p)
         if any(model.step(p, s, int(v), int(i)) is not None and s.kp_off == 2 for v, i in zip(*b.codes())):
@@ -158,6 +162,32 @@ def rail_combinations(p):
     return b
 
 
+def reactive_edge(p):
+    """Current sines an eighth of a period early (both demodulation parts equal) under a
+    voltage with a small in-phase and a large quadrature part: at 0.7 x_max (valid) and at
+    1.1 x_max (reactive), which tests the quadrature limit's scale and its cross product."""
+    b = Builder(p)
+    x_max = p.x_max_q / (1 << p.r_frac)
+    lead, amp = b.period // 8, 3 * b.min_amp()
+    for x in (0.7 * x_max, 1.1 * x_max, 0.7 * x_max):
+        b.windows(1, 0.1 * x_max, x=x, lead=lead, amp=amp)
+    return b
+
+
+def step_threshold(p):
+    """Flat current whose period sums differ by exactly step_min, then by step_min + 1: the
+    load-step test is strict (no swing yet, so the threshold is the floor step_min)."""
+    b = Builder(p)
+    n, top = b.period, p.adc_max
+    base = top // 4
+    for extra in (0, p.step_min, 0, p.step_min + 1, 0):
+        each, rest = divmod(extra, n)
+        level = np.full(n, base + each)
+        level[:rest] += 1
+        b.add(np.full(n, top // 2), level)
+    return b
+
+
 #: ``(vector name, builder, one-line description)`` of every targeted vector, in order.
 TARGETED = [
     ("estimate_jump", estimate_jump, "open loop: a valid window, then ones further than r_step_max "
@@ -170,6 +200,10 @@ TARGETED = [
                                      "with the error negative"),
     ("rail_combinations", rail_combinations, "open loop: each rail combination of one window, "
                                              "between valid windows"),
+    ("reactive_edge", reactive_edge, "open loop: quadrature voltage at 0.7 and 1.1 x_max, current "
+                                     "an eighth of a period early"),
+    ("step_threshold", step_threshold, "open loop: period sums differing by exactly step_min, then "
+                                       "step_min + 1"),
 ]
 
 

@@ -24,6 +24,8 @@ def _probe(name):
     gcc = shutil.which("gcc")
     if name == "gcc":
         return None if gcc else "gcc not found on PATH"
+    if name == "gcov":
+        return None if gcc and shutil.which("gcov") else "gcc or gcov not found on PATH (Debian package gcc)"
     flags = {"gcc-m32": ["-m32"],
              "gcc-sanitizers": ["-fsanitize=undefined,address", "-fno-sanitize-recover=all"]}
     if name not in flags:
@@ -65,7 +67,7 @@ def require_tool(name):
     Parameters
     ----------
     name : str
-        ``"gcc"``, ``"gcc-m32"`` (32-bit multilib), ``"gcc-sanitizers"`` (UBSan + ASan) or
+        ``"gcc"``, ``"gcov"`` (gcc with its coverage tool), ``"gcc-m32"`` (32-bit multilib), ``"gcc-sanitizers"`` (UBSan + ASan) or
         ``"ngspice"`` (batch-mode circuit simulator).
     """
     skip_or_fail(_probe(name))
