@@ -8,6 +8,9 @@ tripping and staying tripped, the correction's ceiling falling below its integra
 window per channel-rail combination of the fault counter. Everything follows from the params
 (no randomness).
 """
+import copy
+import itertools
+
 import numpy as np
 
 #: Current level of the targeted windows, as a fraction of adc_max.
@@ -19,6 +22,8 @@ RING_R, CEILING_R = 0.3, 0.275
 RING_PATTERN = (0.7, 0.2, 2.5)
 #: Current levels (shares of adc_max) the ring-guard vector tries, in order.
 RING_LEVELS = tuple(0.2 + 0.01 * k for k in range(20))
+#: Period level dithers (fractions of a code per period) the exact-swing search tries, in order.
+DITHERS = (0.37, 0.41, 0.53, 0.29, 0.61, 0.17, 0.73, 0.11, 0.83, 0.07)
 #: Current sine amplitude, as a multiple of the smallest swing the classifier accepts.
 SWING_MARGIN = 4.0
 
@@ -188,6 +193,145 @@ def step_threshold(p):
     return b
 
 
+def _run(p, s, b):
+    """The model state ``s`` (changed in place) after the codes of builder ``b``."""
+    from algo import step as model
+    for v, i in zip(*(c.tolist() for c in b.codes())):
+        model.step(p, s, v, i)
+    return s
+
+
+def _first(p, prefix, make, candidates, ok):
+    """The first of ``candidates`` whose window (``make(candidate)``, a Builder) leaves the
+    model, run from the end of ``prefix`` (a Builder), in a state ``ok(state)`` accepts; the last
+    candidate if none does (the vector is then still well-formed, only the aim is missed)."""
+    from algo import step as model
+    start = _run(p, model.init(p), prefix) if prefix.v else model.init(p)
+    for c in candidates:
+        b = make(c)
+        if ok(_run(p, copy.deepcopy(start), b)):
+            return b
+    return b
+
+
+def _exact_candidates(b):
+    """Window settings to search for an exact value: current amplitude, voltage offset fraction,
+    a small change of the ratio (``(amp, frac, tweak)``), in a fixed order."""
+    amps = [round(b.min_amp() * 13) + k for k in range(24)]
+    return itertools.product(amps, (0.0, 0.2, 0.4, 0.6, 0.8), (-2, -1, 0, 1, 2))
+
+
+def _swing(p, i):
+    """The detrended current demodulation magnitude m of one phase-aligned window of codes ``i``
+    (what ld_classify compares with swing_min), from the model's own detrend."""
+    from algo.estimator import detrend
+    b = Builder(p)
+    t = np.arange(len(i))
+    tab = np.array(p.ref_tab[:b.period], dtype=np.int64)
+    sn, cs = tab[t % b.period], tab[(t + b.period // 4) % b.period]
+    half, ds = (1 << p.demod_shift) >> 1, p.demod_shift
+    di = int(i.sum() - 2 * i[:len(i) // 2].sum())
+    return max(abs(detrend(int(((i * sn + half) >> ds).sum()), di, p.kt_s_q)),
+               abs(detrend(int(((i * cs + half) >> ds).sum()), di, p.kt_c_q)))
+
+
+def _nudge(p, i, target):
+    """Codes ``i`` changed one code at a time, greedily, toward a magnitude of exactly ``target``;
+    then one pair of changes if that is one step short. None if neither reaches it."""
+    i = i.copy()
+    moves = [(k, dv) for k in range(len(i)) for dv in (1, -1)]
+
+    def after(changes):
+        j = i.copy()
+        for k, dv in changes:
+            j[k] += dv
+        return _swing(p, j) - target
+
+    while True:
+        d = _swing(p, i) - target
+        if d == 0:
+            return i
+        best = min(moves, key=lambda mv: abs(after([mv])))
+        if abs(after([best])) >= abs(d):
+            break
+        i[best[0]] += best[1]
+    single = {}
+    for mv in moves:
+        single.setdefault(after([mv]) - d, []).append(mv)
+    for delta, mvs in single.items():
+        for a in mvs:
+            for b in single.get(-d - delta, []):
+                if a[0] != b[0] and after([a, b]) == 0:
+                    i[a[0]] += a[1]
+                    i[b[0]] += b[1]
+                    return i
+    return None
+
+
+def swing_at_floor(p):
+    """One valid window whose current swing equals swing_min exactly: a sine just above the floor
+    with the period levels dithered (so each period rounds differently), nudged a code at a time.
+    Tries dithers and amplitudes in a fixed order; the first the model accepts as valid with
+    swing == swing_min is returned as ``(adc_v, adc_i)``."""
+    from algo import step as model
+    b = Builder(p)
+    n = b.window
+    t = np.arange(n)
+    s = b.sin[t % b.period]
+    amp = b.min_amp() / SWING_MARGIN
+    r = 0.2 * p.r_max_q / (1 << p.r_frac)
+    v = np.rint(p.adc_max // 2 + r * amp * s).astype(np.int64)
+    for dither, scale in itertools.product(DITHERS, (1.01, 1.02, 1.005)):
+        level = p.adc_max // 2 + ((t // b.period) * dither) % 1
+        i = _nudge(p, np.rint(level + scale * amp * s).astype(np.int64), p.swing_min)
+        if i is None:
+            continue
+        st = model.init(p)
+        for a, c in zip(v.tolist(), i.tolist()):
+            model.step(p, st, a, c)
+        if st.status == 1 and st.swing == p.swing_min:
+            return v, i
+    return v, np.rint(p.adc_max // 2 + amp * s).astype(np.int64)
+
+
+def exact_limits(p):
+    """Valid windows whose raw estimate equals r_max_q exactly (a real part at the limit is not
+    above it), then one exactly r_step_max_q above the first after it (within the step, so it
+    is averaged in, not taken as it is), then one whose current swing equals swing_min exactly
+    (enough swing). Each is found by a search on the model over amplitudes, offsets and small
+    changes of the ratio, in a fixed order."""
+    b = Builder(p)
+    r_max = p.r_max_q / (1 << p.r_frac)
+
+    def window(r, amp_scale=1.0, extra=None):
+        def make(c):
+            amp, frac, tweak = c
+            w = Builder(p)
+            w.windows(1, r * (1 + 3e-4 * tweak), amp=amp * amp_scale, v0=p.adc_max // 2 + frac,
+                      **(extra or {}))
+            return w
+        return make
+
+    def ok_raw(want):
+        return lambda s: s.r_raw == want and s.status == 1
+
+    first = _first(p, b, window(r_max), _exact_candidates(b), ok_raw(p.r_max_q))
+    b.v += first.v
+    b.i += first.i
+    low = Builder(p)
+    low.windows(1, 0.5 * r_max)
+    start = _run(p, copy.deepcopy(_run(p, __import__("algo.step", fromlist=["init"]).init(p), b)), low)
+    b.v += low.v
+    b.i += low.i
+    step = _first(p, b, window(start.r_raw / (1 << p.r_frac) + p.r_step_max_q / (1 << p.r_frac)),
+                  _exact_candidates(b), ok_raw(start.r_raw + p.r_step_max_q))
+    b.v += step.v
+    b.i += step.i
+
+    b.add(*swing_at_floor(p))
+    return b
+
+
 #: ``(vector name, builder, one-line description)`` of every targeted vector, in order.
 TARGETED = [
     ("estimate_jump", estimate_jump, "open loop: a valid window, then ones further than r_step_max "
@@ -202,6 +346,8 @@ TARGETED = [
                                              "between valid windows"),
     ("reactive_edge", reactive_edge, "open loop: quadrature voltage at 0.7 and 1.1 x_max, current "
                                      "an eighth of a period early"),
+    ("exact_limits", exact_limits, "open loop: raw estimate exactly r_max, a step exactly "
+                                   "r_step_max, a current swing exactly swing_min"),
     ("step_threshold", step_threshold, "open loop: period sums differing by exactly step_min, then "
                                        "step_min + 1"),
 ]
