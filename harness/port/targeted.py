@@ -20,6 +20,11 @@ I_LEVEL = 0.5
 RING_R, CEILING_R = 0.3, 0.275
 #: Period current levels of the ring-guard trip, as multiples of the steady level.
 RING_PATTERN = (0.7, 0.2, 2.5)
+#: First steps (Q corr_frac) of the two ring-guard edge cases: one below half the size floor,
+#: one above it (ring_edges).
+RING_EDGES = (60, 130)
+#: Largest extra codes (summed over a period) the ring-edge search tries either way.
+EXTRA_RANGE = 20000
 #: Current levels (shares of adc_max) the ring-guard vector tries, in order.
 RING_LEVELS = tuple(0.2 + 0.01 * k for k in range(20))
 #: Period level dithers (fractions of a code per period) the exact-swing search tries, in order.
@@ -332,6 +337,62 @@ def exact_limits(p):
     return b
 
 
+def _tuned_period(p, b, state, level, amp, r, extra):
+    """Codes of one period at ``level`` with ``extra`` codes spread over its samples, and the model
+    state after it (``state`` is left as it was)."""
+    n = b.period
+    i = np.rint(level + amp * b.sin).astype(np.int64)
+    q, rem = divmod(abs(extra), n)
+    sign = 1 if extra >= 0 else -1
+    i += sign * q
+    i[:rem] += sign
+    v = np.rint(p.adc_max // 2 + r * amp * b.sin).astype(np.int64)
+    w = Builder(p)
+    w.add(v, np.clip(i, 1, p.adc_max - 1))
+    return w, _run(p, copy.deepcopy(state), w)
+
+
+def _period_for(p, b, state, level, amp, r, want):
+    """The period (see _tuned_period) whose correction step du is exactly ``want``: a bisection on
+    the extra codes (du grows with the current), then a scan around it. None if none is found."""
+    lo, hi = -EXTRA_RANGE, EXTRA_RANGE
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        lo, hi = (mid, hi) if _tuned_period(p, b, state, level, amp, r, mid)[1].du_prev < want else (lo, mid)
+    for extra in range(hi - 30, hi + 30):
+        w, after = _tuned_period(p, b, state, level, amp, r, extra)
+        if after.du_prev == want:
+            return w, after
+    return None
+
+
+def ring_edges(p):
+    """The ring guard's growth test at its two edges: from a ringing correction, a step of
+    RING_EDGES[0] then its reversal to exactly -(corr_max_q >> 6) (the size floor: not above
+    it), and a step of RING_EDGES[1] then exactly twice it reversed (not more than double).
+    Neither counts as a growing reversal. Each period's current is found by a search on the
+    model; a pair not found is left out."""
+    from algo import step as model
+    b = Builder(p)
+    r, level, amp = RING_R * p.r_max_q / (1 << p.r_frac), RING_LEVELS[0] * p.adc_max, b.min_amp()
+    b.windows(3, r, i0=level)
+    state = _run(p, model.init(p), b)
+    floor = p.corr_max_q >> 6
+    for first, second in ((RING_EDGES[0], -floor), (RING_EDGES[1], -2 * RING_EDGES[1])):
+        one = _period_for(p, b, state, level, amp, r, first)
+        two = one and _period_for(p, b, one[1], level, amp, r, second)
+        if two:
+            for w, after in (one, two):
+                b.v += w.v
+                b.i += w.i
+            state = two[1]
+    rest = b.window - sum(len(x) for x in b.v) % b.window
+    b.windows(1, r, i0=level)
+    b.v[-1], b.i[-1] = b.v[-1][:rest], b.i[-1][:rest]
+    b.windows(1, r, i0=level)
+    return b
+
+
 #: ``(vector name, builder, one-line description)`` of every targeted vector, in order.
 TARGETED = [
     ("estimate_jump", estimate_jump, "open loop: a valid window, then ones further than r_step_max "
@@ -340,6 +401,8 @@ TARGETED = [
     ("valid_run_saturates", valid_run_saturates, "open loop: 258 valid windows (valid_run saturates)"),
     ("ring_guard", ring_guard, "open loop: a ringing correction, two growing reversals (P off), "
                                "then valid windows"),
+    ("ring_edges", ring_edges, "open loop: correction steps reversing to exactly the ring guard's size "
+                               "floor and to exactly twice the step before"),
     ("ceiling_drops", ceiling_drops, "open loop: the correction's ceiling falls below its integral "
                                      "with the error negative"),
     ("rail_combinations", rail_combinations, "open loop: each rail combination of one window, "

@@ -85,8 +85,8 @@ def _fault_variants():
 
 def vector_names():
     """Names of every vector generate() returns, in order (known before any run)."""
-    return ["normal", "load_step", *(n for n, _, _ in _fault_variants()), "long", "extreme_codes",
-            *(n for n, _, _ in TARGETED)]
+    return [*(n for n, _, _ in TARGETED), "normal", "load_step", *(n for n, _, _ in _fault_variants()),
+            "long", "extreme_codes"]
 
 
 def long_variant(scenario, long_s):
@@ -185,8 +185,9 @@ def generate(scenario, duration_s=None, long_s=None, seed=None, overrides=None):
     long_s = max(duration_s, long_duration(cfg)) if long_s is None else long_s
     variants = closed_loop_variants(scenario, duration_s) + [long_variant(scenario, long_s)]
     params = derive(cfg)
-    vectors = run_closed_loop(variants, overrides) + [extreme_codes(cfg, seed)]
-    vectors += [Vector(name, text, v, i) for name, text, v, i in targeted(params)]
+    # The short targeted vectors come first: a port that breaks what they aim at fails early.
+    vectors = [Vector(name, text, v, i) for name, text, v, i in targeted(params)]
+    vectors += run_closed_loop(variants, overrides) + [extreme_codes(cfg, seed)]
     for vec in vectors:
         vec.trace = model_trace(params, vec.adc_v, vec.adc_i)
         if vec.recorded_cmd is not None and not np.array_equal(vec.recorded_cmd, vec.trace[:, 0]):
