@@ -9,6 +9,7 @@ window per channel-rail combination of the fault counter. Everything follows fro
 (no randomness).
 """
 import copy
+import functools
 import itertools
 
 import numpy as np
@@ -113,9 +114,23 @@ def zero_resistance(p):
 
 
 def valid_run_saturates(p):
-    """Valid windows at a steady quarter of r_max until valid_run saturates at 255 and beyond."""
+    """Valid windows at about a quarter of r_max until valid_run saturates at 255 and beyond, then
+    one whose raw estimate is exactly 1 LSB above the settled estimate and one back at the old
+    value: steps that round to 0 and move by the 1-LSB minimum, up and down. The two windows
+    are a pair of _exact_candidates settings whose raw estimates differ by 1 (the first pair
+    found in the model)."""
+    from algo import step as model
+    level, r = p.adc_max / 4, 0.25 * p.r_max_q / (1 << p.r_frac)
+    make = _exact_window(p, r, level)
+    raw = {}
+    for c in _exact_candidates(Builder(p)):
+        raw.setdefault(_run(p, model.init(p), make(c)).r_raw, c)
+    low = next((x for x in sorted(raw) if x + 1 in raw), min(raw))
     b = Builder(p)
-    b.windows(258, 0.25 * p.r_max_q / (1 << p.r_frac), i0=p.adc_max / 4)
+    for c in [raw[low]] * 258 + [raw.get(low + 1, raw[low]), raw[low]]:
+        w = make(c)
+        b.v += w.v
+        b.i += w.i
     return b
 
 
@@ -219,6 +234,17 @@ def _first(p, prefix, make, candidates, ok):
     return b
 
 
+def _exact_window(p, r, i0=None):
+    """A maker of one window near in-phase ratio ``r`` (current level ``i0``) from an
+    _exact_candidates setting."""
+    def make(c):
+        amp, frac, tweak = c
+        w = Builder(p)
+        w.windows(1, r * (1 + 3e-4 * tweak), amp=amp, v0=p.adc_max // 2 + frac, i0=i0)
+        return w
+    return make
+
+
 def _exact_candidates(b):
     """Window settings to search for an exact value: current amplitude, voltage offset fraction,
     a small change of the ratio (``(amp, frac, tweak)``), in a fixed order."""
@@ -307,15 +333,7 @@ def exact_limits(p):
     changes of the ratio, in a fixed order."""
     b = Builder(p)
     r_max = p.r_max_q / (1 << p.r_frac)
-
-    def window(r, amp_scale=1.0, extra=None):
-        def make(c):
-            amp, frac, tweak = c
-            w = Builder(p)
-            w.windows(1, r * (1 + 3e-4 * tweak), amp=amp * amp_scale, v0=p.adc_max // 2 + frac,
-                      **(extra or {}))
-            return w
-        return make
+    window = functools.partial(_exact_window, p)
 
     def ok_raw(want):
         return lambda s: s.r_raw == want and s.status == 1
