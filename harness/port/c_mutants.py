@@ -29,6 +29,8 @@ EQUIVALENT_LIST = os.path.join("tools", "equivalent_mutants.tsv")
 #: ship: not equivalent, counted apart ("size: ...").
 #: Functions and macros left alone: API metadata the replay never calls (ld_version, sizes).
 SKIP_FUNCTIONS = ("ld_version", "ld_state_size", "ld_params_size")
+#: Words after which an operator is unary.
+KEYWORDS = ("return", "case", "sizeof")
 #: What the replay driver calls (everything else is reached from these).
 DRIVER_CALLS = ("ld_init", "ld_reset", "ld_step")
 SKIP_MACROS = re.compile(r"LD_VERSION_\w+|LINEDROP_\w+_H")
@@ -125,7 +127,8 @@ def _in_bodies(tokens):
 
 def _operand(prev):
     """True when a token ``prev`` ends an operand (so what follows is a binary operator)."""
-    return prev is not None and (prev[1] in ("ident", "number") or prev[2] in (")", "]"))
+    return prev is not None and ((prev[1] in ("ident", "number") and prev[2] not in KEYWORDS)
+                                 or prev[2] in (")", "]"))
 
 
 def _shift_amount(tokens, k):
@@ -322,7 +325,7 @@ def run(params, vectors, src_dir=None, jobs=2, chosen=None, equivalent_path=None
                 if st == "stillborn":
                     results[m] = ("stillborn",)
                 elif st != 0 or out != reference:
-                    line = _first_line(out, reference) if st == 0 else min(_first_line(out, reference), total - 1)
+                    line = min(_first_line(out, reference), total - 1)
                     vec = next(k for k, b in enumerate(bounds) if line < b)
                     results[m] = ("caught", vec, line - (bounds[vec - 1] if vec else 0))
                 elif m.function in dead:

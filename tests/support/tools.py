@@ -67,7 +67,8 @@ def require_tool(name):
     Parameters
     ----------
     name : str
-        ``"gcc"``, ``"gcov"`` (gcc with its coverage tool), ``"gcc-m32"`` (32-bit multilib), ``"gcc-sanitizers"`` (UBSan + ASan) or
+        ``"gcc"``, ``"gcov"`` (gcc with its coverage tool), ``"gcc-m32"`` (32-bit multilib),
+        ``"gcc-sanitizers"`` (UBSan + ASan) or
         ``"ngspice"`` (batch-mode circuit simulator).
     """
     skip_or_fail(_probe(name))
