@@ -12,8 +12,11 @@ import functools
 
 import numpy as np
 
-from harness.port.vector_builder import (Builder, exact_candidates, exact_window, first_accepted,
-                                         period_with_step, run_model, swing_at_floor)
+from algo.params import GAIN_FRAC
+from harness.port.vector_builder import (EXTRA_RANGE, Builder, exact_candidates, exact_window,
+                                         first_accepted, period_with_step, run_model, swing_at_floor,
+                                         tuned_period)
+
 
 #: In-phase ratio (share of r_max) and current level (share of adc_max) of the ringing
 #: correction, and the ratio of the settled one under the ceiling.
@@ -23,6 +26,8 @@ RING_PATTERN = (0.7, 0.2, 2.5)
 #: First steps (Q corr_frac) of the two ring-guard edge cases: one below half the size floor,
 #: one above it (ring_edges).
 RING_EDGES = (60, 130)
+#: In-phase ratio (share of r_max) and correction steps (Q corr_frac) before proportional_off's trip.
+P_OFF_R, P_OFF_STEPS = 0.6, (3000, 200, -500)
 #: Current levels (shares of adc_max) the ring-guard vector tries, in order.
 RING_LEVELS = tuple(0.2 + 0.01 * k for k in range(20))
 
@@ -102,6 +107,16 @@ def ceiling_drops(p):
     (raising the ceiling), a valid window sets it back to pert_max (the ceiling falls below the
     integral), then the current falls a little: the output is above the ceiling with the error
     negative, and the integral moves."""
+    b, r, level = _under_ceiling(p)
+    b.windows(1, r, i0=level)
+    b.windows(1, r, i0=0.99 * level)
+    return b
+
+
+def _under_ceiling(p):
+    """Three valid windows settling the correction between the ceilings at pert_max and pert_min,
+    then four with one current code at adc_max (the perturbation halves to its floor). Returns
+    the Builder, the in-phase ratio and the current level."""
     b = Builder(p)
     r = CEILING_R * p.r_max_q / (1 << p.r_frac)
     level = _level_for(p, (_top(p, p.pert_min) + _top(p, p.pert_max)) / 2, r)
@@ -109,8 +124,40 @@ def ceiling_drops(p):
     for _ in range(4):
         b.windows(1, r, i0=level)
         b.poke(b.window // 2, i=p.adc_max)
+    return b, r, level
+
+
+def ceiling_edge(p):
+    """From the settled correction of ceiling_drops, one period whose law output is exactly the
+    ceiling with the error above 1: the anti-windup holds the integral only above the ceiling,
+    so here it still moves. The period's current is found by a bisection on the model (the law's
+    output, worked from the state before and after it, grows with the current); not found, the
+    period is left at the level."""
+    from algo import step as model
+    from algo.fixed import rshift_round
+    b, r, level = _under_ceiling(p)
+    s = run_model(p, model.init(p), b)
+    kp = min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q) if s.kp_off < 2 else 0
+    top, amp = _top(p, s.pert_amp), b.min_amp()
+
+    def law(extra):
+        w, after = tuned_period(p, b, s, level, amp, r, extra)
+        e = after.corr_target - s.corr
+        return w, e, rshift_round(kp * e, GAIN_FRAC) + s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
+
+    lo, hi = -EXTRA_RANGE, EXTRA_RANGE
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        lo, hi = (mid, hi) if law(mid)[2] < top else (lo, mid)
+    hit = next((w for w, e, u in map(law, range(hi - 30, hi + 30)) if u == top and e > 1), None)
+    rest = b.window
+    if hit is not None:
+        b.v += hit.v
+        b.i += hit.i
+        rest -= b.period
     b.windows(1, r, i0=level)
-    b.windows(1, r, i0=0.99 * level)
+    b.v[-1], b.i[-1] = b.v[-1][:rest], b.i[-1][:rest]
+    b.windows(1, r, i0=level)
     return b
 
 
@@ -210,6 +257,39 @@ def ring_edges(p):
     return b
 
 
+def proportional_off(p):
+    """A large estimate (P_OFF_R of r_max) and correction steps P_OFF_STEPS found by a search on
+    the model, then two periods at nearly full-scale current: the first reverses the last step
+    by more than double and trips the ring guard, the second runs with the proportional part off
+    and an error above 2**15 (where a stray unit gain would show). Steps not found are left
+    out."""
+    from algo import step as model
+    b = Builder(p)
+    r = P_OFF_R * p.r_max_q / (1 << p.r_frac)
+    level, amp = _level_for(p, 6000, r), b.min_amp()
+    b.windows(3, r, i0=level)
+    s = run_model(p, model.init(p), b)
+    periods = []
+    for want in P_OFF_STEPS:
+        found = period_with_step(p, b, s, level, amp, r, want)
+        if found is None:
+            break
+        periods.append(found[0])
+        s = found[1]
+    full = b.period * (p.adc_max - 2 - round(level))
+    for _ in range(2):
+        w, s = tuned_period(p, b, s, level, amp, r, full)
+        periods.append(w)
+    for w in periods:
+        b.v += w.v
+        b.i += w.i
+    b.windows(1, r, i0=level)
+    rest = b.window - b.period * len(periods)
+    b.v[-1], b.i[-1] = b.v[-1][:rest], b.i[-1][:rest]
+    b.windows(1, r, i0=level)
+    return b
+
+
 #: ``(vector name, builder, one-line description)`` of every targeted vector, in order.
 TARGETED = [
     ("estimate_jump", estimate_jump, "open loop: a valid window, then ones further than r_step_max "
@@ -220,8 +300,12 @@ TARGETED = [
                                "then valid windows"),
     ("ring_edges", ring_edges, "open loop: correction steps reversing to exactly the ring guard's size "
                                "floor and to exactly twice the step before"),
+    ("proportional_off", proportional_off, "open loop: a large estimate, the ring guard tripped, "
+                                           "then an error above 2**15 with the proportional part off"),
     ("ceiling_drops", ceiling_drops, "open loop: the correction's ceiling falls below its integral "
                                      "with the error negative"),
+    ("ceiling_edge", ceiling_edge, "open loop: the correction law's output exactly at the ceiling "
+                                   "with the error positive"),
     ("rail_combinations", rail_combinations, "open loop: each rail combination of one window, "
                                              "between valid windows"),
     ("reactive_edge", reactive_edge, "open loop: quadrature voltage at 0.7 and 1.1 x_max, current "
