@@ -1,3 +1,3 @@
 """linedrop algorithm: fixed-point model of perturb / measure / correct, and its float ideal twin."""
 
-VERSION = "0.4.2"
+VERSION = "0.5.0"

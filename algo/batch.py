@@ -95,7 +95,8 @@ class BatchModel:
         for name in STATE_FIELDS:
             if name not in ("r_est", "windows"):
                 getattr(s, name)[mask] = 0
-        s.pert_amp[mask] = p.pert_min[mask]
+        s.pert_amp[mask] = s.pert_next[mask] = p.pert_min[mask]
+        s.step_thr[mask] = s.thr_next[mask] = self._threshold(np.zeros(self.n, np.int64), self._idx)[mask]
         s.bad_windows[mask] = p.fault_windows[mask]
         s.cmd_base[mask] = p.target_code[mask]
         s.cmd[mask] = self._command()[mask]
@@ -147,46 +148,51 @@ class BatchModel:
         s = self.s
         self._period_end(k)
         self._correct(k)
-        s.psum[k] = 0
-        s.i_zero[k] = 0
         count = s.count[k]
         h = k[count == self._half_window[k]]
         if h.size:
             s.isum_h[h], s.vsum_h[h] = s.isum[h], s.vsum[h]
         w = k[count == self.window[k]]
         if w.size:
-            self._window_end(w)
+            self._window_handover(w)
+            self._window_work(w)
         p = self.p
         top = np.maximum(p.target_code[k], p.cmd_max[k] - s.pert_amp[k])
         s.cmd_base[k] = np.minimum(p.target_code[k] + _rsr(s.corr[k], p.corr_frac[k]), top)
 
+    def _threshold(self, swing, k):
+        """algo.estimator.step_threshold for instances ``k``."""
+        p = self.p
+        return _sat32(np.maximum(p.step_min[k], _rsr(swing * p.swing_psum_q[k],
+                                                     SWING_FRAC + p.step_rel_shift[k])))
+
     def _period_end(self, k):
         """algo.step._period_end: the swing-relative load-step detector."""
-        s, p = self.s, self.p
+        s = self.s
         psum, prev = s.psum[k], s.psum_prev[k]
-        thr = np.maximum(p.step_min[k], _rsr(s.swing[k] * p.swing_psum_q[k],
-                                             SWING_FRAC + p.step_rel_shift[k]))
-        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > thr)
+        jump = (s.have_prev[k] != 0) & (np.abs(psum - prev) > s.step_thr[k])
         s.transient[k[jump]] = 1
         s.psum_prev[k] = psum
+        s.iz_last[k] = s.i_zero[k]
         s.have_prev[k] = 1
+        s.psum[k] = 0
+        s.i_zero[k] = 0
 
     def _correct(self, k):
         """algo.step.correct (with drop_period): one period of the PI correction law and its
-        ring guard."""
+        ring guard, its three stages at once as ``step`` runs them."""
         s, p = self.s, self.p
-        r_est, corr0, integ0, du_prev = s.r_est[k], s.corr[k], s.integ[k], s.du_prev[k]
+        corr0, integ0, du_prev = s.corr[k], s.integ[k], s.du_prev[k]
         room = p.cmd_max[k] - p.target_code[k]     # algo.step.corr_ceiling
         cmax = np.minimum(p.corr_max_q[k], np.maximum(room - s.pert_amp[k], 0) << p.corr_frac[k])
-        r_c = np.maximum(r_est - p.esr_q[k], 0)
-        drop = _sat32(_rsr(r_c * s.psum[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
+        drop = _sat32(_rsr(s.r_c[k] * s.psum_prev[k], p.r_frac[k] + p.period_log2[k] - DROP_FRAC))
         tgt = np.clip(_rsr(drop * p.corr_gain_q[k], GAIN_FRAC + DROP_FRAC - p.corr_frac[k]),
                       0, S32_MAX)
-        clip = s.i_zero[k] != 0
+        clip = s.iz_last[k] != 0
         tgt = np.where(clip, 0, tgt)
         e = np.where(clip, -np.maximum(corr0, integ0), tgt - corr0)
         integ = integ0 + _rsr(p.ki_q[k] * e, GAIN_FRAC)
-        kp = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
+        kp = s.kp[k]
         on = s.kp_off[k] < 2
         kp = np.where(on, kp, 0)
         u = _rsr(kp * e, GAIN_FRAC) + integ
@@ -196,7 +202,7 @@ class BatchModel:
         du = corr - corr0
         rang = ((((du > 0) & (du_prev < 0)) | ((du < 0) & (du_prev > 0)))
                 & (np.abs(du) - np.abs(du_prev) > np.abs(du_prev)) & (np.abs(du) > (p.corr_max_q[k] >> 6)))
-        forced = (s.bad_windows[k] >= p.fault_windows[k]) | (s.valid_run[k] < 2)
+        forced = s.corr_on[k] == 0
         upd = on & ~forced
         s.kp_off[k] = np.where(upd, np.where(rang, s.kp_off[k] + 1, 0), s.kp_off[k])
         trip = upd & (s.kp_off[k] >= 2)
@@ -206,31 +212,43 @@ class BatchModel:
         s.integ[k] = np.where(forced, 0, np.clip(integ, 0, cmax))
         s.corr[k] = np.where(forced, 0, corr)
         s.du_prev[k] = np.where(forced, 0, du)
+        s.corr_prev[k] = np.where(forced, 0, corr0)
+
+    def _window_handover(self, k):
+        """algo.step._window_handover for instances ``k``: the w_* record, the next window's sums."""
+        s = self.s
+        for name in ("acc_vi", "acc_vq", "acc_ii", "acc_iq", "isum", "clipped", "transient"):
+            getattr(s, "w_" + name)[k] = getattr(s, name)[k]
+        s.w_di[k] = s.isum[k] - 2 * s.isum_h[k]
+        s.w_dv[k] = s.vsum[k] - 2 * s.vsum_h[k]
+        for name in _CLEARED:
+            getattr(s, name)[k] = 0
 
     def _classify(self, k):
         """algo.estimator.classify for instances ``k``; sets swing where valid, returns (status, r_raw)."""
         s, p = self.s, self.p
         kt_s, kt_c = p.kt_s_q[k], p.kt_c_q[k]
-        di = s.isum[k] - 2 * s.isum_h[k]
-        dv = s.vsum[k] - 2 * s.vsum_h[k]
-        ii0 = s.acc_ii[k] - _rsr(di * kt_s, KT_FRAC)
-        iq0 = s.acc_iq[k] - _rsr(di * kt_c, KT_FRAC)
+        di, dv = s.w_di[k], s.w_dv[k]
+        ii0 = s.w_acc_ii[k] - _rsr(di * kt_s, KT_FRAC)
+        iq0 = s.w_acc_iq[k] - _rsr(di * kt_c, KT_FRAC)
         m = np.maximum(np.abs(ii0), np.abs(iq0))
         low = m < p.swing_min[k]
-        vd = s.acc_vi[k] - _rsr(dv * kt_s, KT_FRAC)
-        vqd = s.acc_vq[k] - _rsr(dv * kt_c, KT_FRAC)
+        vd = s.w_acc_vi[k] - _rsr(dv * kt_s, KT_FRAC)
+        vqd = s.w_acc_vq[k] - _rsr(dv * kt_c, KT_FRAC)
         rc, rs = p.rot_c_q[k], p.rot_s_q[k]
         vi0 = _rsr(vd * rc + vqd * rs, ROT_FRAC)
         vq0 = _rsr(vqd * rc - vd * rs, ROT_FRAC)
         sh = np.maximum(0, _bit_length(m) - NORM_BITS)
         vi, vq = _sat32(_rsr(vi0, sh)), _sat32(_rsr(vq0, sh))
-        ii, iq = _rsr(ii0, sh), _rsr(iq0, sh)
+        lim = 1 << NORM_BITS                    # algo.estimator.classify's two checks
+        ii, iq = np.clip(_rsr(ii0, sh), -lim, lim), np.clip(_rsr(iq0, sh), -lim, lim)
+        low |= ii * ii + iq * iq == 0
         den = np.where(low, 1, ii * ii + iq * iq)
         num = vi * ii + vq * iq
         xnum = vq * ii - vi * iq
         r_raw = np.where(low, 0, _sat32(_div_trunc(num << p.r_frac[k], den)))
         status = np.select(
-            [low, s.clipped[k] != 0, r_raw > p.r_max_q[k], s.transient[k] != 0, r_raw < 0,
+            [low, s.w_clipped[k] != 0, r_raw > p.r_max_q[k], s.w_transient[k] != 0, r_raw < 0,
              np.abs(xnum) << p.r_frac[k] > p.x_max_q[k] * den],
             [st.STATUS_LOW_SWING, st.STATUS_CLIPPED, st.STATUS_R_HIGH, st.STATUS_TRANSIENT,
              st.STATUS_R_LOW, st.STATUS_REACTIVE],
@@ -239,8 +257,9 @@ class BatchModel:
         s.swing[k] = np.where(valid, _sat32(m), s.swing[k])
         return status, r_raw
 
-    def _window_end(self, k):
-        """algo.estimator.window_end for instances ``k``."""
+    def _window_work(self, k):
+        """algo.estimator.window_work for instances ``k``, then algo.step._commit (as ``step``
+        does it: in the call that ends the window)."""
         s, p = self.s, self.p
         status, r_raw = self._classify(k)
         s.r_raw[k] = r_raw
@@ -254,27 +273,32 @@ class BatchModel:
         folded = np.where(anew, r_raw, np.clip(r_est + d, 0, p.r_max_q[k]))
         r_est = np.where(valid, folded, r_est)
         run = np.where(valid, np.where(anew, 1, np.minimum(run + 1, 0xFF)), run)
-        held = (status == st.STATUS_TRANSIENT) | ((status == st.STATUS_CLIPPED) & ~st.rails_fault(s.clipped[k]))
+        held = (status == st.STATUS_TRANSIENT) | ((status == st.STATUS_CLIPPED) & ~st.rails_fault(s.w_clipped[k]))
         bad = np.where(valid, 0, np.where(held, s.bad_windows[k],
                                           np.minimum(s.bad_windows[k] + 1, 0xFFFF)))
         forced = bad >= p.fault_windows[k]
         r_est = np.where(forced, 0, r_est)
-        s.valid_run[k] = np.where(forced, 0, run)
-        for name in ("corr", "corr_target", "integ", "du_prev"):
-            getattr(s, name)[k[forced]] = 0
-        drop_total = _sat32(_rsr(r_est * s.isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))
+        run = np.where(forced, 0, run)
+        s.valid_run[k] = run
+        # algo.step._commit, in the same call: the correction's inputs, the ring guard back on
+        # after a valid window, a correction held off at zero.
+        s.on_next[k] = s.corr_on[k] = (~forced & (run >= 2)).astype(np.int64)
+        for name in ("corr", "corr_target", "integ", "du_prev", "corr_prev"):
+            getattr(s, name)[k[s.corr_on[k] == 0]] = 0
+        s.rc_next[k] = s.r_c[k] = np.maximum(r_est - p.esr_q[k], 0)
+        drop_total = _sat32(_rsr(r_est * s.w_isum[k], p.r_frac[k] + p.window_log2[k] - DROP_FRAC))
         amp0 = s.pert_amp[k]
         amp = np.maximum(_rsr(drop_total * p.pert_gain_q[k], GAIN_FRAC + DROP_FRAC), amp0 >> 1)
         amp = np.where(status == st.STATUS_CLIPPED, amp0 >> 1, amp)
         amp = np.where(status == st.STATUS_LOW_SWING, amp0 << 1, amp)
-        s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
+        s.pert_next[k] = s.pert_amp[k] = np.clip(amp, p.pert_min[k], p.pert_max[k])
+        s.kp_next[k] = s.kp[k] = np.minimum(_rsr(r_est * p.kc_q[k], p.r_frac[k]), p.kp_max_q[k])
+        s.thr_next[k] = s.step_thr[k] = self._threshold(s.swing[k], k)
         s.kp_off[k[valid]] = 0
         s.r_est[k] = r_est
         s.bad_windows[k] = bad
         s.status[k] = status
         s.windows[k] = (s.windows[k] + 1) & 0xFFFFFFFF
-        for name in _CLEARED:
-            getattr(s, name)[k] = 0
 
     def field(self, name):
         """Live array of state field ``name`` across instances."""

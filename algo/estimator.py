@@ -7,7 +7,7 @@ perturbation amplitude. The correction itself moves
 every period (algo.step.correct). The only divisions are here.
 """
 from algo.fixed import sat, sat_s32, rshift_round, div_trunc, bit_length, step_toward
-from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, KT_FRAC, ROT_FRAC
+from algo.params import GAIN_FRAC, DROP_FRAC, NORM_BITS, KT_FRAC, ROT_FRAC, SWING_FRAC
 from algo import state as st
 
 
@@ -34,6 +34,9 @@ def rotate(vi, vq, p):
             rshift_round(vq * p.rot_c_q - vi * p.rot_s_q, ROT_FRAC))
 
 
+NORM_LIM = 1 << NORM_BITS   # the normalised current pair's bound (classify)
+
+
 def classify(p, s):
     """Return ``(status, r_raw)`` for the finished window.
 
@@ -42,8 +45,9 @@ def classify(p, s):
     the remaining real-part and quadrature limits. A real part above r_max outranks a load step:
     with the capacitor gone the correction's own steps move the current and read as load steps
     every window, while a load step with the capacitor there leaves the detrended real part near
-    the loop's, far below r_max; as a load step it would never count toward the forced zero. A valid window also leaves its (detrended) current swing for
-    the load-step detector.
+    the loop's, far below r_max; as a load step it would never count toward the forced zero.
+    It reads the w_* record a window end leaves. A valid window also leaves its (detrended)
+    current swing for the load-step detector (swing; window_work turns it into thr_next).
 
     Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
     within 2**33 in magnitude. The current pair is shifted right by ``sh`` so its larger
@@ -52,26 +56,31 @@ def classify(p, s):
     (r_frac <= 16) is below 2**65 only in theory: the voltage pair is then clamped to +-2**31
     after the shift (its ratio to the current pair is at most 2**31 / 2**14 V-codes per I-code
     before saturating r_raw anyway), which keeps ``num << r_frac`` below 2**62 and
-    ``x_max_q * den`` below 2**62: int64 suffices.
+    ``x_max_q * den`` below 2**62: int64 suffices. Two checks state what this shows and a value
+    analysis cannot see through the shared shift (c_ref/estimator.c ld_classify): the shifted
+    current pair is saturated to +-2**NORM_BITS and ``den`` = 0 reads low swing; neither ever acts.
     """
-    di, dv = s.isum - 2 * s.isum_h, s.vsum - 2 * s.vsum_h
-    ii0, iq0 = detrend(s.acc_ii, di, p.kt_s_q), detrend(s.acc_iq, di, p.kt_c_q)
+    di, dv = s.w_di, s.w_dv
+    ii0, iq0 = detrend(s.w_acc_ii, di, p.kt_s_q), detrend(s.w_acc_iq, di, p.kt_c_q)
     m = max(abs(ii0), abs(iq0))
     if m < p.swing_min:
         return st.STATUS_LOW_SWING, 0
-    vi0, vq0 = rotate(detrend(s.acc_vi, dv, p.kt_s_q), detrend(s.acc_vq, dv, p.kt_c_q), p)
+    vi0, vq0 = rotate(detrend(s.w_acc_vi, dv, p.kt_s_q), detrend(s.w_acc_vq, dv, p.kt_c_q), p)
     sh = max(0, bit_length(m) - NORM_BITS)
     vi, vq = sat_s32(rshift_round(vi0, sh)), sat_s32(rshift_round(vq0, sh))
-    ii, iq = rshift_round(ii0, sh), rshift_round(iq0, sh)
+    ii = sat(rshift_round(ii0, sh), -NORM_LIM, NORM_LIM)
+    iq = sat(rshift_round(iq0, sh), -NORM_LIM, NORM_LIM)
     den = ii * ii + iq * iq
+    if den == 0:
+        return st.STATUS_LOW_SWING, 0
     num = vi * ii + vq * iq
     xnum = vq * ii - vi * iq
     r_raw = sat_s32(div_trunc(num << p.r_frac, den))
-    if s.clipped:
+    if s.w_clipped:
         return st.STATUS_CLIPPED, r_raw
     if r_raw > p.r_max_q:
         return st.STATUS_R_HIGH, r_raw
-    if s.transient:
+    if s.w_transient:
         return st.STATUS_TRANSIENT, r_raw
     if r_raw < 0:
         return st.STATUS_R_LOW, r_raw
@@ -79,6 +88,27 @@ def classify(p, s):
         return st.STATUS_REACTIVE, r_raw
     s.swing = sat_s32(m)
     return st.STATUS_VALID, r_raw
+
+
+def gain_kp(p, r_est):
+    """The correction's proportional gain for an estimate: R-hat * C / tau, kp = r_est * kc_q,
+    capped at kp_max_q.
+
+    Scaling and overflow: r_est (< 2**31) times kc_q (< 2**31) is below 2**62; the result is
+    clamped to kp_max_q <= 2**24.
+    """
+    return min(rshift_round(r_est * p.kc_q, p.r_frac), p.kp_max_q)
+
+
+def step_threshold(p, swing):
+    """The load-step detector's threshold for a current swing: a share 2**-step_rel_shift of
+    the swing in period-sum codes, at least step_min, saturated to int32 (a period-sum difference
+    is below 2**24, so the comparison is unchanged).
+
+    Scaling and overflow: swing (< 2**31) times swing_psum_q (int32, checked in
+    algo.params.derive) is below 2**62.
+    """
+    return sat_s32(max(p.step_min, rshift_round(swing * p.swing_psum_q, SWING_FRAC + p.step_rel_shift)))
 
 
 def drop_vq(r_q, isum, p):
@@ -147,18 +177,26 @@ def update_estimate(p, s, r_raw):
     s.valid_run = min(s.valid_run + 1, 0xFF)
 
 
-def window_end(p, s):
-    """Finish a window: classify, update estimate, gain, fault counter and amplitude, clear the sums.
+def window_work(p, s):
+    """The window's work: classify the w_* record, update the estimate and the fault counter,
+    and leave for the interrupt path the amplitude, the load-step threshold and the correction's
+    inputs (the *_next fields, committed at a period end); returns 1, or 0 when no window waits
+    (w_state not WIN_PENDING).
+
+    Called by ``step`` at a window end, or by the firmware's main loop after ``step_isr``. It
+    writes only fields the interrupt path leaves alone while a window waits, and marks its end
+    (WIN_DONE) last.
 
     Scaling and overflow: drop (Q DROP_FRAC, int32) times pert_gain_q (Q GAIN_FRAC, int32) is
     below 2**62 before its shift (next_pert_amp).
     """
+    if s.w_state != st.WIN_PENDING:
+        return 0
     status, s.r_raw = classify(p, s)
     if status == st.STATUS_VALID:
         update_estimate(p, s, s.r_raw)
         s.bad_windows = 0
-        s.kp_off = 0
-    elif status != st.STATUS_TRANSIENT and not (status == st.STATUS_CLIPPED and not st.rails_fault(s.clipped)):
+    elif status != st.STATUS_TRANSIENT and not (status == st.STATUS_CLIPPED and not st.rails_fault(s.w_clipped)):
         # A load step or a current code at one rail only holds the estimate; counting it as a
         # fault window would let a step spread over several windows by the load capacitor force
         # the correction to zero. The voltage at its rail, or the current at both rails in one
@@ -169,13 +207,13 @@ def window_end(p, s):
     if s.bad_windows >= p.fault_windows:
         s.r_est = 0
         s.valid_run = 0
-        s.corr = s.corr_target = s.integ = s.du_prev = 0
-    drop_total = drop_vq(s.r_est, s.isum, p)
-    s.pert_amp = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
+    s.on_next = int(s.bad_windows < p.fault_windows and s.valid_run >= 2)
+    s.rc_next = max(s.r_est - p.esr_q, 0)
+    s.kp_next = gain_kp(p, s.r_est)
+    s.thr_next = step_threshold(p, s.swing)
+    drop_total = drop_vq(s.r_est, s.w_isum, p)
+    s.pert_next = sat(next_pert_amp(p, s, status, drop_total), p.pert_min, p.pert_max)
     s.status = status
     s.windows = (s.windows + 1) & 0xFFFFFFFF
-    s.acc_vi = s.acc_vq = s.acc_ii = s.acc_iq = 0
-    s.isum = s.vsum = s.isum_h = s.vsum_h = 0
-    s.count = 0
-    s.transient = 0
-    s.clipped = 0
+    s.w_state = st.WIN_DONE
+    return 1

@@ -23,6 +23,10 @@ STATE_TYPES = {
     "count": (0, 0xFFFF), "bad_windows": (0, 0xFFFF), "cmd": (0, 0xFFFF), "have_prev": (0, 0xFF),
     "transient": (0, 0xFF), "status": (0, 0xFF), "clipped": (0, 0xFF), "valid_run": (0, 0xFF),
     "kp_off": (0, 0xFF), "i_zero": (0, 0xFF),
+    "w_acc_vi": S32, "w_acc_vq": S32, "w_acc_ii": S32, "w_acc_iq": S32, "w_isum": S32,
+    "w_di": S32, "w_dv": S32, "pert_next": S32, "step_thr": S32, "thr_next": S32, "r_c": S32, "rc_next": S32, "kp": S32,
+    "kp_next": S32, "corr_prev": S32, "corr_on": (0, 0xFF), "on_next": (0, 0xFF), "iz_last": (0, 0xFF), "w_clipped": (0, 0xFF),
+    "w_transient": (0, 0xFF), "w_state": (0, 0xFF), "late_windows": (0, 0xFF),
 }
 
 
@@ -61,6 +65,13 @@ def state_bounds(p: Params):
     * ``swing``: int32-saturated magnitude of the current pair (estimator.classify), >= 0.
     * ``valid_run``: saturating uint8 count of valid windows (estimator.update_estimate).
     * ``pert_amp``: clamped to [pert_min, pert_max] at every window end; init sets pert_min.
+    * ``w_*``: the window record, copies of the sums above at a window end; ``w_di``, ``w_dv``
+      are a window sum less twice its half-window snapshot, within +-window * adc_max.
+      ``pert_next`` and ``thr_next`` are what window_work leaves for pert_amp and step_thr, with
+      their bounds (reset sets both too). ``kp``: estimator.gain_kp, clamped to [0, kp_max_q]
+      (r_est >= 0), and ``kp_next`` the same; ``step_thr``: estimator.step_threshold, at least
+      step_min, int32-saturated. ``r_c``, ``rc_next``: r_est - esr_q floored at 0, so within
+      [0, r_max_q]; ``corr_prev``: a correction, in [0, corr_max_q].
     * ``cmd``: clamped to [cmd_min, cmd_max] in step._command; ``cmd_base`` is target_code
       plus the rounded correction (estimator.command_base), set at init, reset and every
       period end.
@@ -84,6 +95,15 @@ def state_bounds(p: Params):
         "cmd": (p.cmd_min, p.cmd_max),
         "have_prev": (0, 1), "transient": (0, 1), "status": (0, 7), "clipped": (0, 7),
         "cmd_base": (p.target_code, p.target_code + rshift_round(p.corr_max_q, p.corr_frac)),
+        "w_acc_vi": (win * lo, win * hi), "w_acc_vq": (win * lo, win * hi),
+        "w_acc_ii": (win * lo, win * hi), "w_acc_iq": (win * lo, win * hi),
+        "w_isum": (0, win * p.adc_max),
+        "w_di": (-win * p.adc_max, win * p.adc_max), "w_dv": (-win * p.adc_max, win * p.adc_max),
+        "pert_next": (p.pert_min, p.pert_max), "kp": (0, p.kp_max_q), "kp_next": (0, p.kp_max_q),
+        "step_thr": (p.step_min, S32[1]), "thr_next": (p.step_min, S32[1]),
+        "r_c": (0, p.r_max_q), "rc_next": (0, p.r_max_q),
+        "corr_prev": (0, p.corr_max_q), "corr_on": (0, 1), "on_next": (0, 1), "iz_last": (0, 1),
+        "w_clipped": (0, 7), "w_transient": (0, 1), "w_state": (0, 2), "late_windows": (0, 0xFF),
     }
     return {name: bounds[name] for name in STATE_FIELDS}
 
@@ -98,7 +118,7 @@ def declared_width_violations(p: Params):
     out = []
     acc_type = (-(1 << (p.acc_bits - 1)), (1 << (p.acc_bits - 1)) - 1)
     for name, (lo, hi) in state_bounds(p).items():
-        t_lo, t_hi = acc_type if name.startswith("acc_") else STATE_TYPES[name]
+        t_lo, t_hi = acc_type if name.startswith(("acc_", "w_acc_")) else STATE_TYPES[name]
         if lo < t_lo or hi > t_hi:
             out.append(f"{name}: [{lo}, {hi}] outside [{t_lo}, {t_hi}]")
     return out

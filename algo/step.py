@@ -7,8 +7,9 @@ the window when it is full; return the next command code.
 Integer-only; no division.
 """
 from algo.fixed import sat, sat_s32, rshift_round
-from algo.estimator import command_base, window_end
-from algo.params import GAIN_FRAC, DROP_FRAC, SWING_FRAC, S32_MAX
+from algo.estimator import command_base, step_threshold, window_work
+from algo import state as st
+from algo.params import GAIN_FRAC, DROP_FRAC, S32_MAX
 from algo.state import State
 
 
@@ -39,41 +40,48 @@ def reset(p, s):
     r_est, windows = s.r_est, s.windows
     s.__init__()
     s.r_est, s.windows = r_est, windows
-    s.pert_amp = p.pert_min
+    s.pert_amp = s.pert_next = p.pert_min
+    s.step_thr = s.thr_next = step_threshold(p, 0)
     s.bad_windows = p.fault_windows
     s.cmd_base = command_base(p, s)
     s.cmd = _command(p, s)
 
 
-def _period_end(p, s):
-    """Flag a load step when consecutive whole-period current sums differ by more than a share
-    of the current swing.
+def _period_end(s):
+    """Stage 0 of a period end: flag a load step when consecutive whole-period current sums
+    differ by more than a share of the current swing (step_thr, estimator.step_threshold of the
+    last valid window's swing), and keep the period's sum and current-at-0 flag for the law.
 
     Scaling and overflow: period sums are below 2**24 (256 samples of 16-bit codes), so their
-    difference fits int32; swing (< 2**31) times swing_psum_q (int32, checked in
-    algo.params.derive) is below 2**62.
+    difference fits int32.
     """
-    if s.have_prev:
-        thr = max(p.step_min, rshift_round(s.swing * p.swing_psum_q, SWING_FRAC + p.step_rel_shift))
-        if abs(s.psum - s.psum_prev) > thr:
-            s.transient = 1
+    if s.have_prev and abs(s.psum - s.psum_prev) > s.step_thr:
+        s.transient = 1
     s.psum_prev = s.psum
+    s.iz_last = s.i_zero
     s.have_prev = 1
+    s.psum = 0
+    s.i_zero = 0
 
 
 def drop_period(p, s):
     """The period's estimated drop (R-hat - ESR) * mean current in Q corr_frac DAC codes: what the
-    correction tracks. Not clamped to corr_max_q: with the correction at its ceiling the error
-    must still read the load voltage's shortfall.
+    correction tracks, from the committed r_c = R-hat - ESR and the period sum psum_prev. Not
+    clamped to corr_max_q: with the correction at its ceiling the error must still read the load
+    voltage's shortfall.
 
-    Scaling and overflow: r_est - esr_q is in [0, 2**31) and psum below 2**24, so their product is
+    Scaling and overflow: r_c is in [0, 2**31) and psum_prev below 2**24, so their product is
     below 2**55; after the shift the V-code drop (Q DROP_FRAC) is saturated to int32, and times
     corr_gain_q (int32) it is below 2**62.
     """
-    r_c = max(s.r_est - p.esr_q, 0)
-    drop = sat_s32(rshift_round(r_c * s.psum, p.r_frac + p.period_log2 - DROP_FRAC))
+    drop = sat_s32(rshift_round(s.r_c * s.psum_prev, p.r_frac + p.period_log2 - DROP_FRAC))
     return sat(rshift_round(drop * p.corr_gain_q, GAIN_FRAC + DROP_FRAC - p.corr_frac),
                0, S32_MAX)
+
+
+def _correction_zero(s):
+    """The correction and its state at zero (a forced zero, or no confirmed estimate)."""
+    s.corr = s.corr_target = s.integ = s.du_prev = s.corr_prev = 0
 
 
 def corr_ceiling(p, s):
@@ -93,7 +101,8 @@ def corr_ceiling(p, s):
 
 
 def correct(p, s):
-    """One period of the correction law: proportional-plus-integral on the error e = drop - corr.
+    """One period of the correction law, its three stages in one call (``law_target``,
+    ``law_step``, ``law_guard``): proportional-plus-integral on the error e = drop - corr.
 
     With V-hat = (target + corr) - (R-hat - ESR) * I the supply's reading of the load voltage,
     e = target - V-hat. corr = kp * e + integ, integ += ki * e, with kp = R-hat * C / tau and
@@ -104,9 +113,9 @@ def correct(p, s):
     the floor it moves freely: it is itself kept in [0, the ceiling], so it cannot wind below
     zero, and holding it there would undo a load dump: the proportional part takes the output
     to 0, the held integral brings it straight back the next period, and the correction
-    swings between 0 and its old value every period. While the fault counter
-    holds the correction at zero, or no second valid window has confirmed the estimate yet
-    (valid_run < 2), the correction and its integral are zero.
+    swings between 0 and its old value every period. While the committed window work holds the
+    correction off (corr_on 0: the fault counter at fault_windows, or no second valid window has
+    confirmed the estimate yet, valid_run < 2), the correction and its integral are zero.
 
     A period with a current code at 0 tracks a drop of zero: the load draws less than the
     perturbation's current swing, the ADC cannot show the negative half, and the period sum of
@@ -139,33 +148,62 @@ def correct(p, s):
     2**62 and kp is clamped to kp_max_q <= 2**24, so kp * e is below 2**55; ki_q <= 2**16 keeps
     ki * e below 2**47; the sum of the two parts is below 2**40 after the shift and is clamped
     before it is stored.
+
+    ``step`` runs the three stages in the period end's own call; ``step_isr`` one per call, at
+    the period's first three samples, so the interrupt's worst sample carries one stage only.
+    The command base follows the last stage. They read only what the interrupt path owns (r_c,
+    kp, corr_on are the window work's results as committed), never a field the window work is
+    writing.
     """
-    if s.bad_windows >= p.fault_windows or s.valid_run < 2:
-        s.corr = s.corr_target = s.integ = s.du_prev = 0
+    law_target(p, s)
+    law_step(p, s)
+    law_guard(p, s)
+
+
+def law_target(p, s):
+    """Stage 1: the period's drop, the law's target."""
+    if not s.corr_on:
+        _correction_zero(s)
         return
-    s.corr_target = 0 if s.i_zero else drop_period(p, s)
-    e = -max(s.corr, s.integ) if s.i_zero else s.corr_target - s.corr
+    s.corr_target = 0 if s.iz_last else drop_period(p, s)
+
+
+def law_step(p, s):
+    """Stage 2: one step of the law, the output clamped and the integral held while it winds up."""
+    if not s.corr_on:
+        return
+    e = -max(s.corr, s.integ) if s.iz_last else s.corr_target - s.corr
     integ = s.integ + rshift_round(p.ki_q * e, GAIN_FRAC)
-    kp = 0 if s.kp_off >= 2 else min(rshift_round(s.r_est * p.kc_q, p.r_frac), p.kp_max_q)
+    kp = 0 if s.kp_off >= 2 else s.kp
     u = rshift_round(kp * e, GAIN_FRAC) + integ
     top = corr_ceiling(p, s)
     if u > top and e > 0:
         integ = s.integ
     s.integ = sat(integ, 0, top)
     corr = sat(u, 0, top)
-    du = corr - s.corr
-    rang = ((du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) - abs(s.du_prev) > abs(s.du_prev)
-            and abs(du) > p.corr_max_q >> 6)
-    if s.kp_off < 2:
-        s.kp_off = s.kp_off + 1 if rang else 0
-        if s.kp_off == 2:
-            corr = s.integ
-            du = corr - s.corr
-    s.corr, s.du_prev = corr, du
+    s.corr_prev = s.corr
+    s.corr = corr
 
 
-def step(p, s, adc_v, adc_i):
-    """Take one pair of ADC codes, return the command code for the next sample.
+def law_guard(p, s):
+    """Stage 3: the ring guard on the step just taken (du = corr - corr_prev against du_prev),
+    then the command base."""
+    if s.corr_on:
+        du = s.corr - s.corr_prev
+        rang = ((du > 0 > s.du_prev or du < 0 < s.du_prev) and abs(du) - abs(s.du_prev) > abs(s.du_prev)
+                and abs(du) > p.corr_max_q >> 6)
+        if s.kp_off < 2:
+            s.kp_off = s.kp_off + 1 if rang else 0
+            if s.kp_off == 2:
+                s.corr = s.integ
+                du = s.corr - s.corr_prev
+        s.du_prev = du
+    s.cmd_base = command_base(p, s)
+
+
+def _accumulate(p, s, adc_v, adc_i):
+    """Clamp one pair of ADC codes and add them to the window's demodulation and code sums;
+    return True at a period end.
 
     Scaling and overflow: codes are clamped to [0, adc_max] (< 2**16) and a
     table entry is below 2**15 in magnitude, so each product fits int32; the
@@ -195,15 +233,107 @@ def step(p, s, adc_v, adc_i):
     s.psum += i
     s.phase = (s.phase + 1) & n
     s.count += 1
-    if s.phase == 0:
-        _period_end(p, s)
-        correct(p, s)
-        s.psum = 0
-        s.i_zero = 0
-        if s.count == p.window >> 1:
-            s.isum_h, s.vsum_h = s.isum, s.vsum
-        if s.count == p.window:
-            window_end(p, s)
-        s.cmd_base = command_base(p, s)
+    return s.phase == 0
+
+
+def _period_sums(p, s):
+    """The period end's window bookkeeping: the code sums saved half-way through the window
+    (trend removal). Returns True when the window is full."""
+    if s.count == p.window >> 1:
+        s.isum_h, s.vsum_h = s.isum, s.vsum
+    return s.count == p.window
+
+
+def _window_clear(s):
+    """Start the next window's sums."""
+    s.acc_vi = s.acc_vq = s.acc_ii = s.acc_iq = 0
+    s.isum = s.vsum = s.isum_h = s.vsum_h = 0
+    s.count = 0
+    s.transient = 0
+    s.clipped = 0
+
+
+def _window_handover(s):
+    """Hand the full window to the window work: copy what it reads into the w_* record, mark
+    it pending, and start the next window's sums. The half-window differences fit int32: isum,
+    vsum < 2**30 and isum_h, vsum_h < 2**29."""
+    s.w_acc_vi, s.w_acc_vq, s.w_acc_ii, s.w_acc_iq = s.acc_vi, s.acc_vq, s.acc_ii, s.acc_iq
+    s.w_isum = s.isum
+    s.w_di = s.isum - 2 * s.isum_h
+    s.w_dv = s.vsum - 2 * s.vsum_h
+    s.w_clipped, s.w_transient = s.clipped, s.transient
+    s.w_state = st.WIN_PENDING
+    _window_clear(s)
+
+
+def _window_late(p, s):
+    """A window ended while the last one's work had not finished: drop it and force the
+    correction to zero until a commit turns it back on."""
+    _window_clear(s)
+    s.late_windows = min(s.late_windows + 1, 0xFF)
+    s.corr_on = 0
+    _correction_zero(s)
+    s.cmd_base = command_base(p, s)
+
+
+def _commit(s):
+    """Take over what the finished window work left for the interrupt path: the amplitude, the
+    load-step threshold and the correction's inputs (r_c, kp, corr_on); a valid window turns the
+    ring guard back on, and a correction held off is zero from here."""
+    s.pert_amp = s.pert_next
+    s.step_thr = s.thr_next
+    s.r_c = s.rc_next
+    s.kp = s.kp_next
+    s.corr_on = s.on_next
+    if s.status == st.STATUS_VALID:
+        s.kp_off = 0
+    if not s.corr_on:
+        _correction_zero(s)
+    s.w_state = st.WIN_IDLE
+
+
+def _step_core(p, s, adc_v, adc_i, staged):
+    """One sample (c_ref/step.c ld_step_core): the sums every call; at a period end the
+    load-step detector and the period's sum (stage 0), the law's three stages (all in this call
+    unless ``staged``, else one per call at the next three samples), and the window's hand-over.
+
+    The interrupt path (staged): a window end hands its sums over (WIN_PENDING); the first
+    period end after window_work has finished (WIN_DONE) commits its results; until then the
+    correction runs on the last committed ones. When the next window ends and the work has still
+    not finished, that window is dropped (late_windows counts it) and the correction is forced
+    to zero until the work catches up.
+    """
+    if _accumulate(p, s, adc_v, adc_i):
+        if s.w_state == st.WIN_DONE:
+            _commit(s)
+        _period_end(s)
+        if not staged:
+            correct(p, s)
+        if _period_sums(p, s):
+            if s.w_state == st.WIN_IDLE:
+                _window_handover(s)
+            else:
+                _window_late(p, s)
+    elif staged and s.phase <= 3 and s.have_prev:
+        (law_target, law_step, law_guard)[s.phase - 1](p, s)
     s.cmd = _command(p, s)
     return s.cmd
+
+
+def step_isr(p, s, adc_v, adc_i):
+    """The interrupt path: one sample, the correction law spread over the period's first three
+    samples and the window's work left to ``window_work`` (main loop)."""
+    return _step_core(p, s, adc_v, adc_i, True)
+
+
+def step(p, s, adc_v, adc_i):
+    """Take one pair of ADC codes, return the command code for the next sample: the correction
+    law whole at each period end, and a window end's work (``window_work``) done and committed in
+    the same call, so its amplitude and load-step threshold, and a forced zero of the correction,
+    are in the command at once (c_ref/step.c ld_step)."""
+    cmd = _step_core(p, s, adc_v, adc_i, False)
+    if s.w_state == st.WIN_PENDING and window_work(p, s):
+        _commit(s)
+        s.cmd_base = command_base(p, s)
+        s.cmd = cmd = _command(p, s)
+    return cmd

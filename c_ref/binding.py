@@ -117,3 +117,11 @@ class CBatch:
     def step(self, adc_v, adc_i):
         """One sample for every instance: inputs of shape (n,), commands out."""
         return self.run(adc_v, adc_i)
+
+    def step_isr(self, k, adc_v, adc_i):
+        """One sample of instance ``k`` through the interrupt path (``ld_step_isr``); its command."""
+        return int(lib.ld_step_isr(self._p + k, self._s + k, adc_v, adc_i))
+
+    def window_work(self, k):
+        """The main loop's window work for instance ``k`` (``ld_window_work``); 1 if it did one."""
+        return int(lib.ld_window_work(self._p + k, self._s + k))

@@ -11,14 +11,14 @@ SOURCES = ["step.c", "estimator.c", "fixed.c", "batch.c"]
 def cdef_text(header=os.path.join(HERE, "linedrop.h"), prefix="LD_"):
     """A linedrop.h (c_ref's own by default) reduced to what cffi's cdef accepts.
 
-    Keeps integer ``#define <prefix>*`` lines, types and prototypes.
+    Keeps integer ``#define <prefix>*`` lines (decimal, optionally with a ``u`` suffix), types and prototypes.
     """
     with open(header) as f:
         text = f.read()
     keep = []
     for line in text.splitlines():
         if line.startswith("#"):
-            if re.match(rf"#define {prefix}\w+ \d+\s*(/\*.*)?$", line):
+            if re.match(rf"#define {prefix}\w+ \d+u?\s*(/\*.*)?$", line):
                 keep.append(line.split("/*")[0])
             continue
         keep.append(line)

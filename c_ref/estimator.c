@@ -1,7 +1,8 @@
 /*
  * Window-end estimate and perturbation update (mirrors algo/estimator.py).
  *
- * Runs once per measurement window: removes the DC and a linear trend from the
+ * Runs once per measurement window, on the w_* record a window end leaves (inside ld_step, or
+ * from the main loop after ld_step_isr): removes the DC and a linear trend from the
  * demodulation sums, turns them into the real and quadrature parts of V/I,
  * classifies the window, and updates the resistance estimate and the
  * perturbation amplitude. The correction itself moves every period
@@ -56,7 +57,7 @@ static inline unsigned ld_bit_length64(int64_t u)
  * every window, while a load step with the capacitor there leaves the detrended real part near
  * the loop's, far below r_max; as a load step it would never count toward the forced zero.
  * A valid window also leaves its (detrended) current swing for
- * the load-step detector.
+ * the load-step detector (swing; ld_window_work turns it into thr_next).
  * Scaling and overflow: the detrended pairs are within 2**32 and the rotated voltage pair
  * within 2**33 in magnitude. The current pair is shifted right by sh so its larger
  * magnitude has at most NORM_BITS+1 bits; the voltage pair takes the same shift, so it stays
@@ -68,15 +69,21 @@ static inline unsigned ld_bit_length64(int64_t u)
  * So the shifted current pair is within 2**14 and the clamped voltage pair within int32: both
  * are held as int32 and their products are 32 x 32 -> 64-bit multiplies (one instruction on a
  * Cortex-M3/M4; a 64 x 64 multiply there is three).
- * den > 0 because the larger current magnitude is at least swing_min >= 1.
- * The half-window differences fit int32: isum, vsum < 2**30 and isum_h, vsum_h < 2**29.
+ * den > 0 because the larger current magnitude is at least swing_min >= 1. Two checks state
+ * what the range analysis shows and a value analysis cannot see through the shared shift (one
+ * interval per variable): the shifted current pair is saturated to +-2**NORM_BITS (rounding
+ * 2**b - 1 right by b - NORM_BITS never exceeds 2**NORM_BITS) and den = 0 reads low swing.
+ * Neither ever acts; both are mirrored in the model.
  */
+/* The normalised current pair's bound (see ld_classify). */
+#define LD_NORM_LIM ((int64_t)1 << LD_NORM_BITS)
+
 static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
 {
-    int32_t di = s->isum - 2 * s->isum_h;
-    int32_t dv = s->vsum - 2 * s->vsum_h;
-    int64_t ii0 = ld_detrend(s->acc_ii, di, p->kt_s_q);
-    int64_t iq0 = ld_detrend(s->acc_iq, di, p->kt_c_q);
+    int32_t di = s->w_di;
+    int32_t dv = s->w_dv;
+    int64_t ii0 = ld_detrend(s->w_acc_ii, di, p->kt_s_q);
+    int64_t iq0 = ld_detrend(s->w_acc_iq, di, p->kt_c_q);
     int64_t m = ld_abs64(ii0) > ld_abs64(iq0) ? ld_abs64(ii0) : ld_abs64(iq0);
     int64_t vi0, vq0, den, num, xnum;
     int32_t vi, vq, ii, iq;
@@ -86,26 +93,29 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     if (m < p->swing_min) {
         return LD_STATUS_LOW_SWING;
     }
-    vi0 = ld_detrend(s->acc_vi, dv, p->kt_s_q);
-    vq0 = ld_detrend(s->acc_vq, dv, p->kt_c_q);
+    vi0 = ld_detrend(s->w_acc_vi, dv, p->kt_s_q);
+    vq0 = ld_detrend(s->w_acc_vq, dv, p->kt_c_q);
     ld_rotate(&vi0, &vq0, p);
     bl = ld_bit_length64(m);
     sh = bl > LD_NORM_BITS ? bl - LD_NORM_BITS : 0u;
     vi = ld_sat_s32(ld_rshift_round64(vi0, sh));
     vq = ld_sat_s32(ld_rshift_round64(vq0, sh));
-    ii = (int32_t)ld_rshift_round64(ii0, sh);
-    iq = (int32_t)ld_rshift_round64(iq0, sh);
+    ii = (int32_t)ld_sat64(ld_rshift_round64(ii0, sh), -LD_NORM_LIM, LD_NORM_LIM);
+    iq = (int32_t)ld_sat64(ld_rshift_round64(iq0, sh), -LD_NORM_LIM, LD_NORM_LIM);
     den = (int64_t)ii * ii + (int64_t)iq * iq;
+    if (den == 0) {
+        return LD_STATUS_LOW_SWING;
+    }
     num = (int64_t)vi * ii + (int64_t)vq * iq;
     xnum = (int64_t)vq * ii - (int64_t)vi * iq;
     *r_raw = ld_sat_s32(ld_div_trunc(num * ((int64_t)1 << p->r_frac), den));
-    if (s->clipped != 0u) {
+    if (s->w_clipped != 0u) {
         return LD_STATUS_CLIPPED;
     }
     if (*r_raw > p->r_max_q) {
         return LD_STATUS_R_HIGH;
     }
-    if (s->transient != 0u) {
+    if (s->w_transient != 0u) {
         return LD_STATUS_TRANSIENT;
     }
     if (*r_raw < 0) {
@@ -116,6 +126,35 @@ static uint8_t ld_classify(const ld_params_t *p, ld_state_t *s, int32_t *r_raw)
     }
     s->swing = ld_sat_s32(m);
     return LD_STATUS_VALID;
+}
+
+/*
+ * The correction's proportional gain for an estimate r_est: R-hat * C / tau, kp = r_est * kc_q,
+ * capped at kp_max_q.
+ * Scaling and overflow: r_est (< 2**31) times kc_q (< 2**31) is below 2**62; the result is
+ * clamped to kp_max_q <= 2**24, so it is held as int32.
+ */
+static int32_t ld_gain_kp(const ld_params_t *p, int32_t r_est)
+{
+    int64_t kp64 = ld_rshift_round64((int64_t)r_est * p->kc_q, p->r_frac);
+    return kp64 > p->kp_max_q ? p->kp_max_q : (int32_t)kp64;
+}
+
+/*
+ * The load-step detector's threshold for a current swing: a share 2**-step_rel_shift of the
+ * swing in period-sum codes, at least step_min.
+ * Scaling and overflow: swing (< 2**31) times swing_psum_q (int32, checked in
+ * algo.params.derive) is below 2**62; after the shift it can still exceed int32, and is
+ * saturated there: a period-sum difference is below 2**24, so the comparison is unchanged.
+ */
+int32_t ld_step_threshold(const ld_params_t *p, int32_t swing)
+{
+    int64_t thr = ld_rshift_round64((int64_t)swing * p->swing_psum_q,
+                                    LD_SWING_FRAC + (unsigned)p->step_rel_shift);
+    if (thr < p->step_min) {
+        thr = p->step_min;
+    }
+    return ld_sat_s32(thr);
 }
 
 /*
@@ -210,23 +249,37 @@ static void ld_update_estimate(const ld_params_t *p, ld_state_t *s, int32_t r_ra
 }
 
 /*
- * Finish a window: classify, update estimate, gain, fault counter and amplitude, clear the sums.
+ * The window's work: classify the w_* record, update the estimate and the fault counter, and
+ * leave for the interrupt path the amplitude, the load-step threshold and the correction's
+ * inputs (the *_next fields, committed at a period end); returns 1, or 0 when no window waits
+ * (w_state not LD_WIN_PENDING).
+ * Called by ld_step at a window end, or by the firmware's main loop after ld_step_isr. It
+ * writes only fields the interrupt path leaves alone while a window waits, and marks its end
+ * (LD_WIN_DONE) with the last store. Compiler barriers around the flag's read and before its
+ * store keep the compiler from caching the flag across calls or moving a result's store past
+ * it (a single core needs no hardware barrier; the flag is one byte, written whole).
  * Scaling and overflow: drop (Q LD_DROP_FRAC, int32) times pert_gain_q (Q LD_GAIN_FRAC, int32) is
  * below 2**62 before its shift (ld_next_pert_amp).
  */
-void ld_window_end(const ld_params_t *p, ld_state_t *s)
+uint8_t ld_window_work(const ld_params_t *p, ld_state_t *s)
 {
     int32_t r_raw;
-    uint8_t status = ld_classify(p, s, &r_raw);
+    uint8_t status;
     int32_t drop_total;
 
+    LD_COMPILER_BARRIER();
+    if (s->w_state != (uint8_t)LD_WIN_PENDING) {
+        return 0u;
+    }
+    LD_COMPILER_BARRIER();
+    status = ld_classify(p, s, &r_raw);
     s->r_raw = r_raw;
     if (status == LD_STATUS_VALID) {
         ld_update_estimate(p, s, s->r_raw);
         s->bad_windows = 0u;
-        s->kp_off = 0u;
     } else if (status != LD_STATUS_TRANSIENT &&
-               !(status == LD_STATUS_CLIPPED && (s->clipped & 2u) == 0u && (s->clipped & 5u) != 5u) &&
+               !(status == LD_STATUS_CLIPPED && (s->w_clipped & 2u) == 0u &&
+                 (s->w_clipped & 5u) != 5u) &&
                s->bad_windows < UINT16_MAX) {
         /* A load step or a current code at one rail only holds the estimate; counting it as
          * a fault window would let a step spread over several windows by the load capacitor
@@ -239,25 +292,17 @@ void ld_window_end(const ld_params_t *p, ld_state_t *s)
     if (s->bad_windows >= p->fault_windows) {
         s->r_est = 0;
         s->valid_run = 0u;
-        s->corr = 0;
-        s->corr_target = 0;
-        s->integ = 0;
-        s->du_prev = 0;
     }
-    drop_total = ld_drop_vq(s->r_est, s->isum, p);
-    s->pert_amp = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
-                                    p->pert_min, p->pert_max);
+    s->on_next = (s->bad_windows < p->fault_windows && s->valid_run >= 2u) ? 1u : 0u;
+    s->rc_next = s->r_est > p->esr_q ? s->r_est - p->esr_q : 0;
+    s->kp_next = ld_gain_kp(p, s->r_est);
+    s->thr_next = ld_step_threshold(p, s->swing);
+    drop_total = ld_drop_vq(s->r_est, s->w_isum, p);
+    s->pert_next = (int32_t)ld_sat64(ld_next_pert_amp(p, s, status, drop_total),
+                                     p->pert_min, p->pert_max);
     s->status = status;
     s->windows++;
-    s->acc_vi = 0;
-    s->acc_vq = 0;
-    s->acc_ii = 0;
-    s->acc_iq = 0;
-    s->isum = 0;
-    s->vsum = 0;
-    s->isum_h = 0;
-    s->vsum_h = 0;
-    s->count = 0u;
-    s->transient = 0u;
-    s->clipped = 0u;
+    LD_COMPILER_BARRIER();
+    s->w_state = (uint8_t)LD_WIN_DONE;
+    return 1u;
 }

@@ -26,21 +26,26 @@ int64_t ld_rshift_round64(int64_t x, unsigned s);
 
 static inline int32_t ld_sat(int32_t x, int32_t lo, int32_t hi)
 {
-    return x < lo ? lo : (x > hi ? hi : x);
+    return (x < lo) ? lo : ((x > hi) ? hi : x);
 }
 
 /* Scaling and overflow: x + 2**(s-1) must fit int32; callers keep
  * |x| < 2**31 - 2**(s-1) by range analysis. */
 static inline int32_t ld_rshift_round(int32_t x, unsigned s)
 {
-    return s == 0u ? x : (int32_t)((x + (int32_t)(1L << (s - 1u))) >> s);
+    int32_t r = x;
+    if (s != 0u) {
+        uint32_t half = (uint32_t)1u << (s - 1u);  /* 2**(s-1), formed without a signed shift */
+        r = (x + (int32_t)half) >> s;
+    }
+    return r;
 }
 
 /* fixed.c defines LD_FIXED_DEFINE: there, and in a build for speed everywhere, the bodies. */
 #if !defined(LD_FIXED_OUT_OF_LINE) || defined(LD_FIXED_DEFINE)
 LD_COLD int64_t ld_sat64(int64_t x, int64_t lo, int64_t hi)
 {
-    return x < lo ? lo : (x > hi ? hi : x);
+    return (x < lo) ? lo : ((x > hi) ? hi : x);
 }
 
 LD_COLD int32_t ld_sat_s32(int64_t x)
@@ -55,7 +60,7 @@ LD_COLD int32_t ld_sat_s32(int64_t x)
  * s = 1 needs x < 2**63 - 1, which every caller's range analysis leaves by far). */
 LD_COLD int64_t ld_rshift_round64(int64_t x, unsigned s)
 {
-    return s == 0u ? x : ((x >> (s - 1u)) + 1) >> 1;
+    return (s == 0u) ? x : (((x >> (s - 1u)) + 1) >> 1);
 }
 #endif
 
@@ -69,26 +74,27 @@ static inline int64_t ld_div_trunc(int64_t a, int64_t b)
  * five compare-and-shift steps instead of a loop over every bit. */
 static inline unsigned ld_bit_length(uint32_t u)
 {
+    uint32_t r = u;
     unsigned n = 0u;
-    if (u >= 0x10000u) { u >>= 16; n += 16u; }
-    if (u >= 0x100u) { u >>= 8; n += 8u; }
-    if (u >= 0x10u) { u >>= 4; n += 4u; }
-    if (u >= 0x4u) { u >>= 2; n += 2u; }
-    if (u >= 0x2u) { u >>= 1; n += 1u; }
-    return n + u;
+    if (r >= 0x10000u) { r >>= 16; n += 16u; }
+    if (r >= 0x100u) { r >>= 8; n += 8u; }
+    if (r >= 0x10u) { r >>= 4; n += 4u; }
+    if (r >= 0x4u) { r >>= 2; n += 2u; }
+    if (r >= 0x2u) { r >>= 1; n += 1u; }
+    return n + r;
 }
 
 /* Same value as ld_rshift_round(x, s) but without forming x + 2**(s-1), so it
  * cannot overflow for any int32 x: the rounding bit is bit s-1 of x. */
 static inline int32_t ld_rshift_round_safe(int32_t x, unsigned s)
 {
-    return s == 0u ? x : (x >> s) + ((x >> (s - 1u)) & 1);
+    return (s == 0u) ? x : ((x >> s) + ((x >> (s - 1u)) & 1));
 }
 
 static inline int32_t ld_abs32(int32_t x)
 {
     /* Callers never pass INT32_MIN (accumulators are bounded below 2**31 - 1). */
-    return x < 0 ? -x : x;
+    return (x < 0) ? -x : x;
 }
 
 /* Move x a fraction 2**-s of the way to target, at least 1 LSB; no dead band.
@@ -97,8 +103,12 @@ static inline int32_t ld_abs32(int32_t x)
 static inline int32_t ld_step_toward(int32_t x, int32_t target, unsigned s)
 {
     int32_t d = ld_rshift_round_safe(target - x, s);
-    if (d == 0 && target != x) {
-        d = target > x ? 1 : -1;
+    if ((d == 0) && (target != x)) {
+        if (target > x) {
+            d = 1;
+        } else {
+            d = -1;
+        }
     }
     return x + d;
 }

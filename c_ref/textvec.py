@@ -6,14 +6,17 @@ Format ``LDTV 1`` (one record per line; ``#`` comments and blank lines ignored):
     p <the 33 scalar ld_params_t fields, in declaration order>
     t <ref_tab entries, 16 per line, 256 in all>
     s <adc_v> <adc_i>        one ld_step
+    q <adc_v> <adc_i>        one ld_step_isr (the interrupt path)
+    w                        ld_window_work (the main loop's window work)
     r                        ld_reset
     i                        ld_init
 
 A new ``p`` line starts a new case; ld_init runs before its first operation.
-The driver prints one line per operation: the command, then every
-``ld_state_t`` field in declaration order (``OUTPUT_FIELDS``).
+The driver prints one line per operation: the command (for ``w``, the command in force), then
+every ``ld_state_t`` field in declaration order (``OUTPUT_FIELDS``).
 """
 from algo import step as model
+from algo.estimator import window_work
 from algo.params import PARAM_FIELDS, TAB_MAX, Params
 from algo.state import STATE_FIELDS
 
@@ -42,10 +45,22 @@ def params_lines(p):
     return lines
 
 
+def isr_samples(adc_v, adc_i, work_after=()):
+    """Operations stepping one ADC pair each through the interrupt path, with the window work
+    (``w``) after each sample index in ``work_after``."""
+    after = set(work_after)
+    ops = []
+    for t, (v, i) in enumerate(zip(adc_v, adc_i)):
+        ops.append(("q", int(v), int(i)))
+        if t in after:
+            ops.append(("w",))
+    return ops
+
+
 def _op_line(op):
-    if op[0] == "s":
-        return f"s {op[1]} {op[2]}"
-    if op[0] in ("r", "i") and len(op) == 1:
+    if op[0] in ("s", "q"):
+        return f"{op[0]} {op[1]} {op[2]}"
+    if op[0] in ("r", "i", "w") and len(op) == 1:
         return op[0]
     raise ValueError(f"unknown operation {op!r}")
 
@@ -73,9 +88,9 @@ def loads(text):
             scalars, tab, ops = vals, [], []
         elif kind == "t":
             tab += vals
-        elif kind == "s":
-            ops.append(("s", vals[0], vals[1]))
-        elif kind in ("r", "i"):
+        elif kind in ("s", "q"):
+            ops.append((kind, vals[0], vals[1]))
+        elif kind in ("r", "i", "w"):
             ops.append((kind,))
         else:
             raise ValueError(f"unknown record {kind!r}")
@@ -103,7 +118,11 @@ def model_output(cases):
                 s = model.init(p)
             if op[0] == "s":
                 cmd = model.step(p, s, op[1], op[2])
+            elif op[0] == "q":
+                cmd = model.step_isr(p, s, op[1], op[2])
             else:
+                if op[0] == "w":
+                    window_work(p, s)
                 if op[0] == "r":
                     model.reset(p, s)
                 cmd = s.cmd

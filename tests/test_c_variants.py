@@ -93,7 +93,7 @@ def test_every_build_variant_matches_model_with_the_longest_windows(driver, case
     ("LDTV 1\ns 1 2\n", "complete parameter block"),
     ("LDTV 1\nt 1 2\n", "'t' before 'p'"),
     ("LDTV 1\np" + " 0" * 25 + " 4294967296\n", "out-of-range"),
-    ("LDTV 1\nq\n", "unknown line type"),
+    ("LDTV 1\nx\n", "unknown line type"),
 ])
 def test_driver_rejects_malformed_vectors_naming_the_line(driver_dir, text, complaint):
     require_tool("gcc")

@@ -29,8 +29,8 @@ ROUNDING = {
     "safe_round_truncates": ("fixed.h", "(x >> s) + ((x >> (s - 1u)) & 1)", "(x >> s) + ((x >> (s - 1u)) & 0)"),
 }
 CONSTANT = {
-    "norm_bits": ("linedrop.h", "#define LD_NORM_BITS 14 ", "#define LD_NORM_BITS 13 "),
-    "bit_length_step": ("fixed.h", "{ u >>= 4; n += 4u; }", "{ u >>= 4; n += 3u; }"),
+    "norm_bits": ("linedrop.h", "#define LD_NORM_BITS 14u ", "#define LD_NORM_BITS 13u "),
+    "bit_length_step": ("fixed.h", "{ r >>= 4; n += 4u; }", "{ r >>= 4; n += 3u; }"),
 }
 
 

@@ -81,6 +81,13 @@ def golden_cases():
     cases = [("defaults_closed_loop_load_step_reset", p,
               [("s", v, i) for v, i in loop] + [("r",)] + [("s", v, i) for v, i in loop[:3000]]
               + [("i",)] + [("s", v, i) for v, i in loop[:300]])]
+    # The interrupt path on the same codes, the window work at once, as late as the next period
+    # end allows, two periods late, and not at all (the next window is dropped as late).
+    delays = (0, p.period - 1, 2 * p.period + 3, None)
+    work = [end + delays[k % 4] for k, end in enumerate(range(p.window - 1, len(loop), p.window))
+            if delays[k % 4] is not None]
+    cases.append(("defaults_interrupt_path_window_work_timing", p,
+                  textvec.isr_samples([v for v, _ in loop], [i for _, i in loop], work)))
     # Capacitor missing: the voltage swing leads the current swing by a quarter period.
     ph = [2 * math.pi * n / p.period for n in range(4 * p.window)]
     cases.append(("defaults_quadrature_response", p,
@@ -118,12 +125,21 @@ def golden():
 @pytest.mark.parametrize("opt", OPTS)
 def test_cortex_m4_in_qemu_matches_the_model_bit_for_bit_on_every_state_field(golden, opt,
                                                                               tmp_path):
-    skip_or_fail(build.toolchain_missing())
-    skip_or_fail(build.qemu_missing())
-    skip_or_fail(qemu_run.driver_missing())
-    text, names, want = golden
-    got = textvec.parse_output(qemu_run.run_text(qemu_run.build_image(opt, str(tmp_path)), text,
-                                                 str(tmp_path)))
+    replay_golden_on_target(golden, build, qemu_run, opt, str(tmp_path))
+
+
+def replay_golden_on_target(golden, port_build, port_run, opt, work_dir):
+    """Replay the golden vectors on a port's QEMU target at ``opt``; every row must equal the model's.
+
+    ``port_build``/``port_run`` are a port's build and QEMU runner modules (c_ref/cortexm,
+    c_ref/riscv). Skips (or fails under LINEDROP_REQUIRE_TOOLS=1) when a tool is missing.
+    """
+    for reason in (port_build.toolchain_missing(), port_build.qemu_missing(),
+                   port_run.driver_missing()):
+        skip_or_fail(reason)
+    _, names, want = golden
+    got = textvec.parse_output(port_run.run_text(port_run.build_image(opt, work_dir), golden[0],
+                                                 work_dir))
     assert len(got) == len(want)
     for k, ((cmd_c, st_c), (cmd_m, st_m), name) in enumerate(zip(got, want, names)):
         diff = {f: (st_c[f], st_m[f]) for f in st_m if st_c[f] != st_m[f]}

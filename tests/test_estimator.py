@@ -25,8 +25,8 @@ I_CODE = 4096
 
 
 def _window(vi, vq=0, ii=I_CODE, iq=0):
-    """A State whose finished window holds these demodulation sums and no trend."""
-    return st.State(acc_vi=vi, acc_vq=vq, acc_ii=ii, acc_iq=iq)
+    """A State whose finished window (the w_* record) holds these demodulation sums and no trend."""
+    return st.State(w_acc_vi=vi, w_acc_vq=vq, w_acc_ii=ii, w_acc_iq=iq, w_state=st.WIN_PENDING)
 
 
 @pytest.mark.parametrize("swing_min, status", [(I_CODE, st.STATUS_VALID), (I_CODE + 1, st.STATUS_LOW_SWING)],
@@ -101,6 +101,12 @@ def test_the_command_base_leaves_the_perturbation_room_under_cmd_max_whatever_th
 
 @pytest.mark.parametrize("before, after", [(0xFFFE, 0xFFFF), (0xFFFF, 0xFFFF)])
 def test_the_bad_window_count_is_a_uint16_that_saturates(before, after):
-    s = st.State(bad_windows=before)
-    est.window_end(P, s)         # all sums zero: a low-swing window, a fault window
-    assert (s.status, s.bad_windows) == (st.STATUS_LOW_SWING, after)
+    s = st.State(bad_windows=before, w_state=st.WIN_PENDING)
+    assert est.window_work(P, s) == 1    # all sums zero: a low-swing window, a fault window
+    assert (s.status, s.bad_windows, s.w_state) == (st.STATUS_LOW_SWING, after, st.WIN_DONE)
+
+
+def test_the_window_work_does_nothing_unless_a_window_waits():
+    s = st.State(bad_windows=3)
+    assert est.window_work(P, s) == 0
+    assert s == st.State(bad_windows=3)

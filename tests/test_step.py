@@ -5,19 +5,21 @@ tests/test_bitexact_props.py holds to the model).
 The law runs with a proportional gain of exactly 1 (kp_max_q = 1.0 in Q GAIN_FRAC, reached by a
 large estimate), no integral gain and the ESR allowance zero, so one period gives
 corr = e + integ with e = drop - corr; with the integral equal to the correction in force, the new
-correction is the period's drop and its step du = drop - corr. drop_period reads the estimate
-2**16 (Q16, so 1.0 V-code per I-code) against a period sum psum of current codes as psum / 2 in
-Q corr_frac DAC codes for the default settings (a 32-sample period and unit gains:
-psum * 2**16 >> 13, then * 2**16 >> 20), so a drop is set through psum = 2 * drop.
+correction is the period's drop and its step du = drop - corr. drop_period reads the committed
+r_c = estimate - ESR allowance, 2**16 (Q16, so 1.0 V-code per I-code), against the last period's
+sum psum_prev of current codes as psum_prev / 2 in Q corr_frac DAC codes for the default settings
+(a 32-sample period and unit gains: psum_prev * 2**16 >> 13, then * 2**16 >> 20), so a drop is
+set through psum_prev = 2 * drop. The committed inputs come from the window work itself
+(_law_state).
 """
 from dataclasses import replace
 
 import pytest
 
-from algo import step
+from algo import estimator, step
 from algo.config import AlgoConfig
 from algo.params import GAIN_FRAC, derive
-from algo.state import State
+from algo.state import WIN_PENDING, State
 
 P = derive(AlgoConfig())
 P_LAW = replace(P, ki_q=0, kp_max_q=1 << GAIN_FRAC, corr_max_q=1 << 12, esr_q=0)
@@ -25,9 +27,23 @@ CORR = 1000                   # correction in force, Q corr_frac codes (the inte
 GUARD = P_LAW.corr_max_q >> 6  # a swing must exceed corr_max / 64 to count: 64
 
 
+def _law_state(p=P_LAW, r_est=1 << 16, **fields):
+    """A State whose committed correction inputs (r_c, kp, corr_on) are what the window work
+    leaves for the estimate ``r_est`` with valid_run 2 (a window of zero sums: low swing, the
+    estimate held, one bad window), with ``fields`` set on top; the perturbation amplitude at 0
+    as in the worked figures."""
+    s = State(r_est=r_est, valid_run=2, w_state=WIN_PENDING)
+    assert estimator.window_work(p, s) == 1
+    step._commit(s)
+    s.pert_amp = 0
+    for name, value in fields.items():
+        setattr(s, name, value)
+    return s
+
+
 def _period(drop, du_prev, kp_off, corr=CORR):
-    s = State(r_est=1 << 16, valid_run=2, corr=corr, integ=corr, du_prev=du_prev, kp_off=kp_off,
-              psum=2 * drop)
+    s = _law_state(corr=corr, integ=corr, du_prev=du_prev, kp_off=kp_off,
+                   psum_prev=2 * drop)
     assert step.drop_period(P_LAW, s) == drop       # the module docstring's arithmetic
     step.correct(P_LAW, s)
     return s.corr, s.kp_off, s.du_prev
@@ -62,7 +78,7 @@ def test_the_integral_holds_while_the_output_sits_above_the_ceiling_and_the_erro
     # ceiling (corr_max_q 2048; the command's room is larger), so the integral stays at 1000
     # instead of moving to 2000, and the output is the ceiling.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1), corr_max_q=2048)
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=CORR, psum=2 * 3000)
+    s = _law_state(corr=CORR, integ=CORR, psum_prev=2 * 3000)
     step.correct(p, s)
     assert (s.corr, s.integ) == (2048, CORR)
 
@@ -71,7 +87,7 @@ def test_at_exactly_the_ceiling_the_integral_still_moves():
     # kp 1, ki 1/2, integral 848 under a correction of 1000: e = 1800 - 1000 = 800 gives
     # u = 800 + (848 + 400) = 2048, the ceiling itself, so the integral moves to 1248.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1), corr_max_q=2048)
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=848, psum=2 * 1800)
+    s = _law_state(corr=CORR, integ=848, psum_prev=2 * 1800)
     step.correct(p, s)
     assert (s.corr, s.integ) == (2048, 1248)
 
@@ -89,15 +105,17 @@ def test_the_ceiling_is_the_command_room_less_the_perturbation_peak():
                          ids=["at_the_threshold", "one_above", "one_above_downward"])
 def test_a_load_step_is_a_period_sum_change_of_more_than_the_threshold(change, transient):
     # No swing yet: the threshold is step_min itself.
-    s = State(have_prev=1, psum_prev=5000, psum=5000 + change, swing=0)
-    step._period_end(replace(P, step_min=100), s)
+    thr = estimator.step_threshold(replace(P, step_min=100), 0)
+    assert thr == 100
+    s = State(have_prev=1, psum_prev=5000, psum=5000 + change, step_thr=thr)
+    step._period_end(s)
     assert (s.transient, s.psum_prev) == (transient, 5000 + change)
 
 
 def test_at_one_code_of_error_above_the_ceiling_the_integral_holds():
     # integral 2047 under a 2048 ceiling, e = 1: u = 1 + (2047 + 1) = 2049 > 2048, so it holds.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1), corr_max_q=2048)
-    s = State(r_est=1 << 16, valid_run=2, corr=2047, integ=2047, psum=2 * 2048)
+    s = _law_state(corr=2047, integ=2047, psum_prev=2 * 2048)
     step.correct(p, s)
     assert (s.corr, s.integ) == (2048, 2047)
 
@@ -106,14 +124,14 @@ def test_at_one_code_of_error_above_the_ceiling_the_integral_holds():
 def test_a_load_dump_takes_the_output_and_the_integral_down_to_zero_never_below(integ, want_integ):
     # Drop 0 against a correction of 1000: e = -1000, u = -1000 + (integ - 500) < 0.
     p = replace(P_LAW, ki_q=1 << (GAIN_FRAC - 1))
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=integ, psum=0)
+    s = _law_state(corr=CORR, integ=integ, psum_prev=0)
     step.correct(p, s)
     assert (s.corr, s.integ) == (0, want_integ)
 
 
 def test_a_period_with_a_current_code_at_zero_tracks_no_drop_and_takes_its_error_against_the_correction():
     # i_zero: the drop read is 0 and e = -max(corr, integ) = -1000, so u = -1000 + 1000 = 0.
-    s = State(r_est=1 << 16, valid_run=2, corr=CORR, integ=CORR, psum=2 * 5000, i_zero=1)
+    s = _law_state(corr=CORR, integ=CORR, psum_prev=2 * 5000, iz_last=1)
     step.correct(P_LAW, s)
     assert (s.corr_target, s.corr) == (0, 0)
 
@@ -124,5 +142,6 @@ def test_a_period_with_a_current_code_at_zero_tracks_no_drop_and_takes_its_error
                               "more_than_the_estimate"])
 def test_the_drop_tracked_is_the_estimate_less_the_esr_allowance_times_the_current_never_below_zero(esr_q, psum, want):
     # A one-LSB estimate left over would read 2**20 * 2**-13 * 2**-4 = 8 codes at the large current.
-    s = State(r_est=1 << 16, psum=psum)
-    assert step.drop_period(replace(P_LAW, esr_q=esr_q), s) == want
+    p = replace(P_LAW, esr_q=esr_q)
+    s = _law_state(p, psum_prev=psum)
+    assert step.drop_period(p, s) == want

@@ -23,7 +23,8 @@ ALGO_SOURCES = ("step.c", "estimator.c", "fixed.c")
 WARNINGS = ("-std=c99", "-Wall", "-Wextra", "-Wconversion", "-Wsign-conversion", "-pedantic",
             "-Werror")
 # Entry points an application calls; everything else is reached from them.
-API = ("ld_init", "ld_reset", "ld_step", "ld_state_size", "ld_params_size", "ld_version")
+API = ("ld_init", "ld_reset", "ld_step", "ld_step_isr", "ld_window_work", "ld_state_size",
+       "ld_params_size", "ld_version")
 
 
 def arch_flags(cpu):
@@ -43,26 +44,33 @@ def toolchain_missing():
     """``None`` if the cross compiler and newlib's semihosting library link a program, else why not."""
     if shutil.which(GCC) is None:
         return f"{GCC} not found on PATH (apt install gcc-arm-none-eabi)"
+    failed = link_fails(lambda src, out: link_semihosting("m4", "-Os", src, out, sources=()))
+    if failed:
+        return f"{GCC} cannot link a semihosting image (apt install libnewlib-arm-none-eabi): {failed}"
+    return None
+
+
+def link_fails(link):
+    """``None`` if ``link(c_file, elf_path)`` links an empty ``main``, else the tail of its error."""
     with tempfile.TemporaryDirectory() as tmp:
         src = os.path.join(tmp, "probe.c")
         with open(src, "w") as f:
             f.write("int main(void) { return 0; }\n")
         try:
-            link_semihosting("m4", "-Os", src, os.path.join(tmp, "probe.elf"), sources=())
+            link(src, os.path.join(tmp, "probe.elf"))
         except RuntimeError as exc:
-            return f"{GCC} cannot link a semihosting image (apt install libnewlib-arm-none-eabi): " \
-                   f"{str(exc)[-200:]}"
+            return str(exc)[-200:]
     return None
 
 
 @functools.lru_cache(maxsize=None)
-def qemu_missing():
-    """``None`` if QEMU can emulate the mps2-an386 board, else why not."""
-    if shutil.which(QEMU) is None:
-        return f"{QEMU} not found on PATH (apt install qemu-system-arm)"
-    res = subprocess.run(["timeout", "20", QEMU, "-machine", "help"], capture_output=True, text=True)
-    if QEMU_MACHINE not in res.stdout:
-        return f"{QEMU} has no {QEMU_MACHINE} machine"
+def qemu_missing(qemu=QEMU, machine=QEMU_MACHINE, package="qemu-system-arm"):
+    """``None`` if ``qemu`` (default: the mps2-an386 board's) can emulate ``machine``, else why not."""
+    if shutil.which(qemu) is None:
+        return f"{qemu} not found on PATH (apt install {package})"
+    res = subprocess.run(["timeout", "20", qemu, "-machine", "help"], capture_output=True, text=True)
+    if machine not in res.stdout.split():
+        return f"{qemu} has no {machine} machine"
     return None
 
 

@@ -37,19 +37,20 @@ def qemu_command(elf, vector_file=VECTOR_FILE):
             "-kernel", elf]
 
 
-def run_text(elf, vectors, work_dir):
+def run_text(elf, vectors, work_dir, command=qemu_command):
     """Run the text of a vector file on the target; return the driver's output text.
 
     The vector file is written to ``work_dir``, where QEMU runs and where it is
-    left for inspection (``vectors.txt``, ``replay_out.txt``).
+    left for inspection (``vectors.txt``, ``replay_out.txt``). ``command(elf)``
+    gives the QEMU command line (another port passes its own).
     """
     with open(os.path.join(work_dir, VECTOR_FILE), "w") as f:
         f.write(vectors)
-    res = subprocess.run(qemu_command(elf), cwd=work_dir, capture_output=True, text=True)
+    res = subprocess.run(command(elf), cwd=work_dir, capture_output=True, text=True)
     with open(os.path.join(work_dir, "replay_out.txt"), "w") as f:
         f.write(res.stdout)
     if res.returncode != 0:
         why = EXIT_REASONS.get(res.returncode, "unexpected exit status")
         raise RuntimeError(f"QEMU run failed with status {res.returncode} ({why}): "
-                           f"{res.stderr[-500:]}")
+                           f"{(res.stdout + res.stderr)[-500:]}")
     return res.stdout

@@ -1,5 +1,5 @@
 /*
- * Text vector replay driver: runs ld_init, ld_step and ld_reset on the
+ * Text vector replay driver: runs ld_init, ld_step, ld_step_isr, ld_window_work and ld_reset on the
  * operations of a text vector file and prints the command and every
  * ld_state_t field after each one. Format (c_ref/textvec.py writes it):
  *
@@ -7,6 +7,8 @@
  *   p <33 integers>             ld_params_t fields before ref_tab, in order
  *   t <integers>                ref_tab entries, in order; 256 in all
  *   s <adc_v> <adc_i>           one sample through ld_step
+ *   q <adc_v> <adc_i>           one sample through ld_step_isr
+ *   w                           ld_window_work
  *   r                           ld_reset
  *   i                           ld_init
  *
@@ -143,7 +145,9 @@ static void ld_tv_print(uint16_t cmd)
 {
     const ld_state_t *s = &ld_tv_s;
     printf("%u %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %lu "
-           "%u %u %u %u %u %u %u %u %u %u %u\n",
+           "%u %u %u %u %u %u %u %u %u %u %u "
+           "%ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld %ld"
+           " %u %u %u %u %u %u %u\n",
            (unsigned)cmd, (long)s->acc_vi, (long)s->acc_vq, (long)s->acc_ii, (long)s->acc_iq,
            (long)s->isum, (long)s->vsum, (long)s->isum_h, (long)s->vsum_h,
            (long)s->psum, (long)s->psum_prev, (long)s->r_est, (long)s->r_raw,
@@ -152,7 +156,13 @@ static void ld_tv_print(uint16_t cmd)
            (unsigned)s->phase, (unsigned)s->count, (unsigned)s->bad_windows, (unsigned)s->cmd,
            (unsigned)s->have_prev, (unsigned)s->transient, (unsigned)s->status,
            (unsigned)s->clipped, (unsigned)s->valid_run, (unsigned)s->kp_off,
-           (unsigned)s->i_zero);
+           (unsigned)s->i_zero,
+           (long)s->w_acc_vi, (long)s->w_acc_vq, (long)s->w_acc_ii, (long)s->w_acc_iq,
+           (long)s->w_isum, (long)s->w_di, (long)s->w_dv, (long)s->pert_next, (long)s->step_thr,
+           (long)s->thr_next, (long)s->r_c, (long)s->rc_next, (long)s->kp, (long)s->kp_next,
+           (long)s->corr_prev, (unsigned)s->w_clipped, (unsigned)s->w_transient, (unsigned)s->w_state,
+           (unsigned)s->late_windows, (unsigned)s->corr_on, (unsigned)s->on_next,
+           (unsigned)s->iz_last);
 }
 
 int main(int argc, char **argv)
@@ -203,7 +213,7 @@ int main(int argc, char **argv)
             n_tab += n;
             break;
         }
-        case 's': case 'r': case 'i':
+        case 's': case 'q': case 'w': case 'r': case 'i':
             if (!have_params || n_tab != LD_TAB_MAX) {
                 ld_tv_fail("operation before a complete parameter block");
             }
@@ -211,14 +221,21 @@ int main(int argc, char **argv)
                 ld_init(&ld_tv_p, &ld_tv_s);
                 ready = 1;
             }
-            if (ld_tv_line[0] == 's') {
+            if (ld_tv_line[0] == 's' || ld_tv_line[0] == 'q') {
+                uint16_t cmd;
                 if (ld_tv_ints(rest, val, 2u, 0, UINT16_MAX) != 2u) {
-                    ld_tv_fail("an 's' line needs adc_v and adc_i");
+                    ld_tv_fail("an 's' or 'q' line needs adc_v and adc_i");
                 }
-                ld_tv_print(ld_step(&ld_tv_p, &ld_tv_s, (uint16_t)val[0], (uint16_t)val[1]));
+                cmd = ld_tv_line[0] == 's'
+                          ? ld_step(&ld_tv_p, &ld_tv_s, (uint16_t)val[0], (uint16_t)val[1])
+                          : ld_step_isr(&ld_tv_p, &ld_tv_s, (uint16_t)val[0], (uint16_t)val[1]);
+                ld_tv_print(cmd);
             } else {
                 if (ld_tv_line[0] == 'r') {
                     ld_reset(&ld_tv_p, &ld_tv_s);
+                }
+                if (ld_tv_line[0] == 'w') {
+                    (void)ld_window_work(&ld_tv_p, &ld_tv_s);
                 }
                 ld_tv_print(ld_tv_s.cmd);
             }

@@ -44,7 +44,8 @@ def add_parser(sub):
     p.add_argument("--out", metavar="DIR", help="with --regulation: write regulation.json and regulation.png")
     p.add_argument("--firmware", action="store_true",
                    help="instead, the firmware cost on Cortex-M4 and M0+: instructions per "
-                        "ld_step (emulated), code, state and stack bytes (needs arm-none-eabi-gcc)")
+                        "ld_step (emulated), code, state and stack bytes (needs arm-none-eabi-gcc); "
+                        "--json adds the rv32_* keys for RV32IMC (with riscv64-unknown-elf-gcc)")
     p.add_argument("--memory", action="store_true",
                    help="instead, the peak memory (RSS) of simulating the demo for each of --durations, "
                         "streamed in chunks and held whole, side by side (each run in a fresh process)")

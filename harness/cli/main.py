@@ -14,7 +14,8 @@ from harness.errors import InputError
 
 #: Subcommand names and their modules (harness.cli.<module>), in the order ``--help`` lists them.
 COMMANDS = (("simulate", "simulate"), ("replay", "replay"), ("bench", "bench"), ("design", "design"),
-            ("tune", "tune"), ("spread", "spread"), ("vectors", "vectors"), ("check-port", "check_port"))
+            ("tune", "tune"), ("spread", "spread"), ("vectors", "vectors"), ("check-port", "check_port"),
+            ("prove", "prove"))
 
 
 def commands(name=None):

@@ -7,6 +7,7 @@ inputs and each differing field with both values.
 import numpy as np
 
 from algo import step as model
+from algo.estimator import window_work
 from algo.state import STATE_FIELDS
 from c_ref.binding import CBatch
 
@@ -63,6 +64,24 @@ class Pair:
                     py_cmd, c_cmd, py_state(self.s), self.c.state(0))
         self.ops += 1
         return py_cmd
+
+    def step_isr(self, adc_v, adc_i):
+        """One sample through the interrupt path on both; compare as ``step``."""
+        py_cmd = model.step_isr(self.p, self.s, adc_v, adc_i)
+        c_cmd = self.c.step_isr(0, adc_v, adc_i)
+        assert_same(f"after step_isr {self.ops} (adc_v={adc_v}, adc_i={adc_i})",
+                    py_cmd, c_cmd, py_state(self.s), self.c.state(0))
+        self.ops += 1
+        return py_cmd
+
+    def window_work(self):
+        """The window work on both; compare what it returns and every state field."""
+        py_did = window_work(self.p, self.s)
+        c_did = self.c.window_work(0)
+        assert_same(f"after window_work (operation {self.ops})", py_did, c_did,
+                    py_state(self.s), self.c.state(0))
+        self.ops += 1
+        return py_did
 
     def run(self, adc_v, adc_i):
         """Step both through a sequence, comparing after every sample."""

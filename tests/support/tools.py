@@ -21,6 +21,8 @@ def _probe(name):
     """Return ``None`` if tool ``name`` works here, else a reason string."""
     if name == "ngspice":
         return _probe_ngspice()
+    if name == "frama-c":
+        return _probe_frama_c()
     gcc = shutil.which("gcc")
     if name == "gcc":
         return None if gcc else "gcc not found on PATH"
@@ -61,6 +63,17 @@ def _probe_ngspice():
     return None
 
 
+def _probe_frama_c():
+    """``None`` if ``frama-c -version`` runs, else the reason."""
+    exe = shutil.which("frama-c")
+    if not exe:
+        return "frama-c not found on PATH (Debian package frama-c-base)"
+    run = subprocess.run([exe, "-version"], capture_output=True, text=True, timeout=60)
+    if run.returncode != 0:
+        return f"frama-c -version fails: {(run.stderr or run.stdout).strip()[:200]}"
+    return None
+
+
 def require_tool(name):
     """Skip the calling test if ``name`` is unavailable; fail instead under LINEDROP_REQUIRE_TOOLS=1.
 
@@ -68,8 +81,8 @@ def require_tool(name):
     ----------
     name : str
         ``"gcc"``, ``"gcov"`` (gcc with its coverage tool), ``"gcc-m32"`` (32-bit multilib),
-        ``"gcc-sanitizers"`` (UBSan + ASan) or
-        ``"ngspice"`` (batch-mode circuit simulator).
+        ``"gcc-sanitizers"`` (UBSan + ASan), ``"ngspice"`` (batch-mode circuit simulator) or
+        ``"frama-c"`` (its value analysis, Eva).
     """
     skip_or_fail(_probe(name))
 
