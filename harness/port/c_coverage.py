@@ -136,7 +136,8 @@ def read_unreachable(src_dir, lines, path=None):
 
 
 def measure(params, vectors, src_dir=None, unreachable_path=None):
-    """Branch coverage of the sources in ``src_dir`` (default c_ref) by ``vectors`` (code-array pairs).
+    """Branch coverage of the sources in ``src_dir`` (default c_ref) by ``vectors`` (code-array pairs),
+    replayed through ld_step and through the interrupt path (c_host.replay_cases).
 
     Returns a :class:`Coverage`.
     """
@@ -145,7 +146,7 @@ def measure(params, vectors, src_dir=None, unreachable_path=None):
         exe = c_host.build_driver(tmp, FLAGS, src_dir)
         text = os.path.join(tmp, "vectors.ldtv")
         with open(text, "w") as f:
-            f.write(c_host.vector_text(params, vectors))
+            f.write(c_host.vector_text(params, c_host.replay_cases(params, vectors)))
         status, _ = c_host.replay(exe, text, cwd=tmp)
         if status != 0:
             raise RuntimeError(f"the coverage build's replay exited with {status}")

@@ -33,12 +33,28 @@ def gcc_missing():
     return f"{' and '.join(missing)} not found on PATH (Debian package gcc)" if missing else None
 
 
-def vector_text(params, vectors):
-    """One LDTV text holding every vector as its own case (ld_init before each).
+def replay_cases(params, vectors):
+    """The operations the measures replay, one list per case (ld_init before each).
 
-    ``vectors`` is a list of ``(adc_v, adc_i)`` code arrays.
+    Each vector (``(adc_v, adc_i)`` code arrays) is replayed twice: through ld_step, as its CSV
+    holds it, and through the interrupt path (ld_step_isr, with ld_window_work after each
+    sample) in a second pass. In that pass each vector's third window is handed over with no
+    window work for a whole window (the next window end finds it late), and the longest vector
+    gets no window work at all (every window after the first is late, past the counter's
+    saturation in a vector of 256 windows or more).
     """
-    return textvec.dumps([(params, textvec.samples(v, i)) for v, i in vectors])
+    cases = [textvec.samples(v, i) for v, i in vectors]
+    longest = max(range(len(vectors)), key=lambda k: len(vectors[k][0]))
+    n = 1 << params.window_log2
+    for k, (v, i) in enumerate(vectors):
+        held = set(range(len(v))) if k == longest else set(range(2 * n - 1, 3 * n))
+        cases.append(textvec.isr_samples(v, i, [t for t in range(len(v)) if t not in held]))
+    return cases
+
+
+def vector_text(params, cases):
+    """One LDTV text holding every case of :func:`replay_cases` (ld_init before each)."""
+    return textvec.dumps([(params, ops) for ops in cases])
 
 
 def compile_object(src, obj, flags, include, prefix=()):

@@ -289,7 +289,9 @@ def run(params, vectors, src_dir=None, jobs=2, chosen=None, equivalent_path=None
     """Run the mutants of ``src_dir`` (default c_ref) over ``vectors`` (code-array pairs).
 
     ``chosen`` (a list of Mutant) limits the run. Returns a dict: ``results`` maps each mutant to
-    ``("caught", vector index, sample index)``, ``("survived",)``, ``("equivalent", reason)``,
+    ``("caught", case index, operation index)`` (cases as c_host.replay_cases: index k below
+    len(vectors) is vector k through ld_step, the sample index; above it, vector
+    k - len(vectors) through the interrupt path), ``("survived",)``, ``("equivalent", reason)``,
     ``("size", reason)`` (listed as reachable only by a vector too long to ship: not equivalent,
     counted apart) or ``("stillborn",)``, with the counts and the wall time.
     """
@@ -298,14 +300,15 @@ def run(params, vectors, src_dir=None, jobs=2, chosen=None, equivalent_path=None
     dead = uncalled(src_dir)
     mutants = all_mutants(src_dir) if chosen is None else list(chosen)
     started = time.monotonic()
+    cases = c_host.replay_cases(params, vectors)
     bounds, total = [], 0
-    for v, _ in vectors:
-        total += len(v)
+    for ops in cases:
+        total += len(ops)
         bounds.append(total)
     with tempfile.TemporaryDirectory(prefix="ld-mut-") as tmp:
         text = os.path.join(tmp, "vectors.ldtv")
         with open(text, "w") as f:
-            f.write(c_host.vector_text(params, vectors))
+            f.write(c_host.vector_text(params, cases))
         workers = [_Worker(os.path.join(tmp, f"w{k}"), src_dir) for k in range(jobs)]
         status, reference = c_host.replay(workers[0].exe, text)
         if status != 0:
