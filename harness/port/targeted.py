@@ -44,11 +44,14 @@ def _level_for(p, target_q, r):
 
 def estimate_jump(p):
     """A valid window at a tenth of r_max, then valid windows near r_max: the second is further
-    than r_step_max from the first and replaces it (valid_run stays 1), the third confirms it."""
+    than r_step_max from the first and replaces it (valid_run stays 1), the third confirms it.
+    Then a window at a twentieth of the current: the perturbation the drop asks for is below
+    half the last one, so it falls by half (its floor per window), not further."""
     b = Builder(p)
     r_max = p.r_max_q / (1 << p.r_frac)
     b.windows(1, 0.1 * r_max)
     b.windows(3, 0.9 * r_max)
+    b.windows(1, 0.9 * r_max, i0=0.05 * p.adc_max)
     return b
 
 
@@ -293,9 +296,8 @@ def proportional_off(p):
 #: ``(vector name, builder, one-line description)`` of every targeted vector, in order.
 TARGETED = [
     ("estimate_jump", estimate_jump, "open loop: a valid window, then ones further than r_step_max "
-                                     "from it (replaced, then confirmed)"),
+                                     "from it (replaced, then confirmed), then a current far lower"),
     ("zero_resistance", zero_resistance, "open loop: flat voltage under a current sine (estimate 0)"),
-    ("valid_run_saturates", valid_run_saturates, "open loop: 258 valid windows (valid_run saturates)"),
     ("ring_guard", ring_guard, "open loop: a ringing correction, two growing reversals (P off), "
                                "then valid windows"),
     ("ring_edges", ring_edges, "open loop: correction steps reversing to exactly the ring guard's size "
@@ -314,6 +316,8 @@ TARGETED = [
                                    "r_step_max, a current swing exactly swing_min"),
     ("step_threshold", step_threshold, "open loop: period sums differing by exactly step_min, then "
                                        "step_min + 1"),
+    # The long one last, so the short ones come early in the set.
+    ("valid_run_saturates", valid_run_saturates, "open loop: 258 valid windows (valid_run saturates)"),
 ]
 
 
