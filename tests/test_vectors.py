@@ -21,7 +21,10 @@ from harness.port.vector_files import COLUMNS, find_sets, parse_vector_csv, read
 
 # Short runs keep the test quick; the long run still spans several windows.
 ARGS = ["--duration-s", "0.12", "--long-s", "0.2", "--seed", "7"]
-NAMES = ["normal", "load_step", "fault_cable_open", "fault_cap_open", "fault_load_short",
+NAMES = ["estimate_jump", "zero_resistance", "ring_guard", "ring_edges", "proportional_off",
+         "ceiling_drops", "ceiling_edge", "rail_combinations", "reactive_edge", "exact_limits",
+         "step_threshold", "valid_run_saturates",
+         "normal", "load_step", "fault_cable_open", "fault_cap_open", "fault_load_short",
          "fault_adc_stuck_i", "fault_adc_stuck_v", "long", "extreme_codes"]
 
 

@@ -99,8 +99,11 @@ def folder_plan(out_dir, names):
     return sorted(kept), kept | mine | old
 
 
-def write_set(out_dir, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors, option="--out"):
+def write_set(out_dir, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors, option="--out",
+              extra=None):
     """Write a vector set into ``out_dir``, swapped in whole with any other sets kept.
+
+    ``extra`` (a dict) is added to the provenance note (the C figures of ``--coverage``).
 
     Returns the paths of the set's files, in order.
     """
@@ -109,11 +112,11 @@ def write_set(out_dir, stem, scenario_name, scenario_bytes, cfg, params, seed, v
     with atomic_folder(out_dir, ours, option) as folder:
         for name in kept:
             shutil.copy2(os.path.join(out_dir, name), os.path.join(folder, name))
-        _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors)
+        _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors, extra or {})
     return [os.path.join(out_dir, n) for n in names]
 
 
-def _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors):
+def _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vectors, extra):
     entries = []
     for vec in vectors:
         name = f"{stem}-{vec.name}.csv"
@@ -128,6 +131,7 @@ def _fill(folder, stem, scenario_name, scenario_bytes, cfg, params, seed, vector
         f.write(params_header(params, guard=_guard(stem), comment=comment))
     note = provenance(scenario_name, scenario_bytes, cfg, params, seed, entries)
     note["params_header"] = header
+    note.update(extra)
     with open(os.path.join(folder, stem + PROVENANCE_SUFFIX), "w") as f:
         f.write(json.dumps(note, indent=1) + "\n")
 

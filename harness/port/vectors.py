@@ -5,7 +5,8 @@ Each vector is a named sequence of ADC code pairs, fed to a fresh
 after each sample. Closed-loop vectors come from the scenario and from
 variants derived from it (no load step, a load step, one of each fault);
 open-loop ones drive the ADC inputs to extreme codes and shapes the plant
-never produces. Everything is a function of the scenario and one seed.
+never produces; targeted open-loop ones (harness/port/targeted.py) reach the paths the others
+reach rarely or never. Everything is a function of the scenario and one seed.
 """
 from dataclasses import dataclass, replace
 from typing import Optional
@@ -18,6 +19,7 @@ from harness.loop.closed_loop import simulate
 from harness.loop.replay import model_trace
 from harness.scenario.specs import FAULT_KINDS, FaultSpec
 from harness.scenario.variants import with_load_step
+from harness.port.targeted import TARGETED, targeted
 
 #: Part of the run a derived fault is active, as fractions of the duration: the vector shows
 #: normal operation, the fault, and the recovery after it.
@@ -83,7 +85,8 @@ def _fault_variants():
 
 def vector_names():
     """Names of every vector generate() returns, in order (known before any run)."""
-    return ["normal", "load_step", *(n for n, _, _ in _fault_variants()), "long", "extreme_codes"]
+    return [*(n for n, _, _ in TARGETED), "normal", "load_step", *(n for n, _, _ in _fault_variants()),
+            "long", "extreme_codes"]
 
 
 def long_variant(scenario, long_s):
@@ -181,8 +184,10 @@ def generate(scenario, duration_s=None, long_s=None, seed=None, overrides=None):
     duration_s = scenario.run.duration_s if duration_s is None else duration_s
     long_s = max(duration_s, long_duration(cfg)) if long_s is None else long_s
     variants = closed_loop_variants(scenario, duration_s) + [long_variant(scenario, long_s)]
-    vectors = run_closed_loop(variants, overrides) + [extreme_codes(cfg, seed)]
     params = derive(cfg)
+    # The short targeted vectors come first: a port that breaks what they aim at fails early.
+    vectors = [Vector(name, text, v, i) for name, text, v, i in targeted(params)]
+    vectors += run_closed_loop(variants, overrides) + [extreme_codes(cfg, seed)]
     for vec in vectors:
         vec.trace = model_trace(params, vec.adc_v, vec.adc_i)
         if vec.recorded_cmd is not None and not np.array_equal(vec.recorded_cmd, vec.trace[:, 0]):

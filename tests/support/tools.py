@@ -26,6 +26,8 @@ def _probe(name):
     gcc = shutil.which("gcc")
     if name == "gcc":
         return None if gcc else "gcc not found on PATH"
+    if name == "gcov":
+        return None if gcc and shutil.which("gcov") else "gcc or gcov not found on PATH (Debian package gcc)"
     flags = {"gcc-m32": ["-m32"],
              "gcc-sanitizers": ["-fsanitize=undefined,address", "-fno-sanitize-recover=all"]}
     if name not in flags:
@@ -78,8 +80,9 @@ def require_tool(name):
     Parameters
     ----------
     name : str
-        ``"gcc"``, ``"gcc-m32"`` (32-bit multilib), ``"gcc-sanitizers"`` (UBSan + ASan),
-        ``"ngspice"`` (batch-mode circuit simulator) or ``"frama-c"`` (its value analysis, Eva).
+        ``"gcc"``, ``"gcov"`` (gcc with its coverage tool), ``"gcc-m32"`` (32-bit multilib),
+        ``"gcc-sanitizers"`` (UBSan + ASan), ``"ngspice"`` (batch-mode circuit simulator) or
+        ``"frama-c"`` (its value analysis, Eva).
     """
     skip_or_fail(_probe(name))
 
