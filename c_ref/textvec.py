@@ -12,8 +12,9 @@ Format ``LDTV 1`` (one record per line; ``#`` comments and blank lines ignored):
     i                        ld_init
 
 A new ``p`` line starts a new case; ld_init runs before its first operation.
-The driver prints one line per operation: the command (for ``w``, the command in force), then
-every ``ld_state_t`` field in declaration order (``OUTPUT_FIELDS``).
+The driver prints one line per operation: the command (for ``w``, what ld_window_work returned:
+1 when it finished a window, else 0), then every ``ld_state_t`` field in declaration order
+(``OUTPUT_FIELDS``).
 """
 from algo import step as model
 from algo.estimator import window_work
@@ -120,9 +121,9 @@ def model_output(cases):
                 cmd = model.step(p, s, op[1], op[2])
             elif op[0] == "q":
                 cmd = model.step_isr(p, s, op[1], op[2])
+            elif op[0] == "w":
+                cmd = window_work(p, s)      # the driver prints what it returned
             else:
-                if op[0] == "w":
-                    window_work(p, s)
                 if op[0] == "r":
                     model.reset(p, s)
                 cmd = s.cmd

@@ -8,7 +8,8 @@
  *   t <integers>                ref_tab entries, in order; 256 in all
  *   s <adc_v> <adc_i>           one sample through ld_step
  *   q <adc_v> <adc_i>           one sample through ld_step_isr
- *   w                           ld_window_work
+ *   w                           ld_window_work (prints what it returned, 0 or 1, in the
+ *                               command's place)
  *   r                           ld_reset
  *   i                           ld_init
  *
@@ -230,12 +231,11 @@ int main(int argc, char **argv)
                           ? ld_step(&ld_tv_p, &ld_tv_s, (uint16_t)val[0], (uint16_t)val[1])
                           : ld_step_isr(&ld_tv_p, &ld_tv_s, (uint16_t)val[0], (uint16_t)val[1]);
                 ld_tv_print(cmd);
+            } else if (ld_tv_line[0] == 'w') {
+                ld_tv_print(ld_window_work(&ld_tv_p, &ld_tv_s));   /* what it returned */
             } else {
                 if (ld_tv_line[0] == 'r') {
                     ld_reset(&ld_tv_p, &ld_tv_s);
-                }
-                if (ld_tv_line[0] == 'w') {
-                    (void)ld_window_work(&ld_tv_p, &ld_tv_s);
                 }
                 ld_tv_print(ld_tv_s.cmd);
             }
