@@ -16,7 +16,7 @@ from algo.params import derive
 from harness.cli.main import main
 from harness.port import prove as pv
 from harness.port import prove_harness as ph
-from tests.support.tools import require_tool
+from support.tools import require_tool
 
 SCENARIO_DIR = os.path.join(os.path.dirname(__file__), "..", "harness", "scenario", "scenarios")
 SCENARIOS = ["demo_mast", "garden_lamps", "parking_camera", "mast_faults"]
