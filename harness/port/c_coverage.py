@@ -111,12 +111,13 @@ def _locate(lines, line, text):
     return min(hits, key=lambda n: abs(n - line)) if hits else None
 
 
-def read_unreachable(src_dir, lines, path=None):
-    """The reviewed list as ``{(file, line, branch): reason}``, each entry found by its text.
+def read_reviewed(path, lines_of, third, tool):
+    """A reviewed tab-separated list (file, line, ``third``, source text, reason) as
+    ``{(file, line, third): reason}``, each entry found by its text nearest its line.
 
-    An entry whose file or text is no longer there is an error naming the list's line.
+    ``lines_of(name)`` gives a source file's lines; an entry whose text is no longer there is an
+    error naming the list's line and ``tool``, the module that prints lines to review.
     """
-    path = path or os.path.join(src_dir, UNREACHABLE_LIST)
     out = {}
     with open(path) as f:
         for n, raw in enumerate(f, 1):
@@ -125,14 +126,24 @@ def read_unreachable(src_dir, lines, path=None):
             cells = raw.rstrip("\n").split("\t")
             if len(cells) != 5:
                 raise InputError(f"{path}: line {n}: 5 tab-separated cells expected "
-                                 f"(file, line, branch, source text, reason), got {len(cells)}")
-            name, line, branch, text, reason = cells
-            found = _locate(lines.get(name, []), int(line), text.strip())
+                                 f"(file, line, {third}, source text, reason), got {len(cells)}")
+            name, line, key, text, reason = cells
+            found = _locate(lines_of(name), int(line), text.strip())
             if found is None:
                 raise InputError(f"{path}: line {n}: {name} has no line {text.strip()!r} any more; "
-                                 f"regenerate the list (python -m harness.port.c_coverage)")
-            out[(name, found, int(branch))] = reason
+                                 f"review the list (python -m {tool})")
+            out[(name, found, key)] = reason
     return out
+
+
+def read_unreachable(src_dir, lines, path=None):
+    """The reviewed list as ``{(file, line, branch): reason}``, each entry found by its text.
+
+    An entry whose file or text is no longer there is an error naming the list's line.
+    """
+    listed = read_reviewed(path or os.path.join(src_dir, UNREACHABLE_LIST),
+                           lambda name: lines.get(name, []), "branch", "harness.port.c_coverage")
+    return {(name, line, int(branch)): reason for (name, line, branch), reason in listed.items()}
 
 
 def measure(params, vectors, src_dir=None, unreachable_path=None):

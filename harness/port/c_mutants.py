@@ -17,9 +17,8 @@ import sys
 import tempfile
 import time
 
-from harness.errors import InputError
 from harness.port import c_host
-from harness.port.c_coverage import _locate, firmware_files
+from harness.port.c_coverage import firmware_files, read_reviewed
 
 FLAGS = ("-std=c99", "-O1", "-w")
 NICE = ("nice", "-n", "10")
@@ -213,27 +212,16 @@ def uncalled(src_dir):
 
 def read_equivalent(src_dir, path=None):
     """The reviewed list as ``{(file, line, mutation): reason}``, each entry found by its text."""
-    path = path or os.path.join(src_dir, EQUIVALENT_LIST)
     lines = {}
-    out = {}
-    with open(path) as f:
-        for n, raw in enumerate(f, 1):
-            if not raw.strip() or raw.startswith("#"):
-                continue
-            cells = raw.rstrip("\n").split("\t")
-            if len(cells) != 5:
-                raise InputError(f"{path}: line {n}: 5 tab-separated cells expected "
-                                 f"(file, line, mutation, source text, reason), got {len(cells)}")
-            name, line, what, text, reason = cells
-            if name not in lines:
-                with open(os.path.join(src_dir, name)) as g:
-                    lines[name] = g.read().splitlines()
-            found = _locate(lines[name], int(line), text.strip())
-            if found is None:
-                raise InputError(f"{path}: line {n}: {name} has no line {text.strip()!r} any more; "
-                                 f"review the list (python -m harness.port.c_mutants)")
-            out[(name, found, what)] = reason
-    return out
+
+    def lines_of(name):
+        if name not in lines:
+            with open(os.path.join(src_dir, name)) as g:
+                lines[name] = g.read().splitlines()
+        return lines[name]
+
+    return read_reviewed(path or os.path.join(src_dir, EQUIVALENT_LIST), lines_of, "mutation",
+                         "harness.port.c_mutants")
 
 
 class _Worker:
